@@ -1,0 +1,3 @@
+"""qwell: quantum-well layer-stack design for device engineers."""
+
+__version__ = "0.1.0"
