@@ -22,11 +22,14 @@ class OutputError(OSError, QwellError):
 def _check_target(path: Path, protect=()) -> Path:
     path = Path(path)
     for p in protect:
-        try:
-            if p is not None and Path(p).exists() and path.exists() and path.resolve() == Path(p).resolve():
-                raise OutputError(f"{path}: refusing to overwrite the input file")
-        except OSError:
+        if p is None:
             continue
+        try:
+            same = Path(p).exists() and path.exists() and path.resolve() == Path(p).resolve()
+        except OSError:
+            same = False
+        if same:
+            raise OutputError(f"{path}: refusing to overwrite the input file")
     if path.exists() and path.is_dir():
         raise OutputError(f"{path}: is a directory; expected a file name")
     parent = path.parent if str(path.parent) else Path(".")

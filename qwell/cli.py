@@ -1,0 +1,361 @@
+"""Command line of qwell: a thin layer over the Python API.
+
+Every command reads its inputs, calls the API and prints a readable table or
+(with ``--json``) the machine-readable contract.  Any :class:`QwellError`
+becomes one line on stderr and exit status 2; nothing is half-written.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import sys
+import warnings
+
+from . import __version__
+from .errors import QwellError, QwellWarning
+
+EXIT_USAGE = 2
+
+
+# ---------------------------------------------------------------------------
+# helpers
+# ---------------------------------------------------------------------------
+
+def _print_json(obj) -> None:
+    def default(o):
+        import numpy as np
+        if isinstance(o, np.ndarray):
+            return o.tolist()
+        if isinstance(o, (np.floating, np.integer)):
+            return o.item()
+        raise TypeError(type(o).__name__)
+
+    def clean(o):
+        if isinstance(o, float) and not math.isfinite(o):
+            return None
+        if isinstance(o, dict):
+            return {k: clean(v) for k, v in o.items()}
+        if isinstance(o, (list, tuple)):
+            return [clean(v) for v in o]
+        return o
+
+    json.dump(clean(obj), sys.stdout, indent=1, default=default)
+    sys.stdout.write("\n")
+
+
+def _table(rows, headers, aligns=None) -> str:
+    rows = [[("" if c is None else str(c)) for c in r] for r in rows]
+    widths = [max([len(h)] + [len(r[i]) for r in rows]) for i, h in enumerate(headers)]
+    aligns = aligns or ["<"] * len(headers)
+    def fmt(r):
+        return "  ".join(f"{c:{a}{w}}" for c, a, w in zip(r, aligns, widths)).rstrip()
+    out = [fmt(headers), fmt(["-" * w for w in widths])]
+    out += [fmt(r) for r in rows]
+    return "\n".join(out)
+
+
+def _load(path):
+    from .stack import load_stack
+    return load_stack(path)
+
+
+# ---------------------------------------------------------------------------
+# materials
+# ---------------------------------------------------------------------------
+
+def cmd_materials(args) -> int:
+    from .materials import get_material, known_materials
+    from .units import to_float
+
+    if not args.name:
+        names = known_materials()
+        if args.json:
+            _print_json({"materials": names})
+        else:
+            print("Known materials (formula notation with numbers, e.g. Al0.3Ga0.7As):")
+            for n in names:
+                print(f"  {n}")
+        return 0
+    T = to_float(args.temperature, "K", "a temperature (e.g. '300 K')")
+    if T <= 0:
+        raise QwellError(f"--temperature {args.temperature!r}: must be above 0 K")
+    mat = get_material(args.name, T)
+    params = mat.parameters()
+    sources = mat.parameter_sources()
+    if args.json:
+        _print_json({"name": mat.name, "family": mat.family, "composition": dict(mat.composition),
+                     "temperature_K": T, "parameters": params, "sources": sources})
+        return 0
+    print(f"{mat.name}  ({mat.family}, T = {T:g} K)")
+    keys = list(params)
+    cites = []
+    rows = []
+    for k in keys:
+        v = params[k]
+        src = sources.get(k, "")
+        if src not in cites:
+            cites.append(src)
+        rows.append([k, "—" if v is None else f"{v:.6g}", f"[{cites.index(src) + 1}]"])
+    print(_table(rows, ["parameter", "value", "source"], ["<", ">", "<"]))
+    print()
+    for i, c in enumerate(cites, 1):
+        print(f"[{i}] {c}")
+    return 0
+
+
+# ---------------------------------------------------------------------------
+# profile
+# ---------------------------------------------------------------------------
+
+def cmd_profile(args) -> int:
+    stack = _load(args.stack)
+    prof = _profile_of(stack, args)
+    if args.png:
+        from .plots import plot_profile
+        path = plot_profile(prof, args.png, protect=[args.stack])
+        if not args.json:
+            print(f"wrote {path}")
+    if args.json:
+        _print_json(prof.to_json())
+        return 0
+    print(f"{stack.name}  (T = {stack.temperature_K:g} K"
+          + (f", substrate {stack.substrate}" if stack.substrate else "")
+          + (f", field {stack.field_kV_per_cm:g} kV/cm" if stack.field_kV_per_cm else "") + ")")
+    import numpy as np
+    rows = []
+    for lp in prof.layers:
+        sel = (prof.z_nm >= lp.start_nm) & (prof.z_nm <= lp.end_nm)
+        ec = prof.conduction_edge_eV[sel]
+        ev = np.fmax(prof.heavy_hole_edge_eV[sel], prof.light_hole_edge_eV[sel])
+        def rng(a):
+            a = a[np.isfinite(a)]
+            if a.size == 0:
+                return "—"
+            lo, hi = float(a.min()), float(a.max())
+            return f"{lo:.4f}" if abs(hi - lo) < 5e-5 else f"{lo:.4f}..{hi:.4f}"
+        rows.append([lp.label, lp.material, f"{lp.start_nm:.3f}", f"{lp.thickness_nm:.3f}",
+                     rng(ec), rng(ev), f"{100 * lp.strain_xx:+.3f}"])
+    print(_table(rows, ["layer", "material", "start nm", "thick nm", "Ec eV", "Ev eV", "eps_xx %"],
+                 ["<", "<", ">", ">", ">", ">", ">"]))
+    for w in prof.warnings:
+        print(f"warning: {w}")
+    return 0
+
+
+def _profile_of(stack, args):
+    from .profile import band_profile
+    return band_profile(stack)
+
+
+# ---------------------------------------------------------------------------
+# levels
+# ---------------------------------------------------------------------------
+
+def _solutions(stack, args):
+    from .levels import solve_profile
+    prof = _profile_of(stack, args)
+    methods = ["exact", "semiclassical"] if args.method == "both" else [args.method]
+    return {m: solve_profile(prof, bands=args.band, method=m,
+                             transitions=(m == "exact")) for m in methods}
+
+
+def _state_rows(sol):
+    rows = []
+    for s in sol.states:
+        band = sol.profile.bands[s.band]
+        edge = band.profile_energy(band.potential_min_eV)
+        conf = 1e3 * abs(s.energy_eV - edge)
+        life = "" if s.lifetime_s is None else f"{s.lifetime_s:.3g} s"
+        flag = "bound" if s.bound else "quasi-bound"
+        if not s.converged:
+            flag += f" (NOT converged, ±{s.tolerance_eV * 1e6:.2g} µeV)"
+        rows.append([s.band, s.label, f"{s.energy_eV:.6f}", f"{conf:.3f}", flag, life])
+    return rows
+
+
+def _transition_rows(transitions):
+    rows = []
+    for t in transitions:
+        strength = (f"f={t.oscillator_strength:.4f}" if t.oscillator_strength is not None
+                    else f"|<e|h>|²={t.overlap:.4f} TE={t.te:.3f} TM={t.tm:.3f}")
+        rows.append([t.name, t.kind, f"{t.energy_eV:.6f}", f"{t.wavelength_um:.5f}",
+                     f"{t.wavenumber_cm1:.2f}", f"{t.frequency_THz:.3f}",
+                     "" if t.dipole_nm is None else f"{t.dipole_nm:.4f}", strength])
+    return rows
+
+
+def cmd_levels(args) -> int:
+    from .levels import compare_methods
+    from .optics import select_transitions
+
+    stack = _load(args.stack)
+    sols = _solutions(stack, args)
+    chosen = {}
+    for m, sol in sols.items():
+        trans = sol.transitions
+        if args.transition:
+            trans = select_transitions(trans, args.transition)
+        chosen[m] = trans
+    if args.png:
+        from .optics import plot_spectrum, spectrum
+        exact = sols.get("exact")
+        if exact is None or not chosen.get("exact"):
+            raise QwellError("--png: the spectrum needs transitions from the exact method")
+        spec = spectrum(chosen["exact"], linewidth_meV=args.linewidth, shape=args.lineshape)
+        plot_spectrum(spec, args.png, axis=args.axis, title=stack.name)
+    if args.json:
+        if len(sols) == 1:
+            (m, sol), = sols.items()
+            out = sol.to_json()
+            out["transitions"] = [t.to_json() for t in chosen[m]]
+        else:
+            out = {"stack": stack.name, "temperature_K": stack.temperature_K, "method": "both",
+                   "methods": {}, "comparison": compare_methods(sols["exact"], sols["semiclassical"])}
+            for m, sol in sols.items():
+                j = sol.to_json()
+                j["transitions"] = [t.to_json() for t in chosen[m]]
+                out["methods"][m] = j
+        _print_json(out)
+        return 0
+    head = f"{stack.name}  (T = {stack.temperature_K:g} K"
+    if stack.field_kV_per_cm:
+        head += f", field {stack.field_kV_per_cm:g} kV/cm"
+    print(head + ")")
+    if len(sols) == 1:
+        (m, sol), = sols.items()
+        print(f"\nStates ({m}; energies on the band-diagram scale, confinement from the band's lowest edge)")
+        print(_table(_state_rows(sol), ["band", "state", "energy eV", "conf. meV", "status", "lifetime"],
+                     ["<", "<", ">", ">", "<", ">"]))
+    else:
+        rows = []
+        for r in compare_methods(sols["exact"], sols["semiclassical"]):
+            def f(v, spec):
+                return "—" if v is None else format(v, spec)
+            rows.append([r["band"], r["label"], f(r["exact_eV"], ".6f"), f(r["semiclassical_eV"], ".6f"),
+                         f(r["difference_meV"], "+.3f"), f(r["difference_percent"], "+.2f")])
+        print("\nStates: exact vs semiclassical (difference = semiclassical - exact, carrier scale)")
+        print(_table(rows, ["band", "state", "exact eV", "semiclassical eV", "diff meV", "diff %"],
+                     ["<", "<", ">", ">", ">", ">"]))
+    for m, sol in sols.items():
+        for lev in sol.levels.values():
+            if lev.message:
+                print(f"note ({m}, {lev.band}): {lev.message}")
+            for n in lev.notes:
+                print(f"note ({m}, {lev.band}): {n}")
+            for mb in lev.minibands:
+                print(f"miniband {lev.band} {mb.index}: {mb.bottom_eV:.6f} .. {mb.top_eV:.6f} eV "
+                      f"(width {1e3 * mb.width_eV:.3f} meV, period {mb.period_nm:.3f} nm)")
+        for n in sol.notes:
+            print(f"note: {n}")
+    trans = chosen.get("exact", ())
+    if trans:
+        print("\nTransitions (strongest first; excitonic binding not included)")
+        print(_table(_transition_rows(trans), ["transition", "kind", "energy eV", "λ µm", "cm⁻¹", "THz",
+                                               "z nm", "strength"],
+                     ["<", "<", ">", ">", ">", ">", ">", "<"]))
+    for w in next(iter(sols.values())).profile.warnings:
+        print(f"warning: {w}")
+    if args.png:
+        print(f"wrote {args.png}")
+    return 0
+
+
+# ---------------------------------------------------------------------------
+# parser
+# ---------------------------------------------------------------------------
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, exit 2
+        self.exit(EXIT_USAGE, f"{self.prog}: error: {message}\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="qwell", description="Quantum-well layer-stack design: profiles, subbands, "
+                "transitions, sizing, sweeps and design-review reports.")
+    p.add_argument("--version", action="version", version=f"qwell {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    m = sub.add_parser("materials", help="list materials, or show one's parameters and sources")
+    m.add_argument("name", nargs="?", help="material, e.g. GaAs or Al0.3Ga0.7As")
+    m.add_argument("--temperature", default="300 K", help="temperature (default 300 K)")
+    m.add_argument("--json", action="store_true", help="machine-readable output")
+    m.set_defaults(func=cmd_materials)
+
+    pr = sub.add_parser("profile", help="band-edge profile of a stack")
+    pr.add_argument("stack", help="stack YAML file")
+    pr.add_argument("--json", action="store_true")
+    pr.add_argument("--png", metavar="FILE", help="write a band-edge plot")
+    pr.set_defaults(func=cmd_profile)
+
+    lv = sub.add_parser("levels", help="subband states and transitions of a stack")
+    lv.add_argument("stack", help="stack YAML file")
+    lv.add_argument("--band", default="all", choices=["conduction", "heavy_hole", "light_hole", "all"])
+    lv.add_argument("--method", default="exact", choices=["exact", "semiclassical", "both"])
+    lv.add_argument("--transition", action="append", metavar="e1-e2",
+                    help="show only this transition (repeatable)")
+    lv.add_argument("--json", action="store_true")
+    lv.add_argument("--png", metavar="FILE", help="write the absorption spectrum plot")
+    lv.add_argument("--linewidth", type=float, default=10.0, metavar="MEV",
+                    help="spectrum line FWHM in meV (default 10)")
+    lv.add_argument("--lineshape", default="lorentzian", choices=["lorentzian", "gaussian"])
+    lv.add_argument("--axis", default="wavelength", choices=["wavelength", "energy"])
+    lv.set_defaults(func=cmd_levels)
+
+    for extra in _EXTRA_COMMANDS:
+        extra(sub)
+    return p
+
+
+#: Functions that add further sub-commands (design, report); each takes the subparsers object.
+_EXTRA_COMMANDS: list = []
+
+
+def _register_optional():
+    for modname in ("qwell.design_cli", "qwell.report_cli"):
+        try:
+            mod = __import__(modname, fromlist=["register"])
+        except ImportError:
+            continue
+        _EXTRA_COMMANDS.append(mod.register)
+
+
+def main(argv=None) -> int:
+    _register_optional()
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return EXIT_USAGE
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", QwellWarning)
+        try:
+            rc = args.func(args)
+        except QwellError as exc:
+            print(f"qwell: error: {exc}", file=sys.stderr)
+            return EXIT_USAGE
+        except KeyboardInterrupt:
+            print("qwell: interrupted", file=sys.stderr)
+            return 130
+        except BrokenPipeError:
+            return 0
+        except Exception as exc:  # a bug: one line, details on request
+            if os.environ.get("QWELL_DEBUG"):
+                raise
+            print(f"qwell: internal error: {type(exc).__name__}: {exc} "
+                  "(set QWELL_DEBUG=1 for details; please report it)", file=sys.stderr)
+            return 1
+    seen = set()
+    for w in caught:
+        if issubclass(w.category, QwellWarning):
+            msg = str(w.message)
+            if msg not in seen:
+                seen.add(msg)
+                print(f"warning: {msg}", file=sys.stderr)
+    return rc
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

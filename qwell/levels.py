@@ -1,0 +1,196 @@
+"""Stack-level solving: a stack in, states of every band and transitions out.
+
+This is the Python API behind ``qwell levels``::
+
+    from qwell.stack import load_stack
+    from qwell.levels import solve_stack
+    sol = solve_stack(load_stack("layers/midir-emitter.yaml"))
+    sol.levels["conduction"]["e1"].energy_eV
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from .bands import BAND_NAMES
+from .errors import ParameterError
+from .profile import Profile, band_profile
+from .solvers import METHODS, solve
+
+__all__ = ["Solution", "solve_stack", "solve_profile", "BAND_CHOICES"]
+
+BAND_CHOICES = BAND_NAMES + ("all",)
+
+
+@dataclass(frozen=True)
+class Solution:
+    """States and transitions of one stack by one method.
+
+    Attributes
+    ----------
+    stack : qwell.stack.Stack
+    profile : Profile
+    method : str
+    levels : dict
+        Band name -> :class:`~qwell.solvers.results.Levels`.
+    transitions : tuple of qwell.optics.Transition
+        Intersubband (conduction) and interband lines, strongest first.
+    notes : tuple of str
+    """
+
+    stack: object
+    profile: Profile
+    method: str
+    levels: dict
+    transitions: tuple = ()
+    notes: tuple = field(default=())
+
+    @property
+    def states(self):
+        return [s for b in BAND_NAMES if b in self.levels for s in self.levels[b].states]
+
+    def state(self, label: str):
+        for s in self.states:
+            if s.label == label:
+                return s
+        raise KeyError(label)
+
+    def transition(self, name: str):
+        for t in self.transitions:
+            if t.name == name:
+                return t
+        raise ParameterError(f"no transition {name!r}; available: "
+                             + (", ".join(t.name for t in self.transitions) or "none"))
+
+    def to_json(self) -> dict:
+        return {
+            "stack": self.stack.name,
+            "temperature_K": self.stack.temperature_K,
+            "method": self.method,
+            "states": [_state_json(s) for s in self.states],
+            "transitions": [t.to_json() for t in self.transitions],
+            "minibands": [_miniband_json(m) for b in self.levels.values() for m in b.minibands],
+            "notes": list(self.notes) + [n for b in self.levels.values() for n in b.notes]
+                     + [b.message for b in self.levels.values() if b.message],
+        }
+
+
+def _state_json(s) -> dict:
+    return {"band": s.band, "label": s.label, "index": s.index,
+            "energy_eV": float(s.energy_eV), "bound": bool(s.bound),
+            "lifetime_s": None if s.lifetime_s is None else float(s.lifetime_s),
+            "tolerance_eV": float(s.tolerance_eV), "converged": bool(s.converged),
+            **({"region": s.region} if s.region is not None else {}),
+            **({"validity": float(s.validity)} if s.validity is not None else {})}
+
+
+def _miniband_json(m) -> dict:
+    return {"band": m.band, "index": m.index, "bottom_eV": m.bottom_eV, "top_eV": m.top_eV,
+            "width_eV": m.width_eV, "repeat_index": m.repeat_index, "period_nm": m.period_nm}
+
+
+def _bands_for(which) -> tuple:
+    if which is None or which == "all":
+        return BAND_NAMES
+    if isinstance(which, str):
+        which = (which,)
+    for b in which:
+        if b not in BAND_NAMES:
+            raise ParameterError(f"unknown band {b!r}; expected one of: " + ", ".join(BAND_CHOICES))
+    return tuple(which)
+
+
+def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
+                  transitions: bool = True, tolerance_eV: float = 1e-7,
+                  wavefunctions: bool = True) -> Solution:
+    """Solve the bands of a profile and collect transitions.
+
+    Parameters
+    ----------
+    profile : Profile
+    bands : str or sequence of str, optional
+        'conduction', 'heavy_hole', 'light_hole' or 'all' (default).
+    method : {'exact', 'semiclassical'}
+    transitions : bool
+        Compute intersubband and interband transitions (needs wavefunctions;
+        only for the exact method).
+    tolerance_eV : float
+        Energy tolerance of each state [eV].
+    """
+    if method not in METHODS:
+        raise ParameterError(f"unknown method {method!r}; expected one of: " + ", ".join(METHODS))
+    notes = []
+    levels = {}
+    for b in _bands_for(bands):
+        if b not in profile.bands:
+            notes.append(f"{b}: not defined in every layer (no valence parameters); skipped")
+            continue
+        opts = {"tolerance_eV": tolerance_eV}
+        if method == "exact":
+            opts["wavefunctions"] = wavefunctions and transitions
+        levels[b] = solve(profile.bands[b], method, **opts)
+    trans = ()
+    if transitions and method == "exact":
+        trans = _transitions(profile, levels)
+    return Solution(stack=profile.stack, profile=profile, method=method, levels=levels,
+                    transitions=trans, notes=tuple(notes))
+
+
+def _transitions(profile: Profile, levels: dict) -> tuple:
+    from . import optics
+
+    out = []
+    if "conduction" in levels and len(levels["conduction"]) >= 2:
+        out += optics.intersubband_transitions(levels["conduction"], profile.bands["conduction"])
+    if "conduction" in levels and len(levels["conduction"]):
+        for hb in ("heavy_hole", "light_hole"):
+            if hb in levels and len(levels[hb]):
+                out += optics.interband_transitions(levels["conduction"], profile.bands["conduction"],
+                                                    levels[hb], profile.bands[hb])
+    out.sort(key=lambda t: -optics.strength(t))
+    return tuple(out)
+
+
+def solve_stack(stack, **options) -> Solution:
+    """Build the profile of ``stack`` and solve it (see :func:`solve_profile`)."""
+    return solve_profile(band_profile(stack), **options)
+
+
+def compare_methods(exact: Solution, semi: Solution) -> list[dict]:
+    """Per-state comparison of two solutions: energies and their difference.
+
+    Returns a list of dicts with ``label``, ``band``, ``exact_eV``,
+    ``semiclassical_eV``, ``difference_meV`` (semiclassical - exact on the
+    carrier scale, so positive means the estimate lies too high in its band)
+    and ``difference_percent`` (relative to the exact confinement energy
+    above the band's potential minimum).
+    """
+    rows = []
+    for b, lev in exact.levels.items():
+        other = semi.levels.get(b)
+        band = exact.profile.bands[b]
+        vmin = band.potential_min_eV
+        for s in lev.states:
+            try:
+                t = other[s.label] if other is not None else None
+            except KeyError:
+                t = None
+            row = {"band": b, "label": s.label, "exact_eV": s.energy_eV,
+                   "semiclassical_eV": None if t is None else t.energy_eV,
+                   "difference_meV": None, "difference_percent": None}
+            if t is not None:
+                d = (t.carrier_energy_eV - s.carrier_energy_eV)
+                row["difference_meV"] = 1e3 * d
+                conf = s.carrier_energy_eV - vmin
+                row["difference_percent"] = 100.0 * d / conf if conf > 0 else None
+            rows.append(row)
+        if other is not None:
+            seen = {s.label for s in lev.states}
+            for t in other.states:
+                if t.label not in seen:
+                    rows.append({"band": b, "label": t.label, "exact_eV": None,
+                                 "semiclassical_eV": t.energy_eV, "difference_meV": None,
+                                 "difference_percent": None})
+    return rows
+
+

@@ -1,0 +1,421 @@
+"""Band-edge profiles: a layer stack turned into band edges along z.
+
+:func:`band_profile` resolves each layer's material at the stack temperature
+(graded layers point by point), strains it pseudomorphically to the substrate,
+adds the uniform field tilt, and returns a :class:`Profile` holding
+
+* one exact :class:`~qwell.bands.Band` per carrier (conduction, heavy hole,
+  light hole) with one piece per layer, for the solvers, and
+* sampled arrays (conduction, heavy- and light-hole edges, masses, gap) for
+  plots and JSON, with both sides of every interface so that steps are
+  vertical.
+
+Conventions: z = 0 nm at the start of the first layer, z increasing in
+growth order; a field ``F`` [kV/cm] adds ``+F * 1e-4 * z`` eV (z in nm) to
+every band edge over the listed layers, and the first and last layers
+continue flat beyond them as semi-infinite claddings.
+
+References
+----------
+.. [1] C. G. Van de Walle, "Band lineups and deformation potentials in the
+   model-solid theory", Phys. Rev. B 39, 1871 (1989).
+.. [2] S. L. Chuang, Physics of Optoelectronic Devices, Wiley (1995), ch. 4.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+from scipy.interpolate import CubicSpline
+
+from .bands import BAND_NAMES, Band, Piece, RepeatInfo
+from .errors import MaterialError, StackError
+
+__all__ = ["LayerProfile", "Profile", "band_profile", "FIELD_EV_PER_NM_PER_KV_CM"]
+
+#: Potential energy slope of an electron per unit field: 1 kV/cm = 1e-4 V/nm.
+FIELD_EV_PER_NM_PER_KV_CM = 1.0e-4
+
+_GRADE_SAMPLES = 257  # samples of a graded layer before spline interpolation
+
+
+@dataclass(frozen=True)
+class LayerProfile:
+    """What the profile knows of one layer.
+
+    Attributes
+    ----------
+    index : int
+        0-based position in the expanded stack.
+    label : str
+        Unique display label (name, ``name#2`` in repeats, or ``L7``).
+    name : str or None
+        Name as written in the stack.
+    material : str
+        Material name, or ``'A -> B (shape)'`` for a grade.
+    start_nm, end_nm : float
+        Boundaries [nm].
+    strain_xx, strain_zz : float
+        Pseudomorphic strain (0 without substrate); for a grade, the mean.
+    critical_thickness_nm : float
+        Matthews–Blakeslee critical thickness [nm] (inf if unstrained).
+    monolayer_nm : float or None
+        a/2 of the layer material [nm].
+    warnings : tuple of str
+    """
+
+    index: int
+    label: str
+    name: str | None
+    material: str
+    start_nm: float
+    end_nm: float
+    strain_xx: float = 0.0
+    strain_zz: float = 0.0
+    critical_thickness_nm: float = math.inf
+    monolayer_nm: float | None = None
+    warnings: tuple = ()
+
+    @property
+    def thickness_nm(self) -> float:
+        return self.end_nm - self.start_nm
+
+    def to_json(self) -> dict:
+        return {"name": self.label, "material": self.material, "start_nm": self.start_nm,
+                "end_nm": self.end_nm, "thickness_nm": self.thickness_nm,
+                "strain_xx": self.strain_xx, "strain_zz": self.strain_zz,
+                "critical_thickness_nm": (None if math.isinf(self.critical_thickness_nm)
+                                          else self.critical_thickness_nm),
+                "warnings": list(self.warnings)}
+
+
+@dataclass(frozen=True)
+class Profile:
+    """Band edges of a stack along z (see module docstring).
+
+    Attributes
+    ----------
+    stack : qwell.stack.Stack
+    layers : tuple of LayerProfile
+    bands : dict
+        Band name -> :class:`~qwell.bands.Band`; a band is missing when some
+        layer does not define its edge and mass (user materials).
+    z_nm : ndarray
+        Sample positions [nm], interfaces included twice (both sides).
+    conduction_edge_eV, heavy_hole_edge_eV, light_hole_edge_eV : ndarray
+        Band edges [eV] on the common absolute scale (NaN where undefined).
+    electron_mass, heavy_hole_mass, light_hole_mass : ndarray
+        Band-edge masses [m0] along [001].
+    gap_eV : ndarray
+        Local (strained) gap Ec - max(Ehh, Elh) [eV].
+    warnings : tuple of str
+        Stack-level warnings (also repeated per layer).
+    """
+
+    stack: object
+    layers: tuple
+    bands: dict
+    z_nm: np.ndarray = field(repr=False)
+    conduction_edge_eV: np.ndarray = field(repr=False)
+    heavy_hole_edge_eV: np.ndarray = field(repr=False)
+    light_hole_edge_eV: np.ndarray = field(repr=False)
+    electron_mass: np.ndarray = field(repr=False)
+    heavy_hole_mass: np.ndarray = field(repr=False)
+    light_hole_mass: np.ndarray = field(repr=False)
+    gap_eV: np.ndarray = field(repr=False)
+    warnings: tuple = ()
+
+    @property
+    def total_thickness_nm(self) -> float:
+        return self.layers[-1].end_nm - self.layers[0].start_nm
+
+    def band(self, name: str) -> Band:
+        """The :class:`Band` of ``name``; MaterialError if a layer lacks its parameters."""
+        try:
+            return self.bands[name]
+        except KeyError:
+            raise MaterialError(f"band {name!r} is not defined in every layer of this stack "
+                                "(user materials need valence_edge and hole masses)") from None
+
+    def to_json(self) -> dict:
+        def arr(a):
+            return [None if not np.isfinite(v) else round(float(v), 9) for v in a]
+        return {
+            "stack": self.stack.name,
+            "temperature_K": self.stack.temperature_K,
+            "field_kV_per_cm": self.stack.field_kV_per_cm,
+            "substrate": self.stack.substrate,
+            "z_nm": arr(self.z_nm),
+            "conduction_edge_eV": arr(self.conduction_edge_eV),
+            "heavy_hole_edge_eV": arr(self.heavy_hole_edge_eV),
+            "light_hole_edge_eV": arr(self.light_hole_edge_eV),
+            "electron_mass": arr(self.electron_mass),
+            "heavy_hole_mass": arr(self.heavy_hole_mass),
+            "light_hole_mass": arr(self.light_hole_mass),
+            "layers": [lay.to_json() for lay in self.layers],
+            "warnings": list(self.warnings),
+        }
+
+
+# ---------------------------------------------------------------------------
+# per-layer edge functions
+# ---------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class _Edges:
+    """Band data of one material point (strained), floats or NaN."""
+
+    ec: float
+    ehh: float
+    elh: float
+    me: float
+    mhh: float
+    mlh: float
+    gap: float
+    eps_xx: float
+    eps_zz: float
+
+
+def _nan(v):
+    return math.nan if v is None else float(v)
+
+
+def _edges_of(mat, substrate_mat) -> _Edges:
+    """Strained band edges of one material (unstrained without substrate)."""
+    from .strain import strain as _strain
+
+    ec = _nan(mat.conduction_edge_eV)
+    ev = _nan(mat.valence_edge_eV)
+    eps_xx = eps_zz = 0.0
+    ehh = elh = ev
+    if (substrate_mat is not None and mat.lattice_constant_nm is not None
+            and substrate_mat.lattice_constant_nm is not None
+            and abs(mat.lattice_constant_nm - substrate_mat.lattice_constant_nm) > 0):
+        try:
+            s = _strain(mat, substrate_mat)
+        except (TypeError, ValueError, MaterialError):
+            s = None
+        if s is not None:
+            eps_xx, eps_zz = s.eps_xx, s.eps_zz
+            ec = ec + s.delta_conduction_eV
+            ehh = ev + s.delta_heavy_hole_eV
+            elh = ev + s.delta_light_hole_eV
+    top = np.nanmax([ehh, elh]) if not (math.isnan(ehh) and math.isnan(elh)) else math.nan
+    gap = ec - top if not (math.isnan(ec) or math.isnan(top)) else _nan(mat.band_gap_eV)
+    return _Edges(ec, ehh, elh, _nan(mat.electron_mass), _nan(mat.heavy_hole_mass),
+                  _nan(mat.light_hole_mass), gap, eps_xx, eps_zz)
+
+
+class _LayerFunctions:
+    """Band data of one layer as functions of z (exact for uniform layers)."""
+
+    def __init__(self, edges_at: Callable[[float], _Edges], z0: float, z1: float, uniform: bool):
+        self.z0, self.z1, self.uniform = z0, z1, uniform
+        if uniform:
+            self.const = edges_at(0.0)
+            self.splines = None
+        else:
+            self.const = None
+            t = np.linspace(0.0, 1.0, _GRADE_SAMPLES)
+            pts = [edges_at(float(ti)) for ti in t]
+            z = z0 + t * (z1 - z0)
+            self.splines = {}
+            for attr in ("ec", "ehh", "elh", "me", "mhh", "mlh", "gap", "eps_xx", "eps_zz"):
+                vals = np.array([getattr(p, attr) for p in pts])
+                if np.all(np.isfinite(vals)):
+                    self.splines[attr] = CubicSpline(z, vals)
+                else:
+                    self.splines[attr] = None
+            self.ends = (pts[0], pts[-1])
+
+    def value(self, attr: str, z):
+        z = np.asarray(z, dtype=float)
+        if self.uniform:
+            return np.full_like(z, getattr(self.const, attr))
+        sp = self.splines[attr]
+        if sp is None:
+            return np.full_like(z, math.nan)
+        return sp(np.clip(z, self.z0, self.z1))
+
+    def defined(self, attr: str) -> bool:
+        if self.uniform:
+            return not math.isnan(getattr(self.const, attr))
+        return self.splines[attr] is not None
+
+    def mean(self, attr: str) -> float:
+        if self.uniform:
+            return getattr(self.const, attr)
+        z = np.linspace(self.z0, self.z1, 65)
+        return float(np.mean(self.value(attr, z)))
+
+
+# Carrier band -> (edge attribute, mass attribute, carrier sign)
+_BAND_ATTRS = {
+    "conduction": ("ec", "me", +1),
+    "heavy_hole": ("ehh", "mhh", -1),
+    "light_hole": ("elh", "mlh", -1),
+}
+
+
+def _layer_material_fn(stack, layer):
+    """(f(t) -> Material, display name, uniform?) for one layer."""
+    from .materials import grade_function
+
+    T = stack.temperature_K
+    overrides = dict(layer.overrides or {})
+    if layer.grade is None:
+        mat = stack.material_of(layer)
+        return (lambda t, _m=mat: _m), mat.name, True
+    g = layer.grade
+    fn = grade_function(g.start, g.end, T, stack.user_materials)
+    if overrides:
+        def at(t, _fn=fn, _o=overrides):
+            return _fn(float(g.fraction(np.array([t]))[0])).with_overrides(**_o)
+    else:
+        def at(t, _fn=fn):
+            return _fn(float(g.fraction(np.array([t]))[0]))
+    name = f"{g.start} -> {g.end} ({g.shape}{', vertex ' + g.vertex if g.shape != 'linear' else ''})"
+    return at, name, False
+
+
+def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] | None = None,
+                 sample_step_nm: float = 0.05) -> Profile:
+    """Turn a :class:`~qwell.stack.Stack` into band-edge profiles.
+
+    Parameters
+    ----------
+    stack : qwell.stack.Stack
+        A validated stack.
+    electrostatic_eV : callable, optional
+        Extra electron potential energy -e*phi(z) [eV] as a function of z [nm]
+        (from a Schrödinger–Poisson loop), added to every band edge.  Every
+        piece then becomes 'smooth'.
+    sample_step_nm : float
+        Step of the sampled arrays [nm].
+
+    Returns
+    -------
+    Profile
+
+    Notes
+    -----
+    Strain (with a substrate): eps_xx = (a_sub - a)/a, eps_zz = -2 C12/C11
+    eps_xx; the conduction edge moves by a_c tr(eps), the heavy- and
+    light-hole edges by -P -/+ Q (light hole with the spin–orbit coupled
+    form); see :mod:`qwell.strain` and [1]_, [2]_ of the module docstring.
+    """
+    from .materials import get_material
+    from .strain import critical_thickness_nm
+
+    T = stack.temperature_K
+    substrate_mat = None
+    if stack.substrate:
+        substrate_mat = get_material(stack.substrate, T, stack.user_materials)
+    slope = stack.field_kV_per_cm * FIELD_EV_PER_NM_PER_KV_CM
+
+    funcs: list[_LayerFunctions] = []
+    layer_profiles: list[LayerProfile] = []
+    warnings: list[str] = []
+    z = 0.0
+    for layer in stack.layers:
+        z0, z1 = z, z + layer.thickness_nm
+        try:
+            at, display, uniform = _layer_material_fn(stack, layer)
+            lf = _LayerFunctions(lambda t, _at=at: _edges_of(_at(t), substrate_mat), z0, z1, uniform)
+        except MaterialError as exc:
+            raise StackError(str(exc), file=stack.path, line=layer.line,
+                             key=f"layers[{layer.index}]") from None
+        funcs.append(lf)
+        lw: list[str] = []
+        mats = [at(0.0), at(1.0)] if not uniform else [at(0.0)]
+        ml = mats[0].monolayer_nm
+        hc = math.inf
+        if substrate_mat is not None:
+            if any(m.lattice_constant_nm is None for m in mats):
+                lw.append("no lattice constant: treated as unstrained")
+            else:
+                try:
+                    hc = min(critical_thickness_nm(m, substrate_mat) for m in mats)
+                except (TypeError, ValueError, MaterialError):
+                    hc = math.inf
+                if layer.thickness_nm > hc:
+                    lw.append(f"thicker ({layer.thickness_nm:.3g} nm) than its Matthews–Blakeslee "
+                              f"critical thickness ({hc:.3g} nm): it may relax by misfit dislocations")
+        for m in mats:
+            gx = getattr(m, "band_gap_X_eV", None)
+            if gx is not None and m.band_gap_eV is not None and gx < m.band_gap_eV:
+                lw.append(f"{m.name} is indirect (X gap {gx:.3f} eV below the Γ gap "
+                          f"{m.band_gap_eV:.3f} eV): a single-Γ-valley model of this layer is unreliable")
+                break
+        for w in lw:
+            warnings.append(f"layer {layer.label}: {w}")
+        layer_profiles.append(LayerProfile(
+            index=layer.index, label=layer.label, name=layer.name, material=display,
+            start_nm=z0, end_nm=z1, strain_xx=float(lf.mean("eps_xx")),
+            strain_zz=float(lf.mean("eps_zz")), critical_thickness_nm=hc,
+            monolayer_nm=ml, warnings=tuple(lw)))
+        z = z1
+
+    # -- bands ----------------------------------------------------------------
+    bands = {}
+    labels = tuple(lp.label for lp in layer_profiles)
+    repeats = tuple(
+        RepeatInfo(z_start_nm=layer_profiles[r.first_layer].start_nm,
+                   period_nm=sum(stack.layers[r.first_layer + k].thickness_nm
+                                 for k in range(r.layers_per_period)),
+                   count=r.count, first_layer=r.first_layer, layers_per_period=r.layers_per_period)
+        for r in stack.repeats)
+    for bname in BAND_NAMES:
+        e_attr, m_attr, sign = _BAND_ATTRS[bname]
+        if not all(f.defined(e_attr) and f.defined(m_attr) for f in funcs):
+            continue
+        nonpar = bool(stack.nonparabolicity) and bname == "conduction"
+        pieces = []
+        for i, f in enumerate(funcs):
+            has_gap = nonpar and f.defined("gap")
+            if f.uniform and electrostatic_eV is None:
+                c = f.const
+                v0 = sign * (getattr(c, e_attr) + slope * f.z0)
+                pieces.append(Piece(z_start_nm=f.z0, z_end_nm=f.z1, layer_index=i,
+                                    kind="flat" if slope == 0 else "linear",
+                                    edge_start_eV=v0, edge_slope_eV_per_nm=sign * slope,
+                                    mass_m0=getattr(c, m_attr),
+                                    gap_eV=c.gap if has_gap else None))
+            else:
+                def pot(zz, _f=f, _a=e_attr, _s=sign):
+                    v = _f.value(_a, zz) + slope * np.asarray(zz, dtype=float)
+                    if electrostatic_eV is not None:
+                        v = v + electrostatic_eV(np.asarray(zz, dtype=float))
+                    return _s * v
+
+                def mass(zz, _f=f, _a=m_attr):
+                    return _f.value(_a, zz)
+
+                gap = (lambda zz, _f=f: _f.value("gap", zz)) if has_gap else None
+                pieces.append(Piece(z_start_nm=f.z0, z_end_nm=f.z1, layer_index=i, kind="smooth",
+                                    potential_fn=pot, mass_fn=mass, gap_fn=gap))
+        bands[bname] = Band(name=bname, pieces=tuple(pieces), carrier_sign=sign,
+                            nonparabolic=nonpar, repeats=repeats, layer_names=labels)
+
+    # -- samples --------------------------------------------------------------
+    zs, cols = [], {k: [] for k in ("ec", "ehh", "elh", "me", "mhh", "mlh", "gap")}
+    for f in funcs:
+        n = max(2, int(math.ceil((f.z1 - f.z0) / sample_step_nm)) + 1)
+        zz = np.linspace(f.z0, f.z1, n)
+        zs.append(zz)
+        extra = electrostatic_eV(zz) if electrostatic_eV is not None else 0.0
+        for k in cols:
+            v = f.value(k, zz)
+            if k in ("ec", "ehh", "elh"):
+                v = v + slope * zz + extra
+            cols[k].append(v)
+    zcat = np.concatenate(zs)
+    cat = {k: np.concatenate(v) for k, v in cols.items()}
+    return Profile(stack=stack, layers=tuple(layer_profiles), bands=bands, z_nm=zcat,
+                   conduction_edge_eV=cat["ec"], heavy_hole_edge_eV=cat["ehh"],
+                   light_hole_edge_eV=cat["elh"], electron_mass=cat["me"],
+                   heavy_hole_mass=cat["mhh"], light_hole_mass=cat["mlh"], gap_eV=cat["gap"],
+                   warnings=tuple(warnings))
