@@ -1,0 +1,49 @@
+"""Materials database of qwell: III-V binaries, ternaries and quaternaries.
+
+Parameters come mainly from Vurgaftman, Meyer and Ram-Mohan, J. Appl. Phys.
+89, 5815 (2001) (entered from memory of the tables, see
+``data/sources.yaml``); static dielectric constants from the Levinshtein et
+al. handbook (also from memory).  Every value keeps its source key
+(:attr:`Material.sources`, :meth:`Material.parameter_sources`).
+
+Conventions: energies in eV on the absolute valence-band scale of the main
+source (InSb valence-band maximum = 0), lengths in nm, masses in m0, elastic
+constants in GPa; ``av_eV`` uses the a_v > 0 convention (gap deformation
+``ac - av``).  Interpolation schemes are described in
+:mod:`qwell.materials._database`.
+
+Examples
+--------
+>>> from qwell.materials import get_material
+>>> m = get_material("Al0.3Ga0.7As", temperature_K=300)
+>>> round(m.band_gap_eV, 3)
+1.841
+"""
+
+from ._database import (
+    PARAM_FIELDS,
+    SOURCES,
+    USER_KEYS,
+    Material,
+    citation,
+    get_material,
+    grade_function,
+    is_known_material,
+    known_materials,
+    parse_formula,
+    user_material,
+)
+
+__all__ = [
+    "Material",
+    "get_material",
+    "parse_formula",
+    "known_materials",
+    "user_material",
+    "USER_KEYS",
+    "PARAM_FIELDS",
+    "grade_function",
+    "citation",
+    "SOURCES",
+    "is_known_material",
+]
