@@ -1,0 +1,1335 @@
+"""Layer stacks: the YAML stack file, read, checked and expanded.
+
+A stack file lists the layers of a quantum-well structure in growth order.
+:func:`load_stack` reads a file, :func:`stack_from_text` a string and
+:func:`stack_from_mapping` an already parsed dictionary (the cheap path used
+by design workflows that change :attr:`Stack.raw` and load it again).  All
+three return a frozen :class:`Stack` whose layers are fully expanded (repeat
+blocks unrolled) and whose quantities are plain floats in the internal units
+of qwell (nm, eV, K, kV/cm, cm^-3, cm^-2).
+
+File format (every dimensional value carries its unit)::
+
+    name: detector well            # optional, default: the file stem
+    temperature: 77 K              # default 300 K
+    substrate: GaAs                # optional
+    field: 12 kV/cm                # optional uniform field along +z
+    nonparabolicity: true          # default true
+    self_consistent: false         # default false
+    fermi_level: 0.05 eV           # optional
+    materials:                     # optional user materials (keys of USER_KEYS)
+      wall: {conduction_edge: 0.30 eV, electron_mass: 0.067}
+    layers:
+      - {material: Al0.30Ga0.70As, thickness: 30 nm}
+      - {material: GaAs, thickness: 23 ML, name: well}
+      - repeat: 4
+        layers:
+          - {material: In0.53Ga0.47As, thickness: 5.2 nm}
+          - {material: In0.52Al0.48As, thickness: 2.1 nm,
+             doping: {donors: 2e17 cm^-3, from: 0.5 nm, to: 1.5 nm}}
+      - grade: {from: Al0.30Ga0.70As, to: GaAs, shape: linear}
+        thickness: 10 nm
+      - {material: GaAs, thickness: 20 nm, doping: {sheet: 4e11 cm^-2, at: 10 nm}}
+
+Every problem raises :class:`~qwell.errors.StackError` whose text is one
+line, ``FILE:LINE: KEY: what is wrong; what is expected``.  Keys are dotted
+paths with 0-based list indices as written in the file, e.g.
+``layers[3].layers[1].thickness``.
+
+The YAML is read with a :class:`yaml.SafeLoader` subclass that records the
+line of every mapping key and sequence item in a side table (the parsed data
+stay plain Python), refuses duplicate keys, and refuses alias expansion
+beyond small limits (the "billion laughs" document).
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import math
+import os
+import re
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+from types import MappingProxyType
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+import yaml
+
+from .errors import MaterialError, StackError, UnitError
+from .units import expected_words, parse_quantity, thickness_nm as _thickness_nm, to_float
+
+__all__ = [
+    "Grade",
+    "Doping",
+    "Layer",
+    "RepeatBlock",
+    "Stack",
+    "load_stack",
+    "stack_from_text",
+    "stack_from_mapping",
+    "dump_stack_yaml",
+    "MAX_FILE_BYTES",
+    "MAX_LAYERS",
+    "MAX_TOTAL_THICKNESS_NM",
+    "MAX_REPEAT_DEPTH",
+]
+
+# -- limits -------------------------------------------------------------------
+#: Largest stack file accepted [bytes].
+MAX_FILE_BYTES = 4 * 1024 * 1024
+#: Most layers after the expansion of repeat blocks.
+MAX_LAYERS = 100_000
+#: Largest total thickness [nm] (100 um).
+MAX_TOTAL_THICKNESS_NM = 100_000.0
+#: Deepest nesting of repeat blocks (a repeat inside a repeat is fine).
+MAX_REPEAT_DEPTH = 2
+#: Most YAML aliases (``*name``) in one document.
+MAX_ALIASES = 100
+#: Most YAML nodes in one document, as written and after alias expansion.
+MAX_YAML_NODES = 1_000_000
+
+_DEFAULT_TEMPERATURE_K = 300.0
+
+_TOP_KEYS = ("name", "temperature", "substrate", "field", "nonparabolicity",
+             "self_consistent", "fermi_level", "materials", "layers")
+_UNIFORM_KEYS = ("material", "thickness", "name", "doping")
+_GRADE_LAYER_KEYS = ("grade", "thickness", "name", "doping")
+_GRADE_KEYS = ("from", "to", "shape", "vertex")
+_REPEAT_KEYS = ("repeat", "layers")
+_DOPING_KEYS = ("donors", "acceptors", "from", "to", "sheet", "sheet_acceptors", "at",
+                "donor_level")
+_NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_-]*$")
+_RESERVED_LABEL_RE = re.compile(r"^L\d+$")
+
+
+# -- result objects -----------------------------------------------------------
+@dataclass(frozen=True)
+class Grade:
+    """A graded layer from material ``start`` to material ``end``.
+
+    Attributes
+    ----------
+    start, end : str
+        Material names at the start (growth side) and end of the layer.
+    shape : {'linear', 'parabolic'}
+    vertex : {'start', 'end'}
+        Where a parabolic grade has its vertex (zero slope); 'start' for a
+        linear grade.
+    """
+
+    start: str
+    end: str
+    shape: str = "linear"
+    vertex: str = "start"
+
+    def fraction(self, t: np.ndarray) -> np.ndarray:
+        """Fraction of the way from ``start`` to ``end`` at relative position t.
+
+        Parameters
+        ----------
+        t : array_like
+            Relative position in the layer, 0 at its start and 1 at its end.
+
+        Returns
+        -------
+        numpy.ndarray
+            ``t`` (linear), ``t**2`` (parabolic, vertex at the start) or
+            ``1 - (1 - t)**2`` (parabolic, vertex at the end).
+        """
+        t = np.asarray(t, dtype=float)
+        if self.shape == "linear":
+            return t.copy()
+        if self.vertex == "end":
+            return 1.0 - (1.0 - t) ** 2
+        return t * t
+
+
+@dataclass(frozen=True)
+class Doping:
+    """Doping of one layer (densities >= 0).
+
+    Attributes
+    ----------
+    donors_cm3, acceptors_cm3 : float
+        Volume densities [cm^-3], uniform over ``[from_nm, to_nm]``.
+    from_nm, to_nm : float or None
+        Extent of the volume doping within the layer [nm from the layer
+        start]; None means the layer edge.
+    sheet_cm2, sheet_acceptors_cm2 : float
+        Delta (sheet) densities of donors and acceptors [cm^-2] at ``at_nm``.
+    at_nm : float or None
+        Position of the sheet doping within the layer [nm from its start].
+    donor_level_eV : float or None
+        Donor binding energy below Ec [eV]; None means complete ionisation.
+    """
+
+    donors_cm3: float = 0.0
+    acceptors_cm3: float = 0.0
+    from_nm: float | None = None
+    to_nm: float | None = None
+    sheet_cm2: float = 0.0
+    sheet_acceptors_cm2: float = 0.0
+    at_nm: float | None = None
+    donor_level_eV: float | None = None
+
+
+@dataclass(frozen=True)
+class Layer:
+    """One layer of the expanded stack.
+
+    Attributes
+    ----------
+    index : int
+        0-based position in the expanded stack.
+    name : str or None
+        Name as written (shared by the copies of a repeat block).
+    label : str
+        Unique display label: the name for its first copy, ``name#k`` for the
+        k-th copy (k >= 2), ``L<index+1>`` for an unnamed layer.
+    material : str or None
+        Material of a uniform layer; None for a grade.
+    grade : Grade or None
+    thickness_nm : float
+        Thickness [nm].
+    overrides : Mapping[str, float]
+        Material field -> value in internal units (keys of ``USER_KEYS``).
+    doping : Doping or None
+    repeat_block : int or None
+        Index into :attr:`Stack.repeats` of the innermost block holding it.
+    period : int or None
+        0-based period within that block.
+    line : int or None
+        1-based YAML line of the layer entry.
+    thickness_spec : str
+        The thickness as written, e.g. ``'23 ML'``.
+    """
+
+    index: int
+    name: str | None
+    label: str
+    material: str | None
+    grade: Grade | None
+    thickness_nm: float
+    overrides: Mapping[str, float] = field(default_factory=lambda: MappingProxyType({}),
+                                           hash=False)
+    doping: Doping | None = None
+    repeat_block: int | None = None
+    period: int | None = None
+    line: int | None = None
+    thickness_spec: str = ""
+
+
+@dataclass(frozen=True)
+class RepeatBlock:
+    """A repeat block after expansion.
+
+    Attributes
+    ----------
+    index : int
+        Position in :attr:`Stack.repeats`.
+    count : int
+        Number of periods.
+    first_layer : int
+        Index of the first layer of the first period.
+    layers_per_period : int
+        Expanded layers in one period (nested repeats included).
+    line : int or None
+        YAML line of the ``repeat`` entry.
+
+    A nested block appears once per period of its outer block, each with its
+    own ``first_layer``.
+    """
+
+    index: int
+    count: int
+    first_layer: int
+    layers_per_period: int
+    line: int | None = None
+
+
+@dataclass(frozen=True)
+class Stack:
+    """A validated, expanded layer stack (see the module docstring).
+
+    Attributes
+    ----------
+    name : str
+    path : str or None
+        File it was read from.
+    sha256 : str or None
+        Hex digest of the file bytes (or of the UTF-8 text); None for a mapping.
+    temperature_K : float
+    substrate : str or None
+    field_kV_per_cm : float
+        Uniform field along +z [kV/cm].
+    nonparabolicity : bool
+    self_consistent : bool
+    fermi_level_eV : float or None
+    user_materials : Mapping[str, Material]
+        User-defined materials, built at ``temperature_K``.
+    layers : tuple of Layer
+    repeats : tuple of RepeatBlock
+    raw : Mapping
+        The parsed YAML (plain Python) for writing modified stacks; change a
+        copy and load it with :func:`stack_from_mapping`.
+    """
+
+    name: str
+    path: str | None
+    sha256: str | None
+    temperature_K: float
+    substrate: str | None
+    field_kV_per_cm: float
+    nonparabolicity: bool
+    self_consistent: bool
+    fermi_level_eV: float | None
+    user_materials: Mapping[str, Any] = field(hash=False)
+    layers: tuple
+    repeats: tuple
+    raw: Mapping = field(repr=False, compare=False)
+
+    @property
+    def total_thickness_nm(self) -> float:
+        """Sum of all layer thicknesses [nm]."""
+        return float(math.fsum(layer.thickness_nm for layer in self.layers))
+
+    @property
+    def layer_names(self) -> tuple:
+        """Written layer names in order of first appearance."""
+        seen = {}
+        for layer in self.layers:
+            if layer.name is not None:
+                seen.setdefault(layer.name, None)
+        return tuple(seen)
+
+    def layer(self, name: str) -> list:
+        """All copies of the layer written with ``name`` (growth order).
+
+        Raises
+        ------
+        StackError
+            If no layer has that name; the message lists the names.
+        """
+        found = [layer for layer in self.layers if layer.name == name]
+        if not found:
+            names = self.layer_names
+            hint = _did_you_mean(str(name), names)
+            listed = ", ".join(repr(n) for n in names) if names else "none"
+            raise StackError(f"no layer named {name!r}{hint}; layer names: {listed}",
+                             file=self.path, key="layers")
+        return found
+
+    def material_of(self, layer):
+        """Material of a uniform layer at the stack temperature, overrides applied.
+
+        Parameters
+        ----------
+        layer : Layer, int or str
+            The layer, its index, or a written name (first copy).
+
+        Raises
+        ------
+        StackError
+            For a graded layer (use ``grade_function`` with
+            :attr:`user_materials` and :meth:`Grade.fraction`).
+        """
+        if isinstance(layer, str):
+            layer = self.layer(layer)[0]
+        elif isinstance(layer, (int, np.integer)):
+            layer = self.layers[int(layer)]
+        if layer.material is None:
+            raise StackError(f"layer {layer.label} is graded and has no single material; "
+                             "expected a uniform layer", file=self.path, line=layer.line,
+                             key=f"layers[{layer.index}]")
+        return _resolved_material(layer.material, self.temperature_K, self.user_materials,
+                                  layer.overrides)
+
+
+# -- material look-ups (cached) -------------------------------------------------
+def _materials_api():
+    from . import materials as m  # imported lazily: written alongside this module
+    return m
+
+
+@lru_cache(maxsize=4096)
+def _is_builtin_name(name: str) -> bool:
+    return bool(_materials_api().is_known_material(name))
+
+
+def _lookup_material(name: str, temperature_K: float, user_materials: Mapping):
+    if user_materials and name in user_materials:
+        return user_materials[name]
+    # Built-in names are looked up without the user materials, so that a bad
+    # composition keeps its own message; an unknown name also gets the close
+    # user-material names as suggestions.  get_material caches by (name,
+    # temperature) and repeats its validity warnings on every call.
+    try:
+        return _materials_api().get_material(name, temperature_K)
+    except MaterialError as exc:
+        text = _one_line(exc)
+        if user_materials and text.startswith("unknown material"):
+            close = difflib.get_close_matches(str(name), list(user_materials), n=3, cutoff=0.6)
+            if close:
+                names = ", ".join(repr(c) for c in close)
+                raise MaterialError(f"{text.split(';')[0]}; did you mean the user material "
+                                    f"{names}?") from None
+        raise
+
+
+def _apply_overrides(mat, overrides: Mapping):
+    if not overrides:
+        return mat
+    if hasattr(mat, "with_overrides"):
+        return mat.with_overrides(**dict(overrides))
+    import dataclasses
+
+    return dataclasses.replace(mat, **dict(overrides))
+
+
+def _resolved_material(name, temperature_K, user_materials, overrides):
+    return _apply_overrides(_lookup_material(name, temperature_K, user_materials), overrides)
+
+
+# -- quantity parsing (cached) ----------------------------------------------------
+@lru_cache(maxsize=8192)
+def _to_float_str(text: str, unit: str) -> float:
+    return to_float(text, unit)
+
+
+@lru_cache(maxsize=8192)
+def _thickness_str(text: str, monolayer_nm: float | None) -> float:
+    return _thickness_nm(text, monolayer_nm)
+
+
+@lru_cache(maxsize=4096)
+def _is_monolayers_str(text: str) -> bool:
+    return _is_monolayers_any(text)
+
+
+def _is_monolayers(value) -> bool:
+    if isinstance(value, str):
+        return _is_monolayers_str(value)
+    return _is_monolayers_any(value)
+
+
+def _is_monolayers_any(value) -> bool:
+    try:
+        q = parse_quantity(value)
+    except UnitError:
+        return False
+    return bool(q.check("[monolayer]"))
+
+
+# -- the YAML loader with line marks -----------------------------------------------
+class _Refused(Exception):
+    """Internal: the YAML document is refused (with a reason and a line)."""
+
+    def __init__(self, message: str, line: int | None = None):
+        self.message = message
+        self.line = line
+        super().__init__(message)
+
+
+_MERGE_TAG = "tag:yaml.org,2002:merge"
+
+
+class _MarkedLoader(yaml.SafeLoader):
+    """SafeLoader that records the line of every key and item, with alias limits."""
+
+    def __init__(self, stream):
+        super().__init__(stream)
+        self.qwell_marks: dict = {}  # id(container) -> (line, {key: line} | [line, ...])
+        self.keep: list = []  # keeps the marked containers alive (stable ids)
+        self.alias_count = 0
+        self.node_count = 0
+
+    def compose_node(self, parent, index):
+        if self.check_event(yaml.AliasEvent):
+            self.alias_count += 1
+            if self.alias_count > MAX_ALIASES:
+                event = self.peek_event()
+                raise _Refused(f"more than {MAX_ALIASES} YAML aliases; expected a plain stack "
+                               "file (write repeated layers with 'repeat:')",
+                               event.start_mark.line + 1)
+        else:
+            self.node_count += 1
+            if self.node_count > MAX_YAML_NODES:
+                event = self.peek_event()
+                raise _Refused(f"more than {MAX_YAML_NODES} YAML nodes; expected a smaller "
+                               "stack file", event.start_mark.line + 1)
+        return super().compose_node(parent, index)
+
+    def construct_marked_map(self, node):
+        data: dict = {}
+        yield data
+        own = set()
+        for key_node, _ in node.value:
+            if key_node.tag == _MERGE_TAG:
+                continue
+            key = self.construct_object(key_node, deep=True)
+            try:
+                hash(key)
+            except TypeError:
+                raise _Refused("a mapping key must be a plain value; expected 'key: value'",
+                               key_node.start_mark.line + 1) from None
+            if key in own:
+                raise _Refused(f"duplicate key {key!r}; expected each key once per mapping",
+                               key_node.start_mark.line + 1)
+            own.add(key)
+        self.flatten_mapping(node)
+        lines = {}
+        for key_node, value_node in node.value:
+            key = self.construct_object(key_node, deep=True)
+            try:
+                hash(key)
+            except TypeError:
+                raise _Refused("a mapping key must be a plain value; expected 'key: value'",
+                               key_node.start_mark.line + 1) from None
+            data[key] = self.construct_object(value_node, deep=False)
+            lines[key] = key_node.start_mark.line + 1
+        self.qwell_marks[id(data)] = (node.start_mark.line + 1, lines)
+        self.keep.append(data)
+
+    def construct_marked_seq(self, node):
+        data: list = []
+        yield data
+        data.extend(self.construct_object(child, deep=False) for child in node.value)
+        self.qwell_marks[id(data)] = (node.start_mark.line + 1,
+                                [child.start_mark.line + 1 for child in node.value])
+        self.keep.append(data)
+
+
+_MarkedLoader.add_constructor("tag:yaml.org,2002:map", _MarkedLoader.construct_marked_map)
+_MarkedLoader.add_constructor("tag:yaml.org,2002:seq", _MarkedLoader.construct_marked_seq)
+
+
+def _expanded_size(root) -> int:
+    """Node count of the document with every alias expanded (refuses cycles)."""
+    memo: dict = {}
+    active: set = set()
+    # iterative post-order walk: deep documents must not exhaust the C stack
+    stack = [(root, False)]
+    while stack:
+        node, done = stack.pop()
+        nid = id(node)
+        if done:
+            active.discard(nid)
+            if isinstance(node, yaml.MappingNode):
+                kids = [n for pair in node.value for n in pair]
+            elif isinstance(node, yaml.SequenceNode):
+                kids = node.value
+            else:
+                kids = ()
+            total = 1 + sum(memo[id(k)] for k in kids)
+            if total > MAX_YAML_NODES:
+                raise _Refused(f"the YAML aliases expand to more than {MAX_YAML_NODES} nodes; "
+                               "expected a plain stack file", node.start_mark.line + 1)
+            memo[nid] = total
+            continue
+        if nid in memo:
+            continue
+        if nid in active:
+            raise _Refused("a YAML alias refers to its own parent (recursive document); "
+                           "expected a plain stack file", node.start_mark.line + 1)
+        active.add(nid)
+        stack.append((node, True))
+        if isinstance(node, yaml.MappingNode):
+            kids = [n for pair in node.value for n in pair]
+        elif isinstance(node, yaml.SequenceNode):
+            kids = node.value
+        else:
+            kids = ()
+        for k in kids:
+            kid = id(k)
+            if kid in active:
+                raise _Refused("a YAML alias refers to its own parent (recursive document); "
+                               "expected a plain stack file", k.start_mark.line + 1)
+            if kid not in memo:
+                stack.append((k, False))
+    return memo[id(root)]
+
+
+def _reader_line(text: str, exc) -> int | None:
+    pos = getattr(exc, "position", None)
+    if isinstance(pos, int) and 0 <= pos <= len(text):
+        return text.count("\n", 0, pos) + 1
+    return None
+
+
+def _parse_yaml(text: str, file: str | None):
+    """Parse YAML text into (data, marks); StackError on anything refused."""
+    try:
+        loader = _MarkedLoader(text)
+    except yaml.YAMLError as exc:  # the reader refuses control characters at once
+        raise StackError(f"not valid YAML text ({_one_line(str(exc))}); expected a YAML text "
+                         "file", file=file, line=_reader_line(text, exc)) from None
+    try:
+        try:
+            node = loader.get_single_node()
+            if node is None:
+                return None, {}
+            _expanded_size(node)
+            data = loader.construct_document(node)
+            loader.qwell_marks["root"] = node.start_mark.line + 1
+            loader.qwell_marks["keep"] = loader.keep  # marked ids stay valid while marks live
+        except _Refused as exc:
+            raise StackError(exc.message, file=file, line=exc.line) from None
+        except yaml.MarkedYAMLError as exc:
+            mark = exc.problem_mark or exc.context_mark
+            line = mark.line + 1 if mark is not None else None
+            what = _one_line(exc.problem or exc.context or "syntax error")
+            raise StackError(f"not valid YAML ({what}); expected a YAML mapping of stack keys",
+                             file=file, line=line) from None
+        except yaml.YAMLError as exc:
+            raise StackError(f"not valid YAML ({_one_line(str(exc))}); expected a YAML text "
+                             "file", file=file, line=_reader_line(text, exc)) from None
+        except RecursionError:
+            raise StackError("YAML nested too deeply; expected a plain stack file",
+                             file=file) from None
+    finally:
+        loader.dispose()
+    return data, loader.qwell_marks
+
+
+# -- helpers -------------------------------------------------------------------
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def _expecting(exc, expected: str) -> str:
+    """Message of a wrapped error, with what is expected unless it says so already."""
+    text = _one_line(exc)
+    if "; " in text or "expected" in text:
+        return text
+    return f"{text}; expected {expected}"
+
+
+def _short(value, limit: int = 60) -> str:
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
+def _did_you_mean(word: str, candidates) -> str:
+    close = difflib.get_close_matches(str(word), [str(c) for c in candidates], n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+def _type_word(value) -> str:
+    if isinstance(value, Mapping):
+        return "a mapping"
+    if isinstance(value, list):
+        return "a list"
+    if value is None:
+        return "nothing"
+    if isinstance(value, bool):
+        return f"{value!r} (a boolean)"
+    return _short(value)
+
+
+class _Builder:
+    """Checks one parsed stack document and builds the :class:`Stack`."""
+
+    def __init__(self, data, marks: Mapping, file: str | None):
+        self.data = data
+        self.marks = marks
+        self.file = file
+        self.temperature_K = _DEFAULT_TEMPERATURE_K
+        self.user_materials: dict = {}
+        self.user_keys: Mapping = {}
+        self.seen_materials: dict = {}  # name -> Material, looked up once per stack
+        self.seen_grades: set = set()
+
+    # -- errors and lines ---------------------------------------------------------
+    def line(self, container, key=None) -> int | None:
+        mark = self.marks.get(id(container))
+        if mark is None:
+            return None
+        own, inner = mark
+        if key is not None:
+            if isinstance(inner, dict) and key in inner:
+                return inner[key]
+            if isinstance(inner, list) and isinstance(key, int) and 0 <= key < len(inner):
+                return inner[key]
+        return own
+
+    def error(self, message: str, container=None, key=None, path: str | None = None):
+        return StackError(_one_line(message), file=self.file, line=self.line(container, key),
+                          key=path)
+
+    def check_keys(self, mapping: Mapping, allowed, path: str, extra=()):
+        for key in mapping:
+            if key in allowed or key in extra:
+                continue
+            kpath = f"{path}.{key}" if path else str(key)
+            hint = _did_you_mean(key, list(allowed) + list(extra))
+            shown = ", ".join(allowed)
+            raise self.error(f"unknown key {key!r}{hint}; expected one of: {shown}",
+                             mapping, key, kpath)
+
+    def require(self, mapping: Mapping, key: str, path: str, what: str):
+        if key not in mapping:
+            raise self.error(f"missing required key {key!r}; expected {what}", mapping, None,
+                             path or None)
+        return mapping[key]
+
+    # -- values ---------------------------------------------------------------------
+    def quantity(self, mapping, key, unit, path, what=None):
+        value = mapping[key]
+        words = what or expected_words(unit)
+        if isinstance(value, bool) or value is None or isinstance(value, (Mapping, list)):
+            raise self.error(f"got {_type_word(value)}; expected {words}", mapping, key, path)
+        if isinstance(value, (int, float)):
+            raise self.error(f"bare number {value!r} has no unit; expected {words}, "
+                             f"like '{value} {unit}'", mapping, key, path)
+        try:
+            if isinstance(value, str):
+                return _to_float_str(value, unit)
+            return to_float(value, unit, words)
+        except UnitError as exc:
+            raise self.error(str(exc), mapping, key, path) from None
+
+    def number(self, mapping, key, path, what="a plain number"):
+        value = mapping[key]
+        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+            raise self.error(f"got {_type_word(value)}; expected {what}", mapping, key, path)
+        try:
+            out = float(value)
+        except ValueError:
+            raise self.error(f"got {_short(value)}; expected {what}", mapping, key, path) from None
+        if not math.isfinite(out):
+            raise self.error(f"got {_short(value)}; expected a finite number", mapping, key, path)
+        return out
+
+    def boolean(self, mapping, key, path):
+        value = mapping[key]
+        if not isinstance(value, bool):
+            raise self.error(f"got {_type_word(value)}; expected true or false", mapping, key,
+                             path)
+        return value
+
+    def text(self, mapping, key, path, what="a text"):
+        value = mapping[key]
+        if not isinstance(value, str) or not value.strip():
+            raise self.error(f"got {_type_word(value)}; expected {what}", mapping, key, path)
+        return value.strip()
+
+    def finite(self, value, mapping, key, path, what):
+        if not math.isfinite(value):
+            raise self.error(f"{value!r} is not finite; expected {what}", mapping, key, path)
+        return value
+
+    # -- materials ---------------------------------------------------------------------
+    def material(self, name, mapping, key, path):
+        mat = self.seen_materials.get(name)
+        if mat is not None:
+            return mat
+        try:
+            mat = _lookup_material(name, self.temperature_K, self.user_materials)
+        except MaterialError as exc:
+            raise self.error(_expecting(exc, "a material such as GaAs or Al0.30Ga0.70As, or a "
+                                        "name under 'materials'"), mapping, key, path) from None
+        self.seen_materials[name] = mat
+        return mat
+
+    def overrides(self, mapping, path, skip) -> dict:
+        out = {}
+        for key in mapping:
+            if key in skip:
+                continue
+            fld, unit = self.user_keys[key]
+            kpath = f"{path}.{key}"
+            if unit is None:
+                out[fld] = self.number(mapping, key, kpath)
+            else:
+                out[fld] = self.finite(self.quantity(mapping, key, unit, kpath), mapping, key,
+                                       kpath, expected_words(unit))
+        return out
+
+    def build_user_materials(self, top):
+        spec = top["materials"]
+        if spec is None:
+            return
+        if not isinstance(spec, Mapping):
+            raise self.error(f"got {_type_word(spec)}; expected a mapping of material name -> "
+                             "parameters", top, "materials", "materials")
+        api = _materials_api()
+        for name, params in spec.items():
+            path = f"materials.{name}"
+            if not isinstance(name, str) or not _NAME_RE.match(name):
+                raise self.error(f"bad material name {name!r}; expected letters, digits, _ or - "
+                                 "starting with a letter", spec, name, path)
+            if _is_builtin_name(name):
+                raise self.error(f"{name!r} is a built-in material; expected a new name (adjust "
+                                 "a built-in material with per-layer overrides)", spec, name,
+                                 path)
+            if not isinstance(params, Mapping) or not params:
+                raise self.error(f"got {_type_word(params)}; expected a mapping of parameters "
+                                 f"(keys: {', '.join(self.user_keys)})", spec, name, path)
+            self.check_keys(params, tuple(self.user_keys), path)
+            values = self.overrides(params, path, skip=())
+            try:
+                self.user_materials[name] = api.user_material(name, values, self.temperature_K)
+            except MaterialError as exc:
+                raise self.error(_expecting(exc, "consistent material parameters"), spec, name,
+                                 path) from None
+
+    # -- layers -------------------------------------------------------------------------
+    def count_layers(self, entries, path, depth, container, ckey):
+        """Expanded layer count of a list of entries; checks repeats before expansion."""
+        if not isinstance(entries, list):
+            raise self.error(f"got {_type_word(entries)}; expected a list of layers",
+                             container, ckey, path)
+        if not entries:
+            raise self.error("no layers; expected at least one layer", container, ckey, path)
+        total = 0
+        for i, entry in enumerate(entries):
+            epath = f"{path}[{i}]"
+            if not isinstance(entry, Mapping):
+                raise self.error(f"got {_type_word(entry)}; expected a layer mapping like "
+                                 "{material: GaAs, thickness: 5 nm}", entries, i, epath)
+            if "repeat" in entry:
+                self.check_keys(entry, _REPEAT_KEYS, epath)
+                if depth >= MAX_REPEAT_DEPTH:
+                    raise self.error(f"repeat blocks nested more than {MAX_REPEAT_DEPTH} deep; "
+                                     "expected at most a repeat inside a repeat", entry,
+                                     "repeat", f"{epath}.repeat")
+                count = entry["repeat"]
+                if isinstance(count, bool) or not isinstance(count, int):
+                    raise self.error(f"got {_type_word(count)}; expected a whole number of "
+                                     "periods >= 1", entry, "repeat", f"{epath}.repeat")
+                if count < 1:
+                    raise self.error(f"repeat count {count} < 1; expected a whole number of "
+                                     "periods >= 1", entry, "repeat", f"{epath}.repeat")
+                inner = self.require(entry, "layers", epath, "the list of layers of one period")
+                total += count * self.count_layers(inner, f"{epath}.layers", depth + 1, entry,
+                                                   "layers")
+            else:
+                total += 1
+            if total > MAX_LAYERS:
+                raise self.error(f"more than {MAX_LAYERS} layers after expanding the repeats; "
+                                 "expected a smaller stack", entries, i, epath)
+        return total
+
+    def parse_layer(self, entry, path, names: dict):
+        """A written (non-repeat) layer -> dict of Layer fields (without position)."""
+        is_grade = "grade" in entry
+        if is_grade and "material" in entry:
+            raise self.error("a layer has either 'material' or 'grade', not both; expected one "
+                             "of them", entry, "grade", f"{path}.grade")
+        allowed = _GRADE_LAYER_KEYS if is_grade else _UNIFORM_KEYS
+        self.check_keys(entry, allowed, path, extra=tuple(self.user_keys))
+        if not is_grade:
+            self.require(entry, "material", path,
+                         "'material' (e.g. material: GaAs), 'grade' or 'repeat'")
+        self.require(entry, "thickness", path, "a thickness (e.g. thickness: 5 nm)")
+
+        name = None
+        if "name" in entry:
+            name = entry["name"]
+            npath = f"{path}.name"
+            if not isinstance(name, str) or not _NAME_RE.match(name):
+                raise self.error(f"bad layer name {_short(name)}; expected letters, digits, _ "
+                                 "or - starting with a letter (e.g. well_1)", entry, "name", npath)
+            if _RESERVED_LABEL_RE.match(name):
+                raise self.error(f"layer name {name!r} is reserved for unnamed layers; expected "
+                                 "another name", entry, "name", npath)
+            if name in names:
+                raise self.error(f"duplicate layer name {name!r} (first used on line "
+                                 f"{names[name]}); expected unique names", entry, "name", npath)
+            names[name] = self.line(entry, "name")
+
+        overrides = self.overrides(entry, path, skip=allowed)
+        material = grade = None
+        monolayer = None
+        if is_grade:
+            grade = self.parse_grade(entry, path)
+            if overrides:
+                self.check_grade_overrides(grade, overrides, entry, path)
+        else:
+            mname = entry["material"]
+            mpath = f"{path}.material"
+            if not isinstance(mname, str) or not mname.strip():
+                raise self.error(f"got {_type_word(mname)}; expected a material name such as "
+                                 "GaAs or Al0.30Ga0.70As", entry, "material", mpath)
+            material = mname.strip()
+            mat = self.material(material, entry, "material", mpath)
+            if overrides:
+                try:
+                    mat = _apply_overrides(mat, overrides)
+                except (MaterialError, TypeError, ValueError) as exc:
+                    raise self.error(f"cannot apply the overrides ({_one_line(exc)}); expected "
+                                     "parameters of USER_KEYS", entry, None, path) from None
+            monolayer = getattr(mat, "monolayer_nm", None)
+            if monolayer is None and "lattice_constant_nm" in overrides:
+                monolayer = overrides["lattice_constant_nm"] / 2.0
+
+        thick = self.thickness(entry, path, monolayer, is_grade)
+        doping = self.parse_doping(entry, path, thick) if "doping" in entry else None
+        return dict(name=name, material=material, grade=grade, thickness_nm=thick,
+                    overrides=MappingProxyType(overrides), doping=doping,
+                    line=self.line(entry), thickness_spec=_spec_text(entry["thickness"]))
+
+    def check_grade_overrides(self, grade, overrides, entry, path):
+        """Overrides of a graded layer must apply at both of its ends."""
+        try:
+            along = _materials_api().grade_function(grade.start, grade.end, self.temperature_K,
+                                                    dict(self.user_materials) or None)
+            for f in (0.0, 1.0):
+                _apply_overrides(along(f), overrides)
+        except (MaterialError, TypeError, ValueError) as exc:
+            raise self.error(f"cannot apply the overrides along the grade ({_one_line(exc)}); "
+                             "expected parameters of USER_KEYS", entry, None, path) from None
+
+    def thickness(self, entry, path, monolayer, is_grade) -> float:
+        tpath = f"{path}.thickness"
+        value = entry["thickness"]
+        words = expected_words("nm")
+        if isinstance(value, bool) or value is None or isinstance(value, (Mapping, list)):
+            raise self.error(f"got {_type_word(value)}; expected {words}", entry, "thickness",
+                             tpath)
+        if isinstance(value, (int, float)):
+            raise self.error(f"bare number {value!r} has no unit; expected {words}, like "
+                             f"'{value} nm'", entry, "thickness", tpath)
+        if is_grade and _is_monolayers(value):
+            raise self.error(f"{value!r}: monolayers are ambiguous in a graded layer; expected "
+                             "the thickness in nm", entry, "thickness", tpath)
+        try:
+            if isinstance(value, str):
+                t = _thickness_str(value, monolayer)
+            else:
+                t = _thickness_nm(value, monolayer)
+        except UnitError as exc:
+            raise self.error(str(exc), entry, "thickness", tpath) from None
+        if not math.isfinite(t) or t <= 0:
+            raise self.error(f"thickness {_short(value)} is not positive and finite; expected "
+                             "a thickness > 0 (e.g. '5 nm')", entry, "thickness", tpath)
+        if t > MAX_TOTAL_THICKNESS_NM:
+            raise self.error(f"thickness {_short(value)} exceeds the {MAX_TOTAL_THICKNESS_NM:g} nm "
+                             "(100 um) limit of a stack; expected a thinner layer", entry,
+                             "thickness", tpath)
+        return t
+
+    def parse_grade(self, entry, path) -> Grade:
+        gpath = f"{path}.grade"
+        spec = entry["grade"]
+        if not isinstance(spec, Mapping):
+            raise self.error(f"got {_type_word(spec)}; expected a mapping like "
+                             "{from: Al0.30Ga0.70As, to: GaAs, shape: linear}", entry, "grade",
+                             gpath)
+        self.check_keys(spec, _GRADE_KEYS, gpath)
+        ends = []
+        for key in ("from", "to"):
+            self.require(spec, key, gpath, f"the material at the {'start' if key == 'from' else 'end'}"
+                         " of the grade")
+            ends.append(self.text(spec, key, f"{gpath}.{key}", "a material name"))
+            self.material(ends[-1], spec, key, f"{gpath}.{key}")
+        shape = "linear"
+        if "shape" in spec:
+            shape = spec["shape"]
+            if shape not in ("linear", "parabolic"):
+                hint = _did_you_mean(str(shape), ("linear", "parabolic"))
+                raise self.error(f"unknown shape {_short(shape)}{hint}; expected 'linear' or "
+                                 "'parabolic'", spec, "shape", f"{gpath}.shape")
+        vertex = "start"
+        if "vertex" in spec:
+            vertex = spec["vertex"]
+            if shape != "parabolic":
+                raise self.error("'vertex' applies to parabolic grades only; expected shape: "
+                                 "parabolic or no vertex", spec, "vertex", f"{gpath}.vertex")
+            if vertex not in ("start", "end"):
+                raise self.error(f"unknown vertex {_short(vertex)}; expected 'start' or 'end'",
+                                 spec, "vertex", f"{gpath}.vertex")
+        start, end = ends
+        if (start, end) in self.seen_grades:
+            return Grade(start=start, end=end, shape=shape, vertex=vertex)
+        try:
+            _materials_api().grade_function(start, end, self.temperature_K,
+                                            dict(self.user_materials) or None)
+        except MaterialError as exc:
+            raise self.error(_expecting(exc, "two materials that share band parameters"),
+                             entry, "grade", gpath) from None
+        self.seen_grades.add((start, end))
+        return Grade(start=start, end=end, shape=shape, vertex=vertex)
+
+    def parse_doping(self, entry, path, thick_nm) -> Doping:
+        dpath = f"{path}.doping"
+        spec = entry["doping"]
+        if not isinstance(spec, Mapping):
+            raise self.error(f"got {_type_word(spec)}; expected a mapping like "
+                             "{donors: 1e18 cm^-3}", entry, "doping", dpath)
+        self.check_keys(spec, _DOPING_KEYS, dpath)
+        vals: dict = {}
+        for key, unit, fld in (("donors", "cm^-3", "donors_cm3"),
+                               ("acceptors", "cm^-3", "acceptors_cm3"),
+                               ("sheet", "cm^-2", "sheet_cm2"),
+                               ("sheet_acceptors", "cm^-2", "sheet_acceptors_cm2")):
+            if key in spec:
+                v = self.quantity(spec, key, unit, f"{dpath}.{key}")
+                if not math.isfinite(v) or v < 0:
+                    raise self.error(f"negative density {_short(spec[key])}; expected a density "
+                                     f">= 0 in {unit}", spec, key, f"{dpath}.{key}")
+                vals[fld] = v
+        for key, fld in (("from", "from_nm"), ("to", "to_nm"), ("at", "at_nm")):
+            if key in spec:
+                kpath = f"{dpath}.{key}"
+                v = self.quantity(spec, key, "nm", kpath, "a position in the layer "
+                                  "(e.g. '1.5 nm')")
+                tol = 1e-9 * max(1.0, thick_nm)
+                if not math.isfinite(v) or v < -tol or v > thick_nm + tol:
+                    raise self.error(f"position {_short(spec[key])} is outside its layer; "
+                                     f"expected 0 to {thick_nm:.6g} nm from the layer start",
+                                     spec, key, kpath)
+                vals[fld] = min(max(v, 0.0), thick_nm)
+        if "donor_level" in spec:
+            kpath = f"{dpath}.donor_level"
+            v = self.quantity(spec, "donor_level", "eV", kpath)
+            if not math.isfinite(v) or v < 0:
+                raise self.error(f"donor level {_short(spec['donor_level'])} is negative; "
+                                 "expected an energy >= 0 below the conduction edge "
+                                 "(e.g. '6 meV')", spec, "donor_level", kpath)
+            vals["donor_level_eV"] = v
+        has_volume = "donors" in spec or "acceptors" in spec
+        has_sheet = "sheet" in spec or "sheet_acceptors" in spec
+        if ("from" in spec or "to" in spec) and not has_volume:
+            key = "from" if "from" in spec else "to"
+            raise self.error("'from'/'to' limit volume doping; expected 'donors' or "
+                             "'acceptors' with them", spec, key, f"{dpath}.{key}")
+        if has_sheet and "at" not in spec:
+            key = "sheet" if "sheet" in spec else "sheet_acceptors"
+            raise self.error("missing required key 'at'; expected the position of the sheet "
+                             "doping in the layer (e.g. at: 10 nm)", spec, key, dpath)
+        if "at" in spec and not has_sheet:
+            raise self.error("'at' places sheet doping; expected 'sheet' or 'sheet_acceptors' "
+                             "with it", spec, "at", f"{dpath}.at")
+        lo = vals.get("from_nm", 0.0)
+        hi = vals.get("to_nm", thick_nm)
+        if hi <= lo:
+            raise self.error(f"doping range from {lo:.6g} nm to {hi:.6g} nm is empty; expected "
+                             "'from' < 'to'", spec, "to" if "to" in spec else "from", dpath)
+        return Doping(**vals)
+
+    def expand(self, entries, path, depth, out, repeats, name_count, templates, block, period):
+        """Append expanded layers of ``entries`` to ``out`` (lists of field dicts)."""
+        for i, entry in enumerate(entries):
+            epath = f"{path}[{i}]"
+            if "repeat" in entry:
+                count = entry["repeat"]
+                first = len(out)
+                rb_index = len(repeats)
+                repeats.append(None)  # placeholder, filled once the period length is known
+                per_period = None
+                for p in range(count):
+                    self.expand(entry["layers"], f"{epath}.layers", depth + 1, out, repeats,
+                                name_count, templates, rb_index, p)
+                    if per_period is None:
+                        per_period = len(out) - first
+                repeats[rb_index] = RepeatBlock(index=rb_index, count=count, first_layer=first,
+                                                layers_per_period=per_period,
+                                                line=self.line(entry))
+                continue
+            key = id(entry)
+            tmpl = templates.get(key)
+            if tmpl is None:
+                raise self.error("internal: layer not parsed", entry, None, epath)
+            idx = len(out)
+            name = tmpl["name"]
+            if name is None:
+                label = f"L{idx + 1}"
+            else:
+                k = name_count.get(name, 0) + 1
+                name_count[name] = k
+                label = name if k == 1 else f"{name}#{k}"
+            out.append(Layer(index=idx, label=label, repeat_block=block, period=period, **tmpl))
+
+    def parse_all(self, entries, path, names, templates, depth=0):
+        for i, entry in enumerate(entries):
+            epath = f"{path}[{i}]"
+            if "repeat" in entry:
+                self.parse_all(entry["layers"], f"{epath}.layers", names, templates, depth + 1)
+            else:
+                if id(entry) in templates:
+                    # the same mapping written twice through a YAML alias
+                    tmpl = templates[id(entry)]
+                    if tmpl["name"] is not None:
+                        raise self.error(f"duplicate layer name {tmpl['name']!r} (a YAML alias "
+                                         "repeats a named layer); expected unique names",
+                                         entries, i, f"{epath}.name")
+                    continue
+                templates[id(entry)] = self.parse_layer(entry, epath, names)
+
+    def total_thickness(self, entries, templates) -> float:
+        total = 0.0
+        for entry in entries:
+            if "repeat" in entry:
+                total += entry["repeat"] * self.total_thickness(entry["layers"], templates)
+            else:
+                total += templates[id(entry)]["thickness_nm"]
+        return total
+
+    # -- the whole document ------------------------------------------------------------
+    def build(self, path: str | None, sha: str | None, default_name: str) -> Stack:
+        top = self.data
+        if top is None:
+            raise self.error("empty stack file; expected a mapping with at least 'layers'")
+        if not isinstance(top, Mapping):
+            raise StackError(f"the top level is {_type_word(top)}; expected a mapping of stack "
+                             "keys (name, temperature, ..., layers)", file=self.file,
+                             line=self.marks.get("root"))
+        self.check_keys(top, _TOP_KEYS, "")
+        if "layers" not in top:
+            raise self.error("missing required key 'layers'; expected the list of layers in "
+                             "growth order", top)
+        try:
+            self.user_keys = dict(_materials_api().USER_KEYS)
+        except AttributeError:
+            self.user_keys = {}
+
+        name = default_name
+        if "name" in top:
+            v = top["name"]
+            if isinstance(v, bool) or not isinstance(v, (str, int, float)) or not str(v).strip():
+                raise self.error(f"got {_type_word(v)}; expected a free-text stack name", top,
+                                 "name", "name")
+            name = _one_line(str(v))
+
+        if "temperature" in top:
+            t = self.quantity(top, "temperature", "K", "temperature")
+            if not math.isfinite(t) or t <= 0:
+                raise self.error(f"temperature {_short(top['temperature'])} is not above 0 K; "
+                                 "expected a temperature > 0 K (e.g. '77 K')", top,
+                                 "temperature", "temperature")
+            self.temperature_K = t
+
+        if "materials" in top:
+            self.build_user_materials(top)
+
+        substrate = None
+        if "substrate" in top and top["substrate"] is not None:
+            substrate = self.text(top, "substrate", "substrate", "a material name such as GaAs")
+            self.material(substrate, top, "substrate", "substrate")
+
+        field_kV = 0.0
+        if "field" in top:
+            field_kV = self.finite(self.quantity(top, "field", "kV/cm", "field"), top, "field",
+                                   "field", expected_words("kV/cm"))
+        nonpar = self.boolean(top, "nonparabolicity", "nonparabolicity") \
+            if "nonparabolicity" in top else True
+        selfc = self.boolean(top, "self_consistent", "self_consistent") \
+            if "self_consistent" in top else False
+        fermi = None
+        if "fermi_level" in top and top["fermi_level"] is not None:
+            fermi = self.finite(self.quantity(top, "fermi_level", "eV", "fermi_level"), top,
+                                "fermi_level", "fermi_level", expected_words("eV"))
+
+        entries = top["layers"]
+        self.count_layers(entries, "layers", 0, top, "layers")
+        templates: dict = {}
+        self.parse_all(entries, "layers", {}, templates)
+        total = self.total_thickness(entries, templates)
+        if total > MAX_TOTAL_THICKNESS_NM:
+            raise self.error(f"total thickness {total / 1000:.6g} um exceeds the 100 um limit; "
+                             "expected a thinner stack", top, "layers", "layers")
+        layers: list = []
+        repeats: list = []
+        self.expand(entries, "layers", 0, layers, repeats, {}, templates, None, None)
+
+        return Stack(name=name, path=path, sha256=sha, temperature_K=float(self.temperature_K),
+                     substrate=substrate, field_kV_per_cm=float(field_kV), nonparabolicity=nonpar,
+                     self_consistent=selfc, fermi_level_eV=fermi,
+                     user_materials=MappingProxyType(dict(self.user_materials)),
+                     layers=tuple(layers), repeats=tuple(repeats), raw=top)
+
+
+def _spec_text(value) -> str:
+    if isinstance(value, str):
+        return value.strip()
+    try:
+        return f"{value:~}"
+    except (TypeError, ValueError):
+        return str(value)
+
+
+def _stem(file) -> str:
+    return Path(str(file)).stem if file else "stack"
+
+
+def _plain_copy(value, _depth: int = 0):
+    """Copy of nested mappings and lists (other values are shared: scalars, quantities)."""
+    if _depth > 100:
+        raise StackError("mapping nested too deeply; expected a plain stack mapping")
+    kind = type(value)
+    if kind is str or kind is float or kind is int or kind is bool or value is None:
+        return value
+    if kind is dict or isinstance(value, Mapping):
+        return {k: _plain_copy(v, _depth + 1) for k, v in value.items()}
+    if kind is list or isinstance(value, tuple):
+        return [_plain_copy(v, _depth + 1) for v in value]
+    return value
+
+
+# -- public entry points ---------------------------------------------------------
+def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
+    """Build a :class:`Stack` from an already parsed mapping (no line numbers).
+
+    Parameters
+    ----------
+    data : Mapping
+        The stack as plain Python (the structure of the YAML file); quantity
+        values are strings like ``'5 nm'`` or pint Quantities.  It is copied,
+        so later changes to ``data`` do not affect the stack.
+    file : str, optional
+        Name used in error messages and as the default stack name.
+
+    Raises
+    ------
+    StackError
+    """
+    raw = _plain_copy(data)
+    builder = _Builder(raw, {}, None if file is None else str(file))
+    return builder.build(None if file is None else str(file), None, _stem(file))
+
+
+def _decode(data: bytes, file: str | None) -> str:
+    if len(data) > MAX_FILE_BYTES:
+        raise StackError(f"file is {len(data) / 1e6:.3g} MB, over the {MAX_FILE_BYTES / 1e6:.3g} "
+                         "MB limit; expected a stack file of a few kB", file=file)
+    if b"\x00" in data:
+        raise StackError("binary file (contains NUL bytes); expected a YAML text file",
+                         file=file)
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        raise StackError(f"not UTF-8 text (byte 0x{data[exc.start]:02x} at offset {exc.start}); "
+                         "expected a UTF-8 YAML text file", file=file, line=line) from None
+
+
+def _from_text(text: str, file: str | None, sha: str) -> Stack:
+    data, marks = _parse_yaml(text, file)
+    builder = _Builder(data, marks, file)
+    return builder.build(file, sha, _stem(file))
+
+
+def stack_from_text(text: str, file: str | None = None) -> Stack:
+    """Read a stack from YAML text.
+
+    Parameters
+    ----------
+    text : str
+        The YAML document.
+    file : str, optional
+        File name for messages (and the default stack name).
+
+    Raises
+    ------
+    StackError
+    """
+    if isinstance(text, bytes):
+        text = _decode(text, file)
+    if not isinstance(text, str):
+        raise StackError(f"got {type(text).__name__}; expected YAML text", file=file)
+    if "\x00" in text:
+        raise StackError("binary text (contains NUL characters); expected a YAML text file",
+                         file=file)
+    encoded = text.encode("utf-8", "surrogatepass")
+    if len(encoded) > MAX_FILE_BYTES:
+        raise StackError(f"text is {len(encoded) / 1e6:.3g} MB, over the "
+                         f"{MAX_FILE_BYTES / 1e6:.3g} MB limit; expected a stack of a few kB",
+                         file=file)
+    return _from_text(text, None if file is None else str(file),
+                      hashlib.sha256(encoded).hexdigest())
+
+
+def load_stack(path) -> Stack:
+    """Read and check a stack file.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+
+    Returns
+    -------
+    Stack
+
+    Raises
+    ------
+    StackError
+        Missing or unreadable file, oversized or binary file, invalid YAML or
+        an invalid stack (see the module docstring).
+    """
+    file = os.fspath(path)
+    p = Path(file)
+    if not p.exists():
+        raise StackError("file does not exist; expected the path of a YAML stack file",
+                         file=file)
+    if p.is_dir():
+        raise StackError("is a directory; expected a YAML stack file", file=file)
+    try:
+        size = p.stat().st_size
+        if size > MAX_FILE_BYTES:
+            raise StackError(f"file is {size / 1e6:.3g} MB, over the {MAX_FILE_BYTES / 1e6:.3g} "
+                             "MB limit; expected a stack file of a few kB", file=file)
+        with open(p, "rb") as fh:
+            data = fh.read(MAX_FILE_BYTES + 1)
+    except OSError as exc:
+        raise StackError(f"cannot read the file ({_one_line(exc.strerror or exc)}); expected a "
+                         "readable YAML stack file", file=file) from None
+    text = _decode(data, file)
+    return _from_text(text, file, hashlib.sha256(data).hexdigest())
+
+
+# -- writing --------------------------------------------------------------------------
+class _StackDumper(yaml.SafeDumper):
+    """SafeDumper that writes pint quantities and numpy scalars as plain values."""
+
+
+def _represent_quantity(dumper, q):
+    return dumper.represent_str(f"{q.magnitude:.12g} {q.units:~}")
+
+
+def _represent_np_float(dumper, v):
+    return dumper.represent_float(float(v))
+
+
+def _represent_np_int(dumper, v):
+    return dumper.represent_int(int(v))
+
+
+def _represent_mapping_proxy(dumper, m):
+    return dumper.represent_dict(dict(m))
+
+
+_StackDumper.add_multi_representer(np.floating, _represent_np_float)
+_StackDumper.add_multi_representer(np.integer, _represent_np_int)
+_StackDumper.add_representer(MappingProxyType, _represent_mapping_proxy)
+
+
+def _register_quantity():
+    from .units import ureg
+
+    _StackDumper.add_multi_representer(ureg.Quantity, _represent_quantity)
+
+
+_register_quantity()
+
+
+def _no_aliases(self, data):  # write every layer out in full
+    return True
+
+
+_StackDumper.ignore_aliases = _no_aliases
+
+
+def dump_stack_yaml(raw: Mapping) -> str:
+    """Write a stack mapping (e.g. a modified :attr:`Stack.raw`) as YAML text.
+
+    Quantities stay strings (``'5.3 nm'``); pint Quantities are written as
+    such strings; key order is kept; layers without nested mappings are
+    written on one line each.  Loading the text gives back an equal mapping.
+    """
+    return yaml.dump(raw, Dumper=_StackDumper, sort_keys=False, default_flow_style=None,
+                     allow_unicode=True, width=100)
