@@ -1,0 +1,268 @@
+"""Private transfer-matrix machinery of the exact solver.
+
+A band is cut into slices of constant potential and mass ('flat' pieces are
+one exact slice; 'linear' and 'smooth' pieces are cut into equal slices with
+the potential, mass and gap taken at the slice midpoint, a symmetric scheme
+whose eigenvalue error is even in the step).  Inside a slice the
+BenDaniel–Duke equation ``-C d/dz (1/m) dpsi/dz + (V - E) psi = 0`` with
+``C = hbar^2 / (2 m0)`` is solved analytically for the state vector
+``(psi, u)``, ``u = psi'/m``, which is continuous at every interface.
+
+Evanescent slices use *scaled* hyperbolic functions (everything divided by
+``exp(kappa h)``), so no entry ever overflows; the dropped factor is returned
+as a log-scale where it matters (traces, wavefunctions).
+
+Units: eV, nm, m0.
+
+References
+----------
+.. [1] D. J. BenDaniel and C. B. Duke, Phys. Rev. 152, 683 (1966).
+.. [2] G. Bastard, "Superlattice band structure in the envelope-function
+   approximation", Phys. Rev. B 24, 5693 (1981).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import constants as _c
+
+#: hbar^2 / (2 m0) in eV nm^2 (CODATA via scipy.constants), ~0.0380998.
+C_EV_NM2 = _c.hbar ** 2 / (2.0 * _c.m_e) / _c.e * 1e18
+#: hbar in eV s.
+HBAR_EV_S = _c.hbar / _c.e
+
+#: Initial slice length of non-flat pieces [nm] (halved at every refinement level).
+BASE_STEP_NM = 0.5
+_MIN_MASS_FRACTION = 0.01
+
+
+@dataclass(frozen=True)
+class Slices:
+    """Piecewise-constant approximation of a band (arrays of length n)."""
+
+    z0_nm: np.ndarray       # slice starts
+    h_nm: np.ndarray        # slice lengths
+    v_eV: np.ndarray        # potential
+    m_m0: np.ndarray        # band-edge mass
+    g_eV: np.ndarray        # gap (inf where parabolic or band parabolic)
+    piece: np.ndarray       # piece index
+    exact: bool             # True when every piece is flat (no discretisation error)
+
+    @property
+    def n(self) -> int:
+        return int(self.h_nm.size)
+
+    @property
+    def z_end_nm(self) -> float:
+        return float(self.z0_nm[-1] + self.h_nm[-1])
+
+
+def build_slices(band, level: int = 0, *, z_lo_nm: float | None = None,
+                 z_hi_nm: float | None = None) -> Slices:
+    """Slice ``band`` (optionally only ``[z_lo_nm, z_hi_nm]``) at refinement ``level``."""
+    z0s, hs, vs, ms, gs, ps = [], [], [], [], [], []
+    exact = True
+    lo = band.z_start_nm if z_lo_nm is None else z_lo_nm
+    hi = band.z_end_nm if z_hi_nm is None else z_hi_nm
+    for i, p in enumerate(band.pieces):
+        a, b = max(p.z_start_nm, lo), min(p.z_end_nm, hi)
+        if b - a <= 1e-12:
+            continue
+        if p.kind == "flat":
+            n = 1
+        else:
+            exact = False
+            n = max(2, int(np.ceil((b - a) / BASE_STEP_NM))) * 2 ** level
+        edges = np.linspace(a, b, n + 1)
+        mid = 0.5 * (edges[:-1] + edges[1:])
+        z0s.append(edges[:-1])
+        hs.append(np.diff(edges))
+        vs.append(p.potential(mid))
+        ms.append(p.mass(mid))
+        g = p.gap(mid)
+        gs.append(np.full(n, np.inf) if (g is None or not band.nonparabolic) else g)
+        ps.append(np.full(n, i))
+    return Slices(np.concatenate(z0s), np.concatenate(hs), np.concatenate(vs),
+                  np.concatenate(ms), np.concatenate(gs), np.concatenate(ps), exact)
+
+
+def eff_mass(m_edge, v, g, energy):
+    """Two-band energy-dependent mass m(E) = m (1 + (E - V)/Eg), clipped like qwell.bands."""
+    f = 1.0 + (energy - v) / g
+    if np.iscomplexobj(f):
+        return m_edge * f  # analytic continuation for complex energies
+    return m_edge * np.maximum(f, _MIN_MASS_FRACTION)
+
+
+def cladding_kappa(v, m_edge, g, energy):
+    """(kappa [1/nm], m(E) [m0]) of a semi-infinite cladding.
+
+    Real energies: kappa = sqrt(m (V - E)/C) >= 0 (clipped at 0 above V).
+    Complex energies: decaying branch (Re kappa > 0) below V, outgoing branch
+    ``kappa = -i k`` above V.
+    """
+    m = eff_mass(m_edge, v, g, energy)
+    if np.iscomplexobj(energy):
+        x = m * (v - energy) / C_EV_NM2
+        below = np.real(v - energy) > 0
+        kap = np.where(below, np.sqrt(x + 0j), -1j * np.sqrt(-x + 0j))
+        return kap, m
+    return np.sqrt(np.maximum(m * (v - energy) / C_EV_NM2, 0.0)), m
+
+
+def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
+    """Transfer-matrix entries over a length inside slices, for every energy.
+
+    Parameters
+    ----------
+    sl : Slices
+    energies : array, shape (nE,) (real or complex) [eV]
+    lengths : array, optional
+        Propagation lengths [nm], default the slice lengths; shape broadcast with
+        (ns, nE) or given per point together with ``sl_index``.
+    sl_index : array of int, optional
+        Slice index of each length (then ``energies`` must broadcast with it).
+
+    Returns
+    -------
+    a, b, c, d, logscale : arrays
+        ``(psi, u)(x) = exp(logscale) * [[a, b], [c, d]] @ (psi, u)(0)``.
+    """
+    E = np.asarray(energies)
+    if sl_index is None:
+        v, m0, g, h = (x[:, None] for x in (sl.v_eV, sl.m_m0, sl.g_eV, sl.h_nm))
+        E = E[None, :]
+    else:
+        v, m0, g = sl.v_eV[sl_index], sl.m_m0[sl_index], sl.g_eV[sl_index]
+        h = None
+    if lengths is not None:
+        h = lengths
+    m = eff_mass(m0, v, g, E)
+    q = m * (E - v) / C_EV_NM2
+    if np.iscomplexobj(q):
+        kap = np.sqrt(-q)
+        x = kap * h
+        e2 = np.exp(-2.0 * x)
+        a = 0.5 * (1.0 + e2)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            s = np.where(np.abs(x) > 1e-8, -np.expm1(-2.0 * x) / (2.0 * np.where(x == 0, 1, x)),
+                         1.0 - x) * h
+        return a, m * s, -(q / m) * s, a, x
+    osc = q > 0
+    k = np.sqrt(np.abs(q))
+    x = k * h
+    # oscillatory
+    co = np.cos(x)
+    so = h * np.sinc(x / np.pi)
+    # evanescent, scaled by exp(-x)
+    e2 = np.exp(-2.0 * x)
+    ce = 0.5 * (1.0 + e2)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        se = np.where(x > 1e-8, -np.expm1(-2.0 * x) / (2.0 * np.where(x == 0, 1, x)), 1.0 - x) * h
+    a = np.where(osc, co, ce)
+    s = np.where(osc, so, se)
+    return a, m * s, -(q / m) * s, a, np.where(osc, 0.0, x)
+
+
+def subset(sl: Slices, lo: int, hi: int) -> Slices:
+    """Slices ``lo:hi``."""
+    return Slices(sl.z0_nm[lo:hi], sl.h_nm[lo:hi], sl.v_eV[lo:hi], sl.m_m0[lo:hi],
+                  sl.g_eV[lo:hi], sl.piece[lo:hi], sl.exact)
+
+
+def product(sl: Slices, energies, *, track_log: bool = False, backward: bool = False):
+    """Transfer matrix of all slices (later @ earlier), by pairwise reduction.
+
+    Real energies: each partial product is renormalised (bounded); the log of
+    the dropped positive factors is returned when ``track_log``.  Complex
+    energies: no renormalisation, so the result stays analytic in E.
+
+    With ``backward`` the product of the inverse slice matrices from the last
+    slice to the first (maps the state at the end to the state at the start).
+
+    Returns
+    -------
+    M : array (nE, 2, 2)
+    log_scale : array (nE,) (zeros unless track_log)
+    """
+    a, b, c, d, ls = coefficients(sl, energies)
+    if backward:
+        # inverse transfer, from the far end back to the start: M(-h) = [[a, -b], [-c, d]]
+        a, b, c, d, ls = a[::-1], -b[::-1], -c[::-1], d[::-1], ls[::-1]
+    A = np.stack([np.stack([a, b], -1), np.stack([c, d], -1)], -2)  # (ns, nE, 2, 2)
+    cplx = np.iscomplexobj(A)
+    if cplx:
+        A = A * np.exp(ls)[..., None, None] if track_log else A
+        logs = np.zeros(A.shape[1], dtype=complex)
+    else:
+        logs = ls.sum(axis=0) if track_log else np.zeros(A.shape[1])
+    while A.shape[0] > 1:
+        if A.shape[0] % 2:
+            eye = np.broadcast_to(np.eye(2, dtype=A.dtype), (1,) + A.shape[1:])
+            A = np.concatenate([A, eye], axis=0)
+        A = A[1::2] @ A[0::2]
+        if not cplx:
+            s = np.max(np.abs(A), axis=(-1, -2))
+            s = np.where(s > 0, s, 1.0)
+            A = A / s[..., None, None]
+            if track_log:
+                logs = logs + np.log(s).sum(axis=0)
+    return A[0], logs
+
+
+def propagate_states(sl: Slices, energies, psi0, u0, *, backward: bool = False):
+    """Boundary states of the solution started at one end (real energies).
+
+    Returns arrays (ns+1, nE) psi, u (each boundary vector normalised to max 1)
+    and log-scale (ns+1, nE) of the true amplitude relative to the start, plus
+    the per-slice coefficients.
+    """
+    coef = coefficients(sl, energies)
+    a, b, c, d, ls = coef
+    ns = sl.n
+    nE = np.asarray(energies).size
+    P = np.empty((ns + 1, nE))
+    U = np.empty((ns + 1, nE))
+    L = np.zeros((ns + 1, nE))
+    p = np.broadcast_to(np.asarray(psi0, dtype=float), (nE,)).copy()
+    u = np.broadcast_to(np.asarray(u0, dtype=float), (nE,)).copy()
+    s = np.maximum(np.abs(p), np.abs(u))
+    p, u = p / s, u / s
+    lg = np.log(s)
+    order = range(ns - 1, -1, -1) if backward else range(ns)
+    pos = ns if backward else 0
+    P[pos], U[pos], L[pos] = p, u, lg
+    for j in order:
+        if backward:
+            p, u = a[j] * p - b[j] * u, -c[j] * p + d[j] * u
+            pos = j
+        else:
+            p, u = a[j] * p + b[j] * u, c[j] * p + d[j] * u
+            pos = j + 1
+        s = np.maximum(np.abs(p), np.abs(u))
+        p, u = p / s, u / s
+        lg = lg + np.log(s) + ls[j]
+        P[pos], U[pos], L[pos] = p, u, lg
+    return P, U, L, coef
+
+
+def count_nodes(sl: Slices, energies, P, U) -> np.ndarray:
+    """Number of zeros of psi inside the slices (x in (0, h]), from forward boundary states.
+
+    Oscillatory slice: psi = R sin(k x + phi0) with phi0 the local angle of the
+    start vector taken in [0, pi); the zeros in (0, h] number
+    floor((phi0 + k h)/pi).  Evanescent slice: psi has at most one zero, present
+    exactly when psi changes sign across the slice.
+    """
+    E = np.asarray(energies)[None, :]
+    m = eff_mass(sl.m_m0[:, None], sl.v_eV[:, None], sl.g_eV[:, None], E)
+    q = m * (E - sl.v_eV[:, None]) / C_EV_NM2
+    osc = q > 0
+    k = np.sqrt(np.where(osc, q, 1.0))
+    p0, u0, p1 = P[:-1], U[:-1], P[1:]
+    phi0 = np.mod(np.arctan2(p0, m * u0 / k), np.pi)
+    n_osc = np.floor((phi0 + k * sl.h_nm[:, None]) / np.pi)
+    n_ev = ((p0 * p1 < 0) | ((p1 == 0) & (p0 != 0))).astype(float)
+    return np.where(osc, n_osc, n_ev).sum(axis=0).astype(np.int64)
