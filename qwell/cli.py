@@ -127,19 +127,22 @@ def cmd_profile(args) -> int:
     import numpy as np
     rows = []
     for lp in prof.layers:
-        sel = (prof.z_nm >= lp.start_nm) & (prof.z_nm <= lp.end_nm)
-        ec = prof.conduction_edge_eV[sel]
-        ev = np.fmax(prof.heavy_hole_edge_eV[sel], prof.light_hole_edge_eV[sel])
+        sel = prof.layer_samples(lp.index)
+
         def rng(a):
+            a = a[sel]
             a = a[np.isfinite(a)]
             if a.size == 0:
                 return "—"
             lo, hi = float(a.min()), float(a.max())
             return f"{lo:.4f}" if abs(hi - lo) < 5e-5 else f"{lo:.4f}..{hi:.4f}"
-        rows.append([lp.label, lp.material, f"{lp.start_nm:.3f}", f"{lp.thickness_nm:.3f}",
-                     rng(ec), rng(ev), f"{100 * lp.strain_xx:+.3f}"])
-    print(_table(rows, ["layer", "material", "start nm", "thick nm", "Ec eV", "Ev eV", "eps_xx %"],
-                 ["<", "<", ">", ">", ">", ">", ">"]))
+        ml = f"{lp.thickness_nm / lp.monolayer_nm:.1f}" if lp.monolayer_nm else "—"
+        rows.append([lp.label, lp.material, f"{lp.start_nm:.3f}", f"{lp.thickness_nm:.3f}", ml,
+                     rng(prof.conduction_edge_eV), rng(prof.heavy_hole_edge_eV),
+                     rng(prof.light_hole_edge_eV), f"{100 * lp.strain_xx:+.3f}"])
+    print(_table(rows, ["layer", "material", "start nm", "thick nm", "ML", "Ec eV", "Ehh eV",
+                        "Elh eV", "eps_xx %"],
+                 ["<", "<", ">", ">", ">", ">", ">", ">", ">"]))
     for w in prof.warnings:
         print(f"warning: {w}")
     return 0
@@ -176,15 +179,31 @@ def _state_rows(sol):
     return rows
 
 
-def _transition_rows(transitions):
-    rows = []
-    for t in transitions:
-        strength = (f"f={t.oscillator_strength:.4f}" if t.oscillator_strength is not None
-                    else f"|<e|h>|²={t.overlap:.4f} TE={t.te:.3f} TM={t.tm:.3f}")
-        rows.append([t.name, t.kind, f"{t.energy_eV:.6f}", f"{t.wavelength_um:.5f}",
-                     f"{t.wavenumber_cm1:.2f}", f"{t.frequency_THz:.3f}",
-                     "" if t.dipole_nm is None else f"{t.dipole_nm:.4f}", strength])
-    return rows
+def _print_transitions(trans, show_all=False) -> None:
+    """Intersubband then interband tables, each strongest first; forbidden lines counted."""
+    from .optics import strength
+
+    inter = sorted((t for t in trans if t.kind == "intersubband"), key=lambda t: -strength(t))
+    band = sorted((t for t in trans if t.kind == "interband"), key=lambda t: -strength(t))
+    if inter:
+        rows = [[t.name, f"{t.energy_eV:.6f}", f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}",
+                 f"{t.frequency_THz:.3f}", f"{t.dipole_nm:.4f}", f"{t.oscillator_strength:.4f}"]
+                for t in inter]
+        print("\nIntersubband transitions (absorption from the lower state, strongest first)")
+        print(_table(rows, ["transition", "energy eV", "λ µm", "cm⁻¹", "THz", "|z| nm", "f"],
+                     ["<", ">", ">", ">", ">", ">", ">"]))
+    if band:
+        shown = band if show_all else [t for t in band if (t.overlap or 0.0) >= 1e-3]
+        rows = [[t.name, f"{t.energy_eV:.6f}", f"{1e3 * t.wavelength_um:.2f}",
+                 f"{t.overlap:.4f}", f"{t.te:.4f}", f"{t.tm:.4f}", "Δn=0" if t.strongest else ""]
+                for t in shown]
+        print("\nInterband transitions (strongest first; excitonic binding not included)")
+        print(_table(rows, ["transition", "energy eV", "λ nm", "|<e|h>|²", "TE", "TM", ""],
+                     ["<", ">", ">", ">", ">", ">", "<"]))
+        hidden = len(band) - len(shown)
+        if hidden:
+            print(f"({hidden} interband line{'s' if hidden != 1 else ''} with |<e|h>|² < 0.001 "
+                  "not shown; --json lists all)")
 
 
 def cmd_levels(args) -> int:
@@ -241,7 +260,8 @@ def cmd_levels(args) -> int:
                      ["<", "<", ">", ">", ">", ">"]))
     for m, sol in sols.items():
         for lev in sol.levels.values():
-            if lev.message:
+            if lev.message and (not lev.states or "bound state" not in lev.message.split(";")[0]
+                                or ";" in lev.message):
                 print(f"note ({m}, {lev.band}): {lev.message}")
             for n in lev.notes:
                 print(f"note ({m}, {lev.band}): {n}")
@@ -251,11 +271,7 @@ def cmd_levels(args) -> int:
         for n in sol.notes:
             print(f"note: {n}")
     trans = chosen.get("exact", ())
-    if trans:
-        print("\nTransitions (strongest first; excitonic binding not included)")
-        print(_table(_transition_rows(trans), ["transition", "kind", "energy eV", "λ µm", "cm⁻¹", "THz",
-                                               "z nm", "strength"],
-                     ["<", "<", ">", ">", ">", ">", ">", "<"]))
+    _print_transitions(trans, show_all=bool(args.transition))
     for w in next(iter(sols.values())).profile.warnings:
         print(f"warning: {w}")
     if args.png:
@@ -319,7 +335,8 @@ def _register_optional():
             mod = __import__(modname, fromlist=["register"])
         except ImportError:
             continue
-        _EXTRA_COMMANDS.append(mod.register)
+        if mod.register not in _EXTRA_COMMANDS:
+            _EXTRA_COMMANDS.append(mod.register)
 
 
 def main(argv=None) -> int:

@@ -127,6 +127,11 @@ class Profile:
     light_hole_mass: np.ndarray = field(repr=False)
     gap_eV: np.ndarray = field(repr=False)
     warnings: tuple = ()
+    sample_layer: np.ndarray | None = field(default=None, repr=False)
+
+    def layer_samples(self, index: int) -> np.ndarray:
+        """Boolean mask of the samples that belong to layer ``index``."""
+        return self.sample_layer == index
 
     @property
     def total_thickness_nm(self) -> float:
@@ -337,8 +342,11 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
             if any(m.lattice_constant_nm is None for m in mats):
                 lw.append("no lattice constant: treated as unstrained")
             else:
+                # A layer with more growth on top is buried (capped: the double-kink
+                # balance of Matthews and Blakeslee); the last layer is at the surface.
+                capped = layer.index < len(stack.layers) - 1
                 try:
-                    hc = min(critical_thickness_nm(m, substrate_mat) for m in mats)
+                    hc = min(critical_thickness_nm(m, substrate_mat, capped=capped) for m in mats)
                 except (TypeError, ValueError, MaterialError):
                     hc = math.inf
                 if layer.thickness_nm > hc:
@@ -401,11 +409,12 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
                             nonparabolic=nonpar, repeats=repeats, layer_names=labels)
 
     # -- samples --------------------------------------------------------------
-    zs, cols = [], {k: [] for k in ("ec", "ehh", "elh", "me", "mhh", "mlh", "gap")}
-    for f in funcs:
+    zs, owner, cols = [], [], {k: [] for k in ("ec", "ehh", "elh", "me", "mhh", "mlh", "gap")}
+    for i, f in enumerate(funcs):
         n = max(2, int(math.ceil((f.z1 - f.z0) / sample_step_nm)) + 1)
         zz = np.linspace(f.z0, f.z1, n)
         zs.append(zz)
+        owner.append(np.full(n, i))
         extra = electrostatic_eV(zz) if electrostatic_eV is not None else 0.0
         for k in cols:
             v = f.value(k, zz)
@@ -418,4 +427,4 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
                    conduction_edge_eV=cat["ec"], heavy_hole_edge_eV=cat["ehh"],
                    light_hole_edge_eV=cat["elh"], electron_mass=cat["me"],
                    heavy_hole_mass=cat["mhh"], light_hole_mass=cat["mlh"], gap_eV=cat["gap"],
-                   warnings=tuple(warnings))
+                   warnings=tuple(warnings), sample_layer=np.concatenate(owner))

@@ -1,0 +1,174 @@
+"""Command line: JSON contracts, readable tables, one-line errors with exit status 2."""
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from qwell.cli import main
+
+ROOT = Path(__file__).resolve().parents[1]
+LAYERS = sorted((ROOT / "layers").glob("*.yaml"))
+
+MATERIAL_KEYS = {"band_gap_eV", "lattice_constant_nm", "electron_mass", "valence_edge_eV",
+                 "conduction_edge_eV", "heavy_hole_mass", "light_hole_mass", "spin_orbit_eV",
+                 "kane_energy_eV", "c11_GPa", "c12_GPa", "ac_eV", "av_eV", "b_eV",
+                 "dielectric_constant"}
+
+
+def run(capsys, *argv):
+    rc = main(list(argv))
+    out, err = capsys.readouterr()
+    return rc, out, err
+
+
+def test_materials_json_contract(capsys):
+    rc, out, err = run(capsys, "materials", "GaAs", "--temperature", "77K", "--json")
+    assert rc == 0, err
+    js = json.loads(out)
+    assert set(js) >= {"name", "temperature_K", "parameters", "sources"}
+    assert js["temperature_K"] == 77.0
+    assert MATERIAL_KEYS <= set(js["parameters"])
+    # every parameter names its published source
+    assert all(js["sources"].get(k) for k in MATERIAL_KEYS)
+    assert any("J. Appl. Phys. 89, 5815" in s for s in js["sources"].values())
+    # Varshni: Eg(T) = Eg0 - alpha T^2/(T + beta), GaAs 1.519 eV, 0.5405 meV/K, 204 K
+    # (Vurgaftman, Meyer, Ram-Mohan, J. Appl. Phys. 89, 5815 (2001), from memory)
+    assert js["parameters"]["band_gap_eV"] == pytest.approx(1.519 - 0.5405e-3 * 77**2 / (77 + 204), abs=1e-6)
+
+
+def test_materials_list_and_table(capsys):
+    rc, out, _ = run(capsys, "materials")
+    assert rc == 0 and "AlGaAs" in out and "InGaAsP" in out
+    rc, out, _ = run(capsys, "materials", "Al0.3Ga0.7As")
+    assert rc == 0 and "band_gap_eV" in out and "[1]" in out
+
+
+def test_profile_json_contract(capsys):
+    rc, out, err = run(capsys, "profile", str(ROOT / "layers" / "pump-laser-well.yaml"), "--json")
+    assert rc == 0, err
+    js = json.loads(out)
+    for key in ("z_nm", "conduction_edge_eV", "heavy_hole_edge_eV", "light_hole_edge_eV",
+                "electron_mass", "layers"):
+        assert key in js
+    assert [lay["name"] for lay in js["layers"]] == ["lower_guide", "well", "upper_guide"]
+    assert js["layers"][1]["strain_xx"] < 0
+
+
+def test_profile_png(capsys, tmp_path):
+    import matplotlib.image as mpimg
+    png = tmp_path / "p.png"
+    rc, out, err = run(capsys, "profile", str(ROOT / "layers" / "parabolic-well.yaml"), "--png", str(png))
+    assert rc == 0, err
+    img = mpimg.imread(png)
+    assert img.shape[0] > 300 and img.shape[1] > 500
+    assert float(np.std(img[..., :3])) > 0.05   # not blank
+
+
+@pytest.mark.parametrize("path", LAYERS, ids=[p.stem for p in LAYERS])
+def test_levels_json_contract_on_examples(capsys, path):
+    rc, out, err = run(capsys, "levels", str(path), "--json")
+    assert rc == 0, err
+    js = json.loads(out)
+    assert set(js) >= {"stack", "temperature_K", "method", "states", "transitions"}
+    assert js["method"] == "exact"
+    assert js["states"], "every example confines something"
+    for s in js["states"]:
+        assert set(s) >= {"band", "label", "index", "energy_eV", "bound", "lifetime_s"}
+        assert s["band"] in ("conduction", "heavy_hole", "light_hole")
+        assert s["label"].startswith({"conduction": "e", "heavy_hole": "hh", "light_hole": "lh"}[s["band"]])
+        assert (s["lifetime_s"] is None) == s["bound"]
+    for t in js["transitions"]:
+        assert t["energy_eV"] > 0
+        # lambda = hc/E with CODATA constants (scipy.constants): 1.239842 um eV
+        assert t["wavelength_um"] == pytest.approx(1.2398419843320026 / t["energy_eV"], rel=1e-9)
+
+
+def test_levels_table_and_transition_pick(capsys):
+    rc, out, err = run(capsys, "levels", str(ROOT / "layers" / "lwir-detector.yaml"),
+                       "--band", "conduction", "--transition", "e1-e2")
+    assert rc == 0, err
+    assert "e1" in out and "e2" in out and "Intersubband" in out
+
+
+def test_gaas_well_emits_near_850nm(capsys, tmp_path):
+    # Fact of the trade (common practice, no source): a GaAs well of about 8-10 nm between
+    # Al0.3Ga0.7As barriers emits near 850 nm at room temperature; required within +-25 nm.
+    for width in ("8 nm", "10 nm"):
+        f = tmp_path / "w.yaml"
+        f.write_text("substrate: GaAs\nlayers:\n  - {material: Al0.30Ga0.70As, thickness: 30 nm}\n"
+                     f"  - {{material: GaAs, thickness: {width}}}\n"
+                     "  - {material: Al0.30Ga0.70As, thickness: 30 nm}\n")
+        rc, out, err = run(capsys, "levels", str(f), "--json")
+        assert rc == 0, err
+        t = {x["from"] + "-" + x["to"]: x for x in json.loads(out)["transitions"]}["e1-hh1"]
+        assert abs(1e3 * t["wavelength_um"] - 850.0) < 25.0
+
+
+def test_ingaas_well_emits_near_980nm(capsys, tmp_path):
+    # Fact of the trade (common practice, no source): a strained In0.2Ga0.8As well of about
+    # 7-8 nm between GaAs barriers emits near 980 nm; required within +-25 nm.
+    for width in ("7 nm", "8 nm"):
+        f = tmp_path / "w.yaml"
+        f.write_text("substrate: GaAs\nlayers:\n  - {material: GaAs, thickness: 30 nm}\n"
+                     f"  - {{material: In0.2Ga0.8As, thickness: {width}}}\n"
+                     "  - {material: GaAs, thickness: 30 nm}\n")
+        rc, out, err = run(capsys, "levels", str(f), "--json")
+        assert rc == 0, err
+        t = {x["from"] + "-" + x["to"]: x for x in json.loads(out)["transitions"]}["e1-hh1"]
+        assert abs(1e3 * t["wavelength_um"] - 980.0) < 25.0
+
+
+# --- bad input: one line, exit 2, no traceback, nothing written -------------------------
+
+BAD = {
+    "unknown material": ("layers:\n  - {material: GaAss, thickness: 5 nm}\n", r"bad\.yaml:2: .*GaAss.*did you mean"),
+    "bare number": ("layers:\n  - {material: GaAs, thickness: 6.5}\n", r"bad\.yaml:2: .*thickness.*'5 nm'"),
+    "wrong unit": ("layers:\n  - {material: GaAs, thickness: 5 eV}\n", r"bad\.yaml:2: .*thickness.*not a length"),
+    "composition sum": ("layers:\n  - {material: Al0.3Ga0.6As, thickness: 5 nm}\n", r"bad\.yaml:2: .*sum"),
+    "empty": ("layers: []\n", r"bad\.yaml:1: .*layers"),
+    "not yaml": ("layers: [ {material: GaAs\n", r"bad\.yaml:\d+: .*YAML"),
+}
+
+
+@pytest.mark.parametrize("case", sorted(BAD))
+def test_bad_stack_one_line_exit_2(capsys, tmp_path, case):
+    text, pattern = BAD[case]
+    f = tmp_path / "bad.yaml"
+    f.write_text(text)
+    png = tmp_path / "out.png"
+    rc, out, err = run(capsys, "levels", str(f), "--png", str(png))
+    assert rc == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1, err
+    assert "Traceback" not in err
+    import re
+    assert re.search(pattern, lines[0]), lines[0]
+    assert not png.exists()
+    assert f.read_text() == text
+
+
+def test_missing_file_and_usage(capsys, tmp_path):
+    rc, out, err = run(capsys, "profile", str(tmp_path / "nope.yaml"))
+    assert rc == 2 and "nope.yaml" in err and len(err.strip().splitlines()) == 1
+    with pytest.raises(SystemExit) as exc:
+        main(["levels", "x.yaml", "--method", "guess"])
+    assert exc.value.code == 2
+
+
+def test_png_to_missing_folder_writes_nothing(capsys, tmp_path):
+    rc, out, err = run(capsys, "profile", str(ROOT / "layers" / "pump-laser-well.yaml"),
+                       "--png", str(tmp_path / "no" / "p.png"))
+    assert rc == 2 and "does not exist" in err
+
+
+def test_console_entry_point_no_traceback(tmp_path):
+    f = tmp_path / "bad.yaml"
+    f.write_text("layers:\n  - {material: Unobtainium, thickness: 5 nm}\n")
+    res = subprocess.run([sys.executable, "-m", "qwell.cli", "levels", str(f)],
+                         capture_output=True, text=True, timeout=120)
+    assert res.returncode == 2
+    assert "Traceback" not in res.stderr and "Unobtainium" in res.stderr
