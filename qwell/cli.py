@@ -129,7 +129,7 @@ def cmd_profile(args) -> int:
     for lp in prof.layers:
         sel = prof.layer_samples(lp.index)
 
-        def rng(a):
+        def rng(a, sel=sel):
             a = a[sel]
             a = a[np.isfinite(a)]
             if a.size == 0:
