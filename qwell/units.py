@@ -38,6 +38,10 @@ HC_EV_UM = _c.h * _c.c / _c.e * 1e6
 
 _NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")
 
+_NUMBER_UNIT = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.+)$")
+_OFFSET_UNITS = {"degC": "degC", "°C": "degC", "C": "degC", "celsius": "degC",
+                 "degF": "degF", "°F": "degF"}
+
 # Human spellings of the internal units, for messages.
 _UNIT_WORDS = {
     "nm": "a length (e.g. '5 nm', '50 Å', '23 ML')",
@@ -74,6 +78,10 @@ def parse_quantity(value, what: str = "value") -> pint.Quantity:
     text = value.strip().replace("µ", "u").replace("μ", "u").replace("Å", "angstrom")
     if _NUMBER_ONLY.match(text):
         raise UnitError(f"bare number {value!r} has no unit")
+    m = _NUMBER_UNIT.match(text)
+    if m and m.group(2).strip() in _OFFSET_UNITS:
+        # offset units (degC, degF) cannot go through pint's expression parser
+        return ureg.Quantity(float(m.group(1)), _OFFSET_UNITS[m.group(2).strip()])
     try:
         q = ureg.Quantity(text)
     except Exception as exc:  # pint raises several unrelated types

@@ -22,6 +22,8 @@ def test_hc_from_codata():
     ("12 kV/cm", "kV/cm", 12.0),
     ("1.2e6 V/m", "kV/cm", 12.0),
     ("77 K", "K", 77.0),
+    ("25 degC", "K", 298.15),
+    ("-196 °C", "K", 77.15),
     ("1e18 cm^-3", "cm^-3", 1e18),
 ])
 def test_to_float_conversions(text, unit, value):
