@@ -1,0 +1,1114 @@
+"""Semiclassical (WKB) subband estimator.
+
+The estimator works on a :class:`qwell.bands.Band` in the carrier convention
+(bound states lie above the bottom of ``V``).  It is fully independent of the
+exact solver.
+
+Quantisation rule
+-----------------
+In a classically allowed region ``[z_L, z_R]`` (``E > V``) with local wave
+number ``k(z) = sqrt(2 m(z, E) (E - V(z))) / hbar`` the envelope far from the
+ends is ``psi ~ sin(int_z^{z_R} k dz' + delta_R)`` and, from the other end,
+``sin(int_{z_L}^z k dz' + delta_L)``.  Both agree when
+
+    Phi(E) = int_{z_L}^{z_R} k dz = n pi - delta_L - delta_R,    n = 1, 2, ...
+
+Written with the reflection phases ``phi = pi - 2 delta`` of the two ends this
+is ``Phi = (n - 1) pi + (phi_L + phi_R) / 2``.  The end phases are
+
+* smooth turning point: ``delta = pi/4`` (``phi = pi/2``, the Maslov index
+  1/2 of each smooth point) [1]_, [2]_;
+* hard wall (infinite barrier): ``delta = 0`` (``phi = pi``);
+* abrupt finite step into a barrier ``V_b > E`` with BenDaniel-Duke matching
+  (``psi`` and ``psi'/m`` continuous) [3]_, [4]_:
+  ``delta = arctan(m_b k / (m_w kappa))``, i.e.
+  ``tan(phi/2) = m_w kappa / (m_b k)``, with ``k``, ``m_w`` on the well side
+  and ``kappa = sqrt(2 m_b (V_b - E)) / hbar``, ``m_b`` on the barrier side,
+  all at the step.  For a flat well this is exactly the even/odd
+  transcendental equations of the finite square well [4]_; for
+  ``kappa -> inf`` it tends to the hard wall.
+
+Hence two smooth points give ``(n - 1/2) pi``, a hard wall and a smooth point
+``(n - 1/4) pi``, two hard walls ``n pi``.  The function
+``G(E) = (Phi + delta_L + delta_R) / pi`` increases with ``E``; the n-th state
+of a region is at ``G(E) = n``.
+
+Uniform step phase.  When the potential on the well side rises linearly
+towards a step (a well under a field), the turning point and the step can be
+close and neither rule holds.  The end phase is then taken from the exact
+solution of the linear potential (Airy functions, [5]_) matched to the
+decaying barrier wave with the BenDaniel-Duke conditions: with
+``l = (hbar^2 / (2 m_w F))^(1/3)``, ``xi_s = (V(z_s-) - E) / (F l)``,
+``w = Ai - i Bi`` and ``W = w'(xi_s) + q l w(xi_s)``, ``q = m_w kappa / m_b``:
+
+* turning point inside the well layer (``xi_s > 0``; ``Phi`` runs to it):
+  ``delta = -pi/4 - arg W``;
+* step reached (``xi_s <= 0``; ``Phi`` runs to the step):
+  ``delta = pi/2 - arg(-W exp(-i(zeta_s + pi/4)))``,
+  ``zeta_s = (2/3)(-xi_s)^(3/2)``.
+
+Both are continuous at ``xi_s = 0`` and tend to ``pi/4`` (``xi_s -> +inf``)
+and to the step rule above (``xi_s -> -inf``), so the estimate has no jump
+when a level crosses the energy of a layer edge.
+
+Several regions.  Each classically allowed region is quantised on its own
+with its end phases (a step phase treats the barrier as semi-infinite).  A
+state is flagged as unreliable when a neighbouring barrier's tunnelling
+factor ``T = exp(-int kappa dz)`` exceeds ``0.1`` or when a level of the
+neighbouring region lies so close that the two-level admixture
+``t / |E - E'|`` exceeds 0.1, with the coupling estimated from the doublet
+splitting of a symmetric double well [1]_ (§50, problem 3),
+``Delta = (hbar omega / pi) T``, ``t = Delta / 2`` and ``hbar omega`` the local
+level spacing ``1 / (dG/dE)`` (geometric mean of the two regions).
+
+Validity figure.  ``State.validity`` is the largest of
+
+* the smallest ``|d lambda/dz| / (2 pi) = |d(1/k)/dz|`` over the region (the
+  best local WKB quality anywhere in the region: it is 0 in a flat well and
+  0.14 for the ground state of a triangular well with a hard wall, whose
+  semiclassical energy is 0.8 % low (0.17 from the next item); it is 0.42 for the ground state of a
+  V-shaped well, 10 % off);
+* the largest ``|d(1/k)/dz|`` at points more than two local Airy lengths
+  from every smooth turning point (near a linear turning point this is at
+  most ``1/(2 * 2^(3/2)) = 0.18``; larger values mean fast variation of the
+  potential inside the region);
+* the largest reflection amplitude ``|(k1/m1 - k2/m2)/(k1/m1 + k2/m2)|`` of
+  an abrupt step inside the region (ignored by the quantisation rule).
+
+Above ``VALIDITY_THRESHOLD = 0.25`` (worse than a ground state of a
+triangular well) a :class:`~qwell.errors.ValidityWarning` is issued and noted.
+This figure does not see the error of the ground state of a smooth, flat
+bottomed anharmonic well (e.g. quartic); treat such ground states with care.
+
+Numerics.  Turning points come from the pieces: analytic for linear pieces,
+bisection inside monotone stretches of smooth pieces (split at their
+extrema).  Phase integrals are closed forms for flat pieces and parabolic
+linear pieces, else Gauss-Legendre quadrature after the substitution
+``z = a + (b - a)(1 - cos theta)/2``, which removes the square-root end
+singularities, with node doubling until two estimates agree to
+``PHASE_TOLERANCE_RAD`` (energy error below ``1e-9`` times the level
+spacing).  Everything is vectorised across energies.  Energies are split into segments
+between the "critical" energies (potential values at layer edges and at the
+extrema of smooth layers), inside which the region structure is fixed and
+``G`` is continuous and increasing; ``G`` on a 33-point grid per segment
+brackets every root, inverse quadratic interpolation gives a start, and
+vectorised secant rounds end with a bracket of width ``tolerance_eV``
+(Illinois iteration as fallback).  Where a critical energy makes the count
+``sum floor(G)`` drop (e.g. a shallow shoulder becoming allowed) the
+running maximum of the count is used, so no state is listed twice, and the
+notes name the energy; a count that jumps up there gives a state at that
+energy marked "ill-defined".
+
+Wavefunctions are not provided (``State.psi`` and ``State.z_nm`` are None,
+``layer_probability`` is empty).
+
+References
+----------
+.. [1] L. D. Landau and E. M. Lifshitz, Quantum Mechanics (Non-relativistic
+   Theory), 3rd ed., Pergamon (1977), §47-§50.
+.. [2] M. V. Berry and K. E. Mount, "Semiclassical approximations in wave
+   mechanics", Rep. Prog. Phys. 35, 315 (1972).
+.. [3] D. J. BenDaniel and C. B. Duke, "Space-charge effects on electron
+   tunneling", Phys. Rev. 152, 683 (1966).
+.. [4] G. Bastard, "Superlattice band structure in the envelope-function
+   approximation", Phys. Rev. B 24, 5693 (1981).
+.. [5] M. Abramowitz and I. A. Stegun, Handbook of Mathematical Functions,
+   NBS (1964), §10.4 (Airy functions).
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import constants as _c
+from scipy import optimize as _opt
+from scipy import special as _sp
+
+from ..bands import _MIN_MASS_FRACTION, Band
+from ..errors import ParameterError, ValidityWarning
+from .results import Levels, State
+
+__all__ = [
+    "solve_semiclassical",
+    "quantisation_phase",
+    "RegionPhase",
+    "QuantisationPhase",
+    "HBAR2_2M0_EV_NM2",
+    "VALIDITY_THRESHOLD",
+    "TUNNEL_FACTOR_LIMIT",
+    "PHASE_TOLERANCE_RAD",
+]
+
+#: hbar^2 / (2 m0) in eV nm^2 (CODATA via scipy.constants; 0.0380998 eV nm^2).
+HBAR2_2M0_EV_NM2 = _c.hbar ** 2 / (2.0 * _c.m_e) / _c.e * 1e18
+#: Validity figure above which a ValidityWarning is issued.
+VALIDITY_THRESHOLD = 0.25
+#: Tunnelling factor exp(-int kappa dz) above which a barrier is "not opaque".
+TUNNEL_FACTOR_LIMIT = 0.1
+#: Admixture t/|dE| above which two levels of neighbouring regions are "resonant".
+MIXING_LIMIT = 0.1
+#: Agreement required between successive quadrature estimates of a phase integral [rad].
+PHASE_TOLERANCE_RAD = 1e-10
+
+_SCAN_POINTS = 33
+#: |G - n| below which an energy counts as on the root (G carries ~1e-13 rounding).
+_G_NOISE = 1e-11
+_GL_START = 16
+_GL_MAX = 4096
+_GL_CACHE: dict = {}
+
+
+def _gl_theta(n: int):
+    """Gauss-Legendre nodes/weights on theta in [0, pi] and the cos map."""
+    if n not in _GL_CACHE:
+        x, w = np.polynomial.legendre.leggauss(n)
+        theta = 0.5 * np.pi * (x + 1.0)
+        t = 0.5 * (1.0 - np.cos(theta))          # position fraction in (0, 1)
+        wt = 0.5 * np.pi * w * 0.5 * np.sin(theta)  # dt = sin(theta)/2 dtheta
+        _GL_CACHE[n] = (t, wt)
+    return _GL_CACHE[n]
+
+
+# ---------------------------------------------------------------------------
+# Elements: monotone stretches of the pieces
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class _Element:
+    z_a: float
+    z_b: float
+    piece: int
+    v_a: float          # V at z_a+ (one-sided) [eV]
+    v_b: float          # V at z_b- [eV]
+    kind: str           # 'flat', 'linear', 'smooth'
+    junction_a: bool    # z_a is a piece boundary (or band start)
+    junction_b: bool
+    z_table: np.ndarray | None = field(default=None, compare=False, repr=False)
+    v_table: np.ndarray | None = field(default=None, compare=False, repr=False)
+
+
+def _piece_mass(band: Band, piece, z, energy):
+    """m(z, E) [m0] of one piece (same two-band rule as Band.mass)."""
+    m = piece.mass(z)
+    if band.nonparabolic:
+        g = piece.gap(z)
+        if g is not None:
+            factor = 1.0 + (energy - piece.potential(z)) / g
+            m = m * np.maximum(factor, _MIN_MASS_FRACTION)
+    return m
+
+
+def _slope(piece, z_nm: float, side: int) -> float:
+    """dV/dz [eV/nm] of a piece at z, one-sided inside the piece."""
+    if piece.kind != "smooth":
+        return float(piece.edge_slope_eV_per_nm)
+    h = 1e-5 * piece.thickness_nm
+    z0 = z_nm if side > 0 else z_nm - 2 * h
+    v = piece.potential(np.array([z0, z0 + h, z0 + 2 * h]))
+    if side > 0:
+        return float((-3 * v[0] + 4 * v[1] - v[2]) / (2 * h))
+    return float((v[0] - 4 * v[1] + 3 * v[2]) / (2 * h))
+
+
+def _build_elements(band: Band) -> list:
+    els = []
+    for ip, p in enumerate(band.pieces):
+        a, b = p.z_start_nm, p.z_end_nm
+        if p.kind != "smooth":
+            v0 = float(p.edge_start_eV)
+            slope = float(p.edge_slope_eV_per_nm)     # Piece.potential uses it for both kinds
+            v1 = v0 + slope * (b - a) if slope != 0.0 else v0
+            els.append(_Element(a, b, ip, v0, v1, "linear" if slope != 0.0 else "flat",
+                                True, True))
+            continue
+        z = np.linspace(a, b, 513)
+        v = p.potential(z)
+        d = np.sign(np.diff(v))
+        cuts = [a]
+        for i in range(1, len(d)):
+            if d[i] != d[i - 1] and d[i] != 0 and d[i - 1] != 0:
+                lo, hi = z[i - 1], z[i + 1]
+                sgn = 1.0 if d[i - 1] < 0 else -1.0   # minimum if falling then rising
+                r = _opt.minimize_scalar(lambda x, sgn=sgn, p=p:
+                                         sgn * float(p.potential(np.array([x]))[0]),
+                                         bounds=(lo, hi), method="bounded",
+                                         options={"xatol": 1e-12 * max(1.0, abs(b - a))})
+                if cuts[-1] < r.x < b:
+                    cuts.append(float(r.x))
+        cuts.append(b)
+        for j in range(len(cuts) - 1):
+            za, zb = cuts[j], cuts[j + 1]
+            va, vb = p.potential(np.array([za, zb]))
+            zt = np.linspace(za, zb, 129)
+            vt = p.potential(zt)
+            vt[0], vt[-1] = va, vb
+            els.append(_Element(za, zb, ip, float(va), float(vb), "smooth", j == 0,
+                                j == len(cuts) - 2, zt, vt))
+    return els
+
+
+# ---------------------------------------------------------------------------
+# Region structure at one energy
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class _Boundary:
+    side: int            # -1 left end of the region, +1 right end
+    kind: str            # 'turning' or 'step'
+    element: int         # element holding the turning point / allowed element at the step
+    other: int | None    # element on the far side of the step / of the forbidden stretch
+
+
+@dataclass(frozen=True)
+class _Region:
+    elements: tuple      # indices of elements with an allowed part
+    left: _Boundary
+    right: _Boundary
+
+
+def _structure(els, energy: float) -> list:
+    """Allowed regions at one carrier energy (structure only)."""
+    n = len(els)
+    al = [e.v_a < energy for e in els]
+    ar = [e.v_b < energy for e in els]
+    regions = []
+    cur = None
+    left = None
+    for i in range(n):
+        if not (al[i] or ar[i]):
+            continue
+        if al[i] and i > 0 and ar[i - 1] and cur is not None:
+            cur.append(i)       # continues the open region
+        else:
+            cur = [i]
+            if al[i]:           # step at the left junction (or band start)
+                left = _Boundary(-1, "step", i, i - 1 if i > 0 else None)
+            else:
+                left = _Boundary(-1, "turning", i, i - 1 if i > 0 else None)
+        if not ar[i]:
+            regions.append(_Region(tuple(cur), left, _Boundary(+1, "turning", i,
+                                                                i + 1 if i + 1 < n else None)))
+            cur = None
+        elif i + 1 >= n or not al[i + 1]:
+            regions.append(_Region(tuple(cur), left, _Boundary(+1, "step", i,
+                                                                i + 1 if i + 1 < n else None)))
+            cur = None
+    return regions
+
+
+# ---------------------------------------------------------------------------
+# Vectorised pieces of the quantisation function
+# ---------------------------------------------------------------------------
+def _turning_point(band, el: _Element, energy: np.ndarray) -> np.ndarray:
+    """Turning point in a monotone element for each energy (vectorised)."""
+    p = band.pieces[el.piece]
+    if el.kind == "linear":
+        z = el.z_a + (energy - el.v_a) / p.edge_slope_eV_per_nm
+        return np.clip(z, el.z_a, el.z_b)
+    # bracket from the sampled table, then a vectorised Illinois iteration on V(z) - E
+    rising = el.v_b > el.v_a
+    vt = el.v_table if rising else el.v_table[::-1]
+    zt = el.z_table if rising else el.z_table[::-1]
+    vt = np.maximum.accumulate(vt)          # guard against rounding wiggles
+    j = np.clip(np.searchsorted(vt, energy), 1, len(vt) - 1)
+    a, b = zt[j - 1], zt[j]
+    fa, fb = vt[j - 1] - energy, vt[j] - energy
+    if energy.size == 1:                    # one energy: scalar Brent iteration
+        e0 = float(energy.ravel()[0])
+        fa0, fb0 = float(fa.ravel()[0]), float(fb.ravel()[0])
+        a0, b0 = float(a.ravel()[0]), float(b.ravel()[0])
+        if fa0 == 0.0 or fb0 == 0.0 or np.sign(fa0) == np.sign(fb0):
+            z0 = a0 if abs(fa0) <= abs(fb0) else b0
+        else:
+            z0 = _opt.brentq(lambda z: float(p.potential(np.array([z]))[0]) - e0, a0, b0,
+                             xtol=1e-13 * max(1.0, abs(el.z_a), abs(el.z_b)), rtol=1e-15)
+        return np.full_like(energy, min(max(z0, el.z_a), el.z_b))
+    side = np.zeros_like(energy)
+    tol = 1e-13 * max(1.0, abs(el.z_a), abs(el.z_b))
+    c = a
+    for _ in range(100):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            c = b - fb * (b - a) / (fb - fa)
+        c = np.where(np.isfinite(c), c, 0.5 * (a + b))
+        fc = p.potential(c) - energy
+        same_a = np.sign(fc) == np.sign(fa)
+        a_n = np.where(same_a, c, a)
+        fa_n = np.where(same_a, fc, fa)
+        b_n = np.where(same_a, b, c)
+        fb_n = np.where(same_a, fb, fc)
+        fb_n = np.where(same_a & (side < 0), 0.5 * fb_n, fb_n)
+        fa_n = np.where(~same_a & (side > 0), 0.5 * fa_n, fa_n)
+        side = np.where(same_a, -1.0, 1.0)
+        a, fa, b, fb = a_n, fa_n, b_n, fb_n
+        if np.all((np.abs(b - a) < tol) | (fc == 0)):
+            break
+    return np.clip(c, el.z_a, el.z_b)
+
+
+def _allowed_span(band, el: _Element, energy: np.ndarray):
+    if el.kind == "flat":
+        return np.full_like(energy, el.z_a), np.full_like(energy, el.z_b)
+    lo = np.full_like(energy, el.z_a)
+    hi = np.full_like(energy, el.z_b)
+    a_ok = el.v_a < energy
+    b_ok = el.v_b < energy
+    partial = a_ok != b_ok
+    if np.any(partial):
+        zt = _turning_point(band, el, energy)
+        lo = np.where(~a_ok & b_ok, zt, lo)
+        hi = np.where(a_ok & ~b_ok, zt, hi)
+    return lo, hi
+
+
+def _k(band, piece, z, energy, sign=1.0):
+    """Local wave number (sign=+1) or decay constant (sign=-1) [1/nm]."""
+    v = piece.potential(z)
+    m = _piece_mass(band, piece, z, energy)
+    return np.sqrt(np.maximum(sign * (energy - v), 0.0) * m / HBAR2_2M0_EV_NM2)
+
+
+def _gl_integral(band, piece, lo, hi, energy, sign=1.0):
+    """int_lo^hi k dz per energy, adaptive Gauss-Legendre. Returns (value, converged)."""
+    n = _GL_START
+    prev = None
+    span = (hi - lo)[:, None]
+    while True:
+        t, w = _gl_theta(n)
+        z = lo[:, None] + span * t[None, :]
+        e = np.broadcast_to(energy[:, None], z.shape)
+        val = np.sum(_k(band, piece, z, e, sign) * w[None, :], axis=1) * span[:, 0]
+        if prev is not None and np.max(np.abs(val - prev)) < PHASE_TOLERANCE_RAD:
+            return val, True
+        if n >= _GL_MAX:
+            return val, False
+        prev = val
+        n *= 2
+
+
+def _element_phase(band, el: _Element, energy: np.ndarray):
+    """int k dz over the allowed part of one element (vectorised)."""
+    p = band.pieces[el.piece]
+    if el.kind == "flat":
+        m = _piece_mass(band, p, np.full_like(energy, el.z_a), energy)
+        k = np.sqrt(np.maximum(energy - el.v_a, 0.0) * m / HBAR2_2M0_EV_NM2)
+        return k * (el.z_b - el.z_a), True
+    if el.kind == "linear" and (not band.nonparabolic or p.gap_eV is None):
+        s = p.edge_slope_eV_per_nm
+        ua = np.maximum(energy - el.v_a, 0.0)
+        ub = np.maximum(energy - el.v_b, 0.0)
+        return np.sqrt(p.mass_m0 / HBAR2_2M0_EV_NM2) * 2.0 / (3.0 * s) * (ua ** 1.5 - ub ** 1.5), True
+    lo, hi = _allowed_span(band, el, energy)
+    return _gl_integral(band, p, lo, hi, energy)
+
+
+def _airy_W(xi, ql):
+    ai, aip, bi, bip = _sp.airy(xi)
+    w = ai - 1j * bi
+    wp = aip - 1j * bip
+    with np.errstate(invalid="ignore"):
+        W = np.where(np.isinf(ql), w, (wp + np.where(np.isinf(ql), 0.0, ql) * w)
+                     / (1.0 + np.where(np.isinf(ql), 0.0, ql)))
+    return W
+
+
+def _boundary_delta(band, els, b: _Boundary, energy: np.ndarray):
+    """End phase delta (vectorised over energies) and a short kind tag."""
+    el = els[b.element]
+    p = band.pieces[el.piece]
+    z_s = el.z_b if b.side > 0 else el.z_a          # end of the element facing the boundary
+    other = els[b.other] if b.other is not None else None
+    if b.kind == "turning":
+        is_jump = (other is not None and other.piece != el.piece
+                   and abs((other.v_a if b.side > 0 else other.v_b)
+                           - (el.v_b if b.side > 0 else el.v_a)) > 1e-12)
+        if not is_jump:
+            return np.full_like(energy, np.pi / 4), "turning"
+        v_far = other.v_a if b.side > 0 else other.v_b
+        if not np.all(v_far > energy):
+            return np.full_like(energy, np.pi / 4), "turning"
+    else:
+        v_far = other.v_a if b.side > 0 else other.v_b
+    v_s = el.v_b if b.side > 0 else el.v_a
+    zz = np.full_like(energy, z_s)
+    m_w = _piece_mass(band, p, zz, energy)
+    k_s = np.sqrt(np.maximum(energy - v_s, 0.0) * m_w / HBAR2_2M0_EV_NM2)
+    if np.isinf(v_far):
+        q = np.full_like(energy, np.inf)
+    else:
+        po = band.pieces[other.piece]
+        m_b = _piece_mass(band, po, zz, energy)
+        kappa = np.sqrt(np.maximum(v_far - energy, 0.0) * m_b / HBAR2_2M0_EV_NM2)
+        q = m_w * kappa / m_b
+    f_toward = b.side * _slope(p, z_s, -b.side)      # dV/dz towards the boundary
+    if b.kind == "step" and f_toward <= 0.0:
+        with np.errstate(divide="ignore"):
+            return np.arctan2(k_s, q), "step"
+    if b.kind == "turning" and f_toward <= 0.0:
+        return np.full_like(energy, np.pi / 4), "turning"
+    ell = (HBAR2_2M0_EV_NM2 / (m_w * f_toward)) ** (1.0 / 3.0)
+    xi = (v_s - energy) / (f_toward * ell)
+    out = _airy_delta(b.kind, xi, q * ell, k_s, q)
+    return out, ("turning+step" if b.kind == "turning" else "step")
+
+
+def _region_G(band, els, reg: _Region, energy: np.ndarray):
+    """Quantum-number function G(E) = (Phi + dL + dR)/pi and its parts."""
+    phi = np.zeros_like(energy)
+    ok = True
+    for i in reg.elements:
+        val, conv = _element_phase(band, els[i], energy)
+        phi = phi + val
+        ok = ok and conv
+    dl, _ = _boundary_delta(band, els, reg.left, energy)
+    dr, _ = _boundary_delta(band, els, reg.right, energy)
+    return (phi + dl + dr) / np.pi, phi, dl, dr, ok
+
+
+def _const_mass(band, piece):
+    """Band-edge mass [m0] if the mass of this piece is z- and E-independent, else None."""
+    if piece.kind == "smooth":
+        return None
+    if band.nonparabolic and piece.gap_eV is not None:
+        return None
+    return float(piece.mass_m0)
+
+
+class _RegionPlan:
+    """Static data of one region within an energy segment, for fast G(E)."""
+
+    def __init__(self, band, els, reg: _Region):
+        self.band, self.els, self.reg = band, els, reg
+        self.terms = []
+        for i in reg.elements:
+            el = els[i]
+            p = band.pieces[el.piece]
+            m = _const_mass(band, p)
+            if m is not None and el.kind == "flat":
+                self.terms.append(("flat", np.sqrt(m / HBAR2_2M0_EV_NM2) * (el.z_b - el.z_a),
+                                   el.v_a, 0.0))
+            elif m is not None and el.kind == "linear":
+                self.terms.append(("linear", np.sqrt(m / HBAR2_2M0_EV_NM2) * 2.0
+                                   / (3.0 * p.edge_slope_eV_per_nm), el.v_a, el.v_b))
+            else:
+                self.terms.append(("general", el, 0.0, 0.0))
+        self.left = self._boundary(reg.left)
+        self.right = self._boundary(reg.right)
+
+    def _boundary(self, b: _Boundary):
+        els, band = self.els, self.band
+        el = els[b.element]
+        p = band.pieces[el.piece]
+        other = els[b.other] if b.other is not None else None
+        if b.kind == "turning":
+            if other is None or other.piece == el.piece:
+                return ("const", np.pi / 4)
+            v_far = other.v_a if b.side > 0 else other.v_b
+            v_s = el.v_b if b.side > 0 else el.v_a
+            if abs(v_far - v_s) <= 1e-12:
+                return ("const", np.pi / 4)
+        m_w = _const_mass(band, p)
+        m_b = _const_mass(band, band.pieces[other.piece]) if other is not None else None
+        if m_w is None or (m_b is None and not np.isinf(other.v_a if b.side > 0 else other.v_b)):
+            return ("general", b)
+        v_far = other.v_a if b.side > 0 else other.v_b
+        v_s = el.v_b if b.side > 0 else el.v_a
+        z_s = el.z_b if b.side > 0 else el.z_a
+        f_toward = b.side * _slope(p, z_s, -b.side)
+        return ("fast", b.kind, v_s, v_far, m_w, m_b, f_toward)
+
+    def delta(self, spec, energy):
+        if spec[0] == "const":
+            return np.full_like(energy, spec[1])
+        if spec[0] == "general":
+            return _boundary_delta(self.band, self.els, spec[1], energy)[0]
+        _, kind, v_s, v_far, m_w, m_b, f_toward = spec
+        k_s = np.sqrt(np.maximum(energy - v_s, 0.0) * (m_w / HBAR2_2M0_EV_NM2))
+        if np.isinf(v_far):
+            q = np.full_like(energy, np.inf)
+        else:
+            q = (m_w / np.sqrt(m_b * HBAR2_2M0_EV_NM2)) * np.sqrt(np.maximum(v_far - energy, 0.0))
+        if kind == "step" and f_toward <= 0.0:
+            return np.arctan2(k_s, q)
+        if kind == "turning" and f_toward <= 0.0:
+            return np.full_like(energy, np.pi / 4)
+        ell = (HBAR2_2M0_EV_NM2 / (m_w * f_toward)) ** (1.0 / 3.0)
+        xi = (v_s - energy) / (f_toward * ell)
+        return _airy_delta(kind, xi, q * ell, k_s, q)
+
+    def G(self, energy):
+        phi = np.zeros_like(energy)
+        ok = True
+        for kind, a, v_a, v_b in self.terms:
+            if kind == "flat":
+                phi += a * np.sqrt(np.maximum(energy - v_a, 0.0))
+            elif kind == "linear":
+                phi += a * (np.maximum(energy - v_a, 0.0) ** 1.5
+                            - np.maximum(energy - v_b, 0.0) ** 1.5)
+            else:
+                val, conv = _element_phase(self.band, a, energy)
+                phi += val
+                ok = ok and conv
+        dl = self.delta(self.left, energy)
+        dr = self.delta(self.right, energy)
+        return (phi + dl + dr) / np.pi, phi, dl, dr, ok
+
+
+def _airy_delta(kind, xi, ql, k_s, q):
+    """Airy-matched end phase (see module docstring)."""
+    if kind == "turning":
+        out = np.full_like(xi, np.pi / 4)
+        near = xi < 8.0
+        if np.any(near):
+            out[near] = -np.pi / 4 - np.angle(_airy_W(xi[near], ql[near]))
+        return out
+    out = np.arctan2(k_s, q)
+    x = -xi
+    near = x < 1e4
+    if np.any(near):
+        W = _airy_W(xi[near], ql[near])
+        zeta = (2.0 / 3.0) * x[near] ** 1.5
+        out[near] = np.pi / 2 - np.angle(-W * np.exp(-1j * (zeta + np.pi / 4)))
+    return out
+
+
+def _element_spans(band, els, reg: _Region, energy: float) -> dict:
+    """Allowed part (lo, hi) [nm] of every element of a region at one energy."""
+    e = np.array([energy])
+    out = {}
+    for i in reg.elements:
+        lo, hi = _allowed_span(band, els[i], e)
+        out[i] = (float(lo[0]), float(hi[0]))
+    return out
+
+
+def _region_span(band, els, reg: _Region, energy: float, spans: dict | None = None):
+    if spans is None:
+        e = np.array([energy])
+        lo = _allowed_span(band, els[reg.elements[0]], e)[0][0]
+        hi = _allowed_span(band, els[reg.elements[-1]], e)[1][0]
+        return float(lo), float(hi)
+    return spans[reg.elements[0]][0], spans[reg.elements[-1]][1]
+
+
+# ---------------------------------------------------------------------------
+# Public phase inspection
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class RegionPhase:
+    """Quantisation data of one classically allowed region at one energy.
+
+    Attributes
+    ----------
+    z_left_nm, z_right_nm : float
+        Ends of the allowed region [nm].
+    left_kind, right_kind : str
+        'turning' (smooth turning point), 'turning+step' (turning point close
+        to a step, Airy-matched phase) or 'step' (abrupt step, a hard wall
+        when the barrier is infinite).
+    phase_integral_rad : float
+        Phi = int k dz over the region [rad].
+    delta_left_rad, delta_right_rad : float
+        End phases delta [rad] (reflection phase phi = pi - 2 delta).
+    quantum_number : float
+        G = (Phi + delta_L + delta_R) / pi; states sit at G = 1, 2, ...
+    """
+
+    z_left_nm: float
+    z_right_nm: float
+    left_kind: str
+    right_kind: str
+    phase_integral_rad: float
+    delta_left_rad: float
+    delta_right_rad: float
+    quantum_number: float
+
+
+@dataclass(frozen=True)
+class QuantisationPhase:
+    """All allowed regions at one carrier energy [eV]."""
+
+    carrier_energy_eV: float
+    regions: tuple
+
+    @property
+    def count(self) -> int:
+        """Number of semiclassical states below this energy."""
+        return int(sum(max(0, int(np.floor(r.quantum_number))) for r in self.regions))
+
+
+def quantisation_phase(band: Band, energies_eV) -> tuple:
+    """Semiclassical quantisation data at given energies.
+
+    Parameters
+    ----------
+    band : Band
+    energies_eV : array_like
+        Carrier-convention energies [eV] (as in :mod:`qwell.bands`).
+
+    Returns
+    -------
+    tuple of QuantisationPhase
+        One per energy, listing every classically allowed region (left to
+        right) with its phase integral, end phases and quantum-number
+        function ``G`` (see the module docstring for the rule).
+    """
+    els = _build_elements(band)
+    out = []
+    for e in np.atleast_1d(np.asarray(energies_eV, dtype=float)):
+        regs = []
+        for reg in _structure(els, float(e)):
+            ea = np.array([e])
+            g, phi, dl, dr, _ = _region_G(band, els, reg, ea)
+            kl = _boundary_delta(band, els, reg.left, ea)[1]
+            kr = _boundary_delta(band, els, reg.right, ea)[1]
+            zl, zr = _region_span(band, els, reg, float(e))
+            regs.append(RegionPhase(zl, zr, kl, kr, float(phi[0]), float(dl[0]), float(dr[0]),
+                                    float(g[0])))
+        out.append(QuantisationPhase(float(e), tuple(regs)))
+    return tuple(out)
+
+
+# ---------------------------------------------------------------------------
+# Root finding
+# ---------------------------------------------------------------------------
+def _solve_roots(fn, a, b, fa, fb, tol, c0=None):
+    """Vectorised root refinement of fn(E) = 0 on brackets [a, b] (fa < 0 < fb).
+
+    Each round evaluates fn at ``c -/+ tol/2`` (one vectorised call): where the
+    signs straddle zero the root is bracketed to ``tol`` and done; elsewhere the
+    bracket [a, b] shrinks and the secant through the two points (kept inside
+    the bracket) gives the next ``c``.  After 12 rounds the Illinois iteration
+    :func:`_illinois` finishes any leftovers.  Returns ``(lo, hi, slope)``:
+    final brackets and the local slope dfn/dE.
+    """
+    a = a.copy()
+    b = b.copy()
+    fa = fa.copy()
+    fb = fb.copy()
+    c = b - fb * (b - a) / (fb - fa) if c0 is None else np.clip(c0, a, b)
+    half = 0.5 * tol * (1.0 - 1e-9)      # keeps hi - lo <= tol despite rounding
+    n = len(a)
+    lo_out = np.empty(n)
+    hi_out = np.empty(n)
+    slope_out = np.empty(n)
+    todo = np.arange(n)
+    for _ in range(12):
+        lo = c - half
+        hi = c + half
+        f2 = fn(np.concatenate([lo, hi]), todo)
+        flo, fhi = f2[: len(todo)], f2[len(todo):]
+        ok = (flo <= _G_NOISE) & (fhi >= -_G_NOISE)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sl = (fhi - flo) / (hi - lo)
+        idx = todo[ok]
+        lo_out[idx], hi_out[idx], slope_out[idx] = lo[ok], hi[ok], sl[ok]
+        if np.all(ok):
+            return lo_out, hi_out, slope_out
+        keep = ~ok
+        todo = todo[keep]
+        lo, hi, flo, fhi, sl, c = lo[keep], hi[keep], flo[keep], fhi[keep], sl[keep], c[keep]
+        a, b, fa, fb = a[keep], b[keep], fa[keep], fb[keep]
+        # both points on one side: shrink the bracket
+        below = fhi < 0
+        a = np.where(below, hi, a)
+        fa = np.where(below, fhi, fa)
+        above = flo > 0
+        b = np.where(above, lo, b)
+        fb = np.where(above, flo, fb)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cn = c - 0.5 * (flo + fhi) / sl
+        bad = ~np.isfinite(cn) | (cn <= a) | (cn >= b)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rf = b - fb * (b - a) / (fb - fa)
+        rf = np.where(np.isfinite(rf) & (rf > a) & (rf < b), rf, 0.5 * (a + b))
+        c = np.where(bad, rf, cn)
+    la, lb, ls = _illinois(lambda e: fn(e, np.concatenate([todo, todo])
+                                        if len(e) == 2 * len(todo) else todo),
+                           a, b, fa, fb, tol)
+    lo_out[todo], hi_out[todo], slope_out[todo] = la, lb, ls
+    return lo_out, hi_out, slope_out
+
+
+def _illinois(fn, a, b, fa, fb, tol):
+    """Vectorised Illinois iteration for fn(E) = 0 on brackets [a, b] (fa < 0 < fb).
+
+    Stops when the step falls below ``tol/4`` and a final evaluation at
+    ``c -/+ tol/2`` confirms a bracket of width ``tol``.  Returns
+    ``(a, b, slope)`` with the final bracket and the secant slope dfn/dE.
+    """
+    a = a.copy()
+    b = b.copy()
+    fa = fa.copy()
+    fb = fb.copy()
+    side = np.zeros_like(a)
+    c_old = np.full_like(a, np.nan)
+    for _ in range(100):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            c = b - fb * (b - a) / (fb - fa)
+        bad = ~np.isfinite(c) | (c <= a) | (c >= b)
+        c = np.where(bad, 0.5 * (a + b), c)
+        done = (np.abs(c - c_old) < 0.25 * tol) | (b - a < tol)
+        if np.all(done):
+            lo = np.maximum(c - 0.5 * tol, a)
+            hi = np.minimum(c + 0.5 * tol, b)
+            f2 = fn(np.concatenate([lo, hi]))
+            flo, fhi = f2[: len(lo)], f2[len(lo):]
+            ok = (flo <= _G_NOISE) & (fhi >= -_G_NOISE)
+            a = np.where(ok, lo, np.where(flo > 0, a, lo))
+            fa = np.where(ok | (flo <= 0), flo, fa)
+            b = np.where(ok, hi, np.where(fhi < 0, b, hi))
+            fb = np.where(ok | (fhi >= 0), fhi, fb)
+            a = np.where(~ok & (fhi < 0), hi, a)
+            fa = np.where(~ok & (fhi < 0), fhi, fa)
+            b = np.where(~ok & (flo > 0), lo, b)
+            fb = np.where(~ok & (flo > 0), flo, fb)
+            if np.all(ok):
+                break
+            c_old[:] = np.nan
+            continue
+        c_old = c
+        fc = fn(c)
+        left = fc < 0
+        a_n = np.where(left, c, a)
+        fa_n = np.where(left, fc, fa)
+        b_n = np.where(left, b, c)
+        fb_n = np.where(left, fb, fc)
+        fb_n = np.where(left & (side < 0), 0.5 * fb_n, fb_n)
+        fa_n = np.where(~left & (side > 0), 0.5 * fa_n, fa_n)
+        side = np.where(left, -1.0, 1.0)
+        a, fa, b, fb = a_n, fa_n, b_n, fb_n
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slope = (fb - fa) / (b - a)
+    return a, b, slope
+
+
+def _solve_targets(fn, a, b, ga, gb, targets, tol, c0=None):
+    """Solve fn(E) = targets[i] on brackets [a_i, b_i] (vectorised)."""
+
+    def shifted(e, which):
+        t = targets[which]
+        if len(e) != len(t):
+            t = np.tile(t, len(e) // len(t))
+        return fn(e) - t
+
+    return _solve_roots(shifted, a, b, ga - targets, gb - targets, tol, c0)
+
+
+# ---------------------------------------------------------------------------
+# Diagnostics per state
+# ---------------------------------------------------------------------------
+def _validity(band, els, reg: _Region, energy: float, spans: dict) -> float:
+    e1 = np.array([energy])
+    f_min = np.inf
+    f_far = 0.0
+    r_step = 0.0
+    tps = []
+    for b in (reg.left, reg.right):
+        if b.kind == "turning":
+            el = els[b.element]
+            zt = spans[b.element][1 if b.side > 0 else 0]
+            p = band.pieces[el.piece]
+            f = abs(_slope(p, min(max(zt, el.z_a + 1e-9), el.z_b - 1e-9), -b.side))
+            m = float(_piece_mass(band, p, np.array([zt]), e1)[0])
+            ell = (HBAR2_2M0_EV_NM2 / (m * f)) ** (1.0 / 3.0) if f > 0 else 0.0
+            tps.append((zt, ell))
+        else:
+            # a step reached by a potential rising towards it: its virtual turning
+            # point (Airy-matched phase) counts as a turning point here
+            el = els[b.element]
+            p = band.pieces[el.piece]
+            z_s = el.z_b if b.side > 0 else el.z_a
+            f = b.side * _slope(p, z_s, -b.side)
+            if f > 0:
+                v_s = el.v_b if b.side > 0 else el.v_a
+                m = float(_piece_mass(band, p, np.array([z_s]), e1)[0])
+                ell = (HBAR2_2M0_EV_NM2 / (m * f)) ** (1.0 / 3.0)
+                tps.append((z_s + b.side * (energy - v_s) / f, ell))
+    t, _ = _gl_theta(64)
+    for i in reg.elements:
+        el = els[i]
+        p = band.pieces[el.piece]
+        if el.kind == "flat":
+            f_min = 0.0          # k constant: d(1/k)/dz = 0
+        else:
+            lo, hi = spans[i]
+            z = lo + (hi - lo) * t
+            k = _k(band, p, z, np.full_like(z, energy))
+            with np.errstate(divide="ignore", invalid="ignore"):
+                f = np.abs(np.gradient(1.0 / k, z))
+            f = np.where(np.isfinite(f), f, np.inf)
+            f_min = min(f_min, float(np.min(f)))
+            far = np.ones_like(z, dtype=bool)
+            for zt, ell in tps:
+                far &= np.abs(z - zt) >= 2.0 * ell
+            if np.any(far):
+                f_far = max(f_far, float(np.max(f[far])))
+        # reflection amplitude of an internal step at the left end of this element
+        if i != reg.elements[0] and els[i - 1].piece != el.piece:
+            za = np.array([el.z_a])
+            pp = band.pieces[els[i - 1].piece]
+            g1 = float(_k(band, pp, za, e1)[0] / _piece_mass(band, pp, za, e1)[0])
+            g2 = float(_k(band, p, za, e1)[0] / _piece_mass(band, p, za, e1)[0])
+            if g1 + g2 > 0:
+                r_step = max(r_step, abs((g1 - g2) / (g1 + g2)))
+    if not np.isfinite(f_min):
+        f_min = np.inf
+    return float(max(f_min, f_far, r_step))
+
+
+def _barrier_factor(band, els, z_lo: float, z_hi: float, energy: float) -> float:
+    """exp(-int kappa dz) over [z_lo, z_hi] at one energy."""
+    e1 = np.array([energy])
+    total = 0.0
+    for el in els:
+        lo, hi = max(el.z_a, z_lo), min(el.z_b, z_hi)
+        if hi <= lo:
+            continue
+        p = band.pieces[el.piece]
+        if np.isinf(el.v_a) or np.isinf(el.v_b):
+            return 0.0
+        val, _ = _gl_integral(band, p, np.array([lo]), np.array([hi]), e1, sign=-1.0)
+        total += float(val[0])
+    return float(np.exp(-total))
+
+
+# ---------------------------------------------------------------------------
+# Main entry
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class _Candidate:
+    energy: float
+    width: float
+    segment: int
+    region: int
+    n: int
+    converged: bool
+    ill_defined: bool = False
+    spacing: float = float("inf")   # local level spacing 1/(dG/dE) [eV]
+    regions: tuple = ()              # region structure of the segment
+
+
+def solve_semiclassical(band: Band, *, tolerance_eV: float = 1e-7,
+                        max_states: int | None = None) -> Levels:
+    """Estimate the bound subbands of one band with the WKB quantisation rule.
+
+    Parameters
+    ----------
+    band : Band
+        Carrier-convention potential and mass (see :mod:`qwell.bands`).
+    tolerance_eV : float
+        Width of the final root bracket in carrier energy [eV].  This is the
+        numerical accuracy of the semiclassical estimate, not the error of
+        the semiclassical method itself (see ``State.validity``).
+    max_states : int, optional
+        Report at most this many (lowest) states.  Required in effect when
+        both claddings are infinite hard walls (default then 10).
+
+    Returns
+    -------
+    Levels
+        ``method='semiclassical'``; states labelled like the exact solver
+        (``e1``, ``hh1``, ... in increasing carrier energy over all regions)
+        with ``region`` (0-based index from the left of the allowed region at
+        the state's energy), ``validity`` and ``message``.  ``psi`` is None.
+
+    Warns
+    -----
+    ValidityWarning
+        For states whose validity figure exceeds ``VALIDITY_THRESHOLD`` and
+        for states made unreliable by tunnelling between regions.
+
+    Notes
+    -----
+    The quantisation rule, end phases, validity figure and tunnelling
+    criteria are described in the module docstring.
+    """
+    if not tolerance_eV > 0:
+        raise ParameterError("tolerance_eV must be positive")
+    if max_states is not None and max_states < 1:
+        raise ParameterError("max_states must be at least 1")
+    els = _build_elements(band)
+    limit = min(els[0].v_a, els[-1].v_b)      # = band.confinement_limit_eV
+    finite_v = [v for e in els for v in (e.v_a, e.v_b) if np.isfinite(v)]
+    v_min = min(finite_v)
+    notes = []
+    want = max_states
+    if np.isinf(limit):
+        if want is None:
+            want = 10
+            notes.append("both claddings are hard walls: only the lowest 10 states are listed "
+                         "(use max_states)")
+        e_top = max(finite_v) + 1.0
+    else:
+        e_top = limit
+    crit_all = sorted(set(v for v in finite_v))
+
+    while True:
+        cands, drops = _scan(band, els, v_min, e_top, crit_all, tolerance_eV)
+        if not np.isinf(limit) or len(cands) >= want:
+            break
+        e_top = v_min + 2.0 * (e_top - v_min)
+    if want is not None:
+        cands = cands[:want]
+
+    states = []
+    all_converged = True
+    unreliable_any = False
+    # per-state diagnostics
+    infos = []
+    for c in cands:
+        regs = (list(c.regions) if c.regions
+                else _structure(els, c.energy + (1e-9 if c.ill_defined else 0.0)))
+        reg = regs[min(c.region, len(regs) - 1)]
+        spacing = c.spacing
+        spans = _element_spans(band, els, reg, c.energy)
+        span = _region_span(band, els, reg, c.energy, spans)
+        infos.append((regs, reg, spacing, span, spans))
+
+    for idx, (c, (regs, reg, spacing, span, spans)) in enumerate(zip(cands, infos)):
+        msgs = [f"region {c.region} (z = {span[0]:.3f} to {span[1]:.3f} nm)"
+                + ("" if c.ill_defined else f", n = {c.n} in region")]
+        bad = False
+        validity = _validity(band, els, reg, c.energy, spans)
+        if validity > VALIDITY_THRESHOLD:
+            msgs.append(f"semiclassical validity figure {validity:.2f} > {VALIDITY_THRESHOLD}: "
+                        "estimate poor")
+            bad = True
+        if c.ill_defined:
+            msgs.append("boundary type changes at this energy: estimate ill-defined")
+            bad = True
+        # tunnelling to the neighbouring regions
+        for nb in (c.region - 1, c.region + 1):
+            if nb < 0 or nb >= len(regs):
+                continue
+            nspan = _region_span(band, els, regs[nb], c.energy)
+            lo, hi = (nspan[1], span[0]) if nb < c.region else (span[1], nspan[0])
+            T = _barrier_factor(band, els, lo, hi, c.energy)
+            if T > TUNNEL_FACTOR_LIMIT:
+                msgs.append(f"barrier to region {nb} not opaque (tunnelling factor {T:.2g}): "
+                            "regions coupled, estimate unreliable")
+                bad = True
+            # levels of the neighbour region close in energy
+            for jdx, (c2, (_r2, _g2, spacing2, span2, _s2)) in enumerate(zip(cands, infos)):
+                if jdx == idx:
+                    continue
+                if span2[1] <= nspan[0] or span2[0] >= nspan[1]:
+                    continue
+                t = T * np.sqrt(spacing * spacing2) / (2.0 * np.pi)
+                de = abs(c.energy - c2.energy)
+                if t > MIXING_LIMIT * de:
+                    msgs.append(f"near-resonant with {band.prefix}{jdx + 1} in region {nb} "
+                                f"(|dE| = {de * 1e3:.3g} meV, tunnel coupling ~{t * 1e3:.2g} meV):"
+                                " estimate unreliable")
+                    bad = True
+        label = f"{band.prefix}{idx + 1}"
+        conv = c.converged and c.width <= tolerance_eV * (1 + 1e-9)
+        all_converged = all_converged and conv
+        if bad:
+            unreliable_any = True
+            notes.append(f"{label}: " + "; ".join(msgs[1:]))
+            warnings.warn(f"{band.name} {label}: " + "; ".join(msgs[1:]), ValidityWarning,
+                          stacklevel=2)
+        states.append(State(band=band.name, label=label, index=idx + 1,
+                            energy_eV=float(band.profile_energy(c.energy)),
+                            carrier_energy_eV=float(c.energy), bound=True,
+                            tolerance_eV=float(c.width), converged=conv, region=c.region,
+                            validity=validity, message="; ".join(msgs)))
+
+    v_max_inner = max(finite_v)
+    if np.isfinite(limit) and v_max_inner > limit + 1e-12:
+        notes.append(f"leaky structure: barriers rise above the confinement limit "
+                     f"{float(band.profile_energy(limit)):.4g} eV; quasi-bound states above it "
+                     "are not reported")
+    elif np.isfinite(limit):
+        notes.append(f"energies above the confinement limit "
+                     f"{float(band.profile_energy(limit)):.4g} eV are not reported")
+    if drops:
+        notes.append("the semiclassical count drops at "
+                     + ", ".join(f"{float(band.profile_energy(e)):.4g}" for e in drops)
+                     + " eV (boundary type changes); states near these energies are uncertain")
+    if not states:
+        message = (f"no bound state below the confinement limit "
+                   f"(well bottom {float(band.profile_energy(v_min)):.4g} eV)")
+    else:
+        message = f"{len(states)} semiclassical state(s)"
+        if unreliable_any:
+            message += "; some flagged unreliable (see notes)"
+    return Levels(band=band.name, method="semiclassical", states=tuple(states),
+                  converged=all_converged, message=message, notes=tuple(notes),
+                  tolerance_eV=tolerance_eV,
+                  confinement_limit_eV=(float(band.profile_energy(limit))
+                                        if np.isfinite(limit) else None))
+
+
+def _scan(band, els, v_min, e_top, crit_all, tol):
+    """Find all roots between v_min and e_top, segment by segment."""
+    edges = [v_min] + [c for c in crit_all if v_min < c < e_top] + [e_top]
+    cands = []
+    drops = []
+    best = 0          # running maximum of the state count
+    for s in range(len(edges) - 1):
+        lo_e, hi_e = edges[s], edges[s + 1]
+        width = hi_e - lo_e
+        if width <= 0:
+            continue
+        eps = max(1e-12, 1e-10 * width)
+        ea = lo_e + eps
+        eb = hi_e - eps
+        if eb <= ea:
+            continue
+        regs = _structure(els, 0.5 * (lo_e + hi_e))
+        found = []
+        count_start = 0
+        grid = np.linspace(ea, eb, _SCAN_POINTS)
+        for r, reg in enumerate(regs):
+            conv = [True]
+
+            plan = _RegionPlan(band, els, reg)
+
+            def fn(e, plan=plan, conv=conv):
+                g, *_r, ok = plan.G(e)
+                conv[0] = conv[0] and ok
+                return g
+
+            # G on a grid (one vectorised evaluation) brackets every root
+            gg = np.maximum.accumulate(fn(grid))
+            ga, gb = float(gg[0]), float(gg[-1])
+            count_start += max(0, int(np.floor(ga)))
+            n_lo = max(1, int(np.floor(ga)) + 1)
+            n_hi = int(np.floor(gb))
+            if n_hi < n_lo:
+                continue
+            targets = np.arange(n_lo, n_hi + 1, dtype=float)
+            j = np.clip(np.searchsorted(gg, targets, side="left") - 1, 0, len(grid) - 2)
+            # starting point: inverse quadratic interpolation through three grid points
+            jj = np.clip(j, 1, len(grid) - 2)
+            x0, x1, x2 = grid[jj - 1], grid[jj], grid[jj + 1]
+            y0, y1, y2 = gg[jj - 1] - targets, gg[jj] - targets, gg[jj + 1] - targets
+            with np.errstate(divide="ignore", invalid="ignore"):
+                c0 = (x0 * y1 * y2 / ((y0 - y1) * (y0 - y2)) + x1 * y0 * y2 / ((y1 - y0) * (y1 - y2))
+                      + x2 * y0 * y1 / ((y2 - y0) * (y2 - y1)))
+            inside = np.isfinite(c0) & (c0 > grid[j]) & (c0 < grid[j + 1])
+            lin = grid[j + 1] - (gg[j + 1] - targets) * (grid[j + 1] - grid[j]) / (gg[j + 1] - gg[j])
+            c0 = np.where(inside, c0, lin)
+            ra, rb, slope = _solve_targets(fn, grid[j], grid[j + 1], gg[j], gg[j + 1],
+                                           targets, tol, c0)
+            for i, n in enumerate(targets):
+                found.append(_Candidate(0.5 * (ra[i] + rb[i]), float(rb[i] - ra[i]), s, r, int(n),
+                                        conv[0], spacing=float(1.0 / slope[i])
+                                        if slope[i] > 0 else float("inf"),
+                                        regions=tuple(regs)))
+        # count bookkeeping across the critical energy at lo_e
+        if count_start < best and s > 0:
+            drops.append(lo_e)
+        current = count_start
+        while current > best:          # count jumps up at the critical energy itself
+            cands.append(_Candidate(lo_e, 0.0, s, 0, current, True, ill_defined=True))
+            best += 1
+        found.sort(key=lambda c: c.energy)
+        for c in found:
+            current += 1
+            if current > best:
+                cands.append(c)
+                best = current
+    return cands, drops

@@ -1,0 +1,350 @@
+"""Tests of the semiclassical (WKB) estimator against closed forms and
+independent solutions written here.
+
+Constants: hbar, m_e, e from CODATA via ``scipy.constants``.
+"""
+
+import warnings
+
+import numpy as np
+import pytest
+from scipy import constants as sc
+from scipy import special
+from scipy.linalg import eigh_tridiagonal
+from scipy.optimize import brentq
+
+from qwell.bands import Band, Piece, band_from_layers
+from qwell.errors import ParameterError, ValidityWarning
+from qwell.solvers.semiclassical import (
+    VALIDITY_THRESHOLD,
+    quantisation_phase,
+    solve_semiclassical,
+)
+
+# hbar^2/(2 m0) in eV nm^2, CODATA via scipy.constants
+C_EV_NM2 = sc.hbar ** 2 / (2 * sc.m_e) / sc.e * 1e18
+M_GAAS = 0.067      # GaAs electron mass [m0], Vurgaftman et al., J. Appl. Phys. 89, 5815 (2001) (from memory)
+
+
+# ---------------------------------------------------------------- independent references
+def finite_well_levels(width_nm, v_left_eV, v_right_eV, m_w, m_l, m_r, mass_of=None, n_scan=20001):
+    """Bound levels of a flat well (V=0) between flat barriers, BenDaniel-Duke matching.
+
+    Direct matching of psi = exp(kappa_l z) | cos kz + c sin kz | D exp(-kappa_r (z-L)) with
+    psi and psi'/m continuous (D. J. BenDaniel and C. B. Duke, Phys. Rev. 152, 683 (1966);
+    G. Bastard, Phys. Rev. B 24, 5693 (1981)), written as a pole-free mismatch function and
+    solved with brentq.  ``mass_of(E, region)`` optionally gives energy-dependent masses.
+    """
+    top = min(v_left_eV, v_right_eV)
+
+    def masses(e):
+        if mass_of is None:
+            return m_w, m_l, m_r
+        return mass_of(e, "w"), mass_of(e, "l"), mass_of(e, "r")
+
+    def mismatch(e):
+        mw, ml, mr = masses(e)
+        k = np.sqrt(mw * e / C_EV_NM2)
+        kl = np.sqrt(ml * (v_left_eV - e) / C_EV_NM2)
+        kr = np.sqrt(mr * (v_right_eV - e) / C_EV_NM2)
+        # B = 1, C k / m_w = kappa_l / m_l  =>  C = m_w kappa_l / (m_l k); multiply through by k
+        cc = mw * kl / ml
+        L = width_nm
+        return ((-k * k * np.sin(k * L) + cc * k * np.cos(k * L)) / mw
+                + (kr / mr) * (k * np.cos(k * L) + cc * np.sin(k * L)))
+
+    es = np.linspace(1e-9, top - 1e-9, n_scan)
+    f = np.array([mismatch(e) for e in es])
+    roots = []
+    for i in range(len(es) - 1):
+        if np.sign(f[i]) != np.sign(f[i + 1]):
+            roots.append(brentq(mismatch, es[i], es[i + 1], xtol=1e-15, rtol=1e-15))
+    return np.array(roots)
+
+
+def fd_levels(band, step_nm=0.01, pad_nm=30.0, count=6):
+    """Finite-difference eigenvalues of -d/dz (C/m) d/dz + V (BenDaniel-Duke form),
+    masses at half steps, Dirichlet far inside the claddings (independent numerical check)."""
+    z = np.arange(band.z_start_nm - pad_nm, band.z_end_nm + pad_nm + step_nm / 2, step_nm)
+    v = band.potential(z)
+    mid = 0.5 * (z[1:] + z[:-1])
+    t = C_EV_NM2 / (band.edge_mass(mid) * step_nm ** 2)
+    d = v.copy()
+    d[:-1] += t
+    d[1:] += t
+    return eigh_tridiagonal(d, -t, select="i", select_range=(0, count - 1), eigvals_only=True)
+
+
+# ---------------------------------------------------------------- harmonic well
+def test_harmonic_well_exact():
+    # WKB is exact for the oscillator: E_n = hbar omega (n - 1/2)
+    # L. D. Landau and E. M. Lifshitz, Quantum Mechanics, §23 and §48 (problem on the oscillator).
+    a = 0.002  # V = a z^2 [eV/nm^2] -> hbar omega = 2 sqrt(a hbar^2/(2 m))
+    p = Piece(-60.0, 60.0, 0, kind="smooth", potential_fn=lambda z: a * z ** 2,
+              mass_fn=lambda z: M_GAAS + 0.0 * z)
+    band = Band("conduction", (p,))
+    lev = solve_semiclassical(band, max_states=8)
+    hw = 2.0 * np.sqrt(a * C_EV_NM2 / M_GAAS)
+    expect = hw * (np.arange(1, 9) - 0.5)
+    np.testing.assert_allclose(lev.energies_eV, expect, rtol=1e-3)
+    assert [s.label for s in lev.states] == [f"e{i}" for i in range(1, 9)]
+    assert lev.method == "semiclassical"
+
+
+def test_harmonic_well_hole_band():
+    # same oscillator for a hole band: carrier energies hbar omega (n - 1/2), band-diagram
+    # energies with the opposite sign (carrier convention of qwell.bands).
+    # Landau and Lifshitz, Quantum Mechanics, §23.
+    a, m = 0.003, 0.35
+    p = Piece(-40.0, 40.0, 0, kind="smooth", potential_fn=lambda z: a * z ** 2,
+              mass_fn=lambda z: m + 0.0 * z)
+    band = Band("heavy_hole", (p,), carrier_sign=-1)
+    lev = solve_semiclassical(band, max_states=3)
+    hw = 2.0 * np.sqrt(a * C_EV_NM2 / m)
+    np.testing.assert_allclose([s.carrier_energy_eV for s in lev.states],
+                               hw * (np.arange(1, 4) - 0.5), rtol=1e-3)
+    np.testing.assert_allclose(lev.energies_eV, -hw * (np.arange(1, 4) - 0.5), rtol=1e-3)
+    assert [s.label for s in lev.states] == ["hh1", "hh2", "hh3"]
+
+
+# ---------------------------------------------------------------- triangular well
+@pytest.mark.parametrize("barrier_eV", [np.inf, 1e6])
+def test_triangular_well_hard_wall(barrier_eV):
+    # WKB with one hard wall and one smooth turning point:
+    # E_n = (hbar^2/2m)^(1/3) (eF)^(2/3) [3 pi/2 (n - 1/4)]^(2/3)
+    # T. Ando, A. B. Fowler and F. Stern, Rev. Mod. Phys. 54, 437 (1982), triangular-well
+    # approximation (written there with n + 3/4, n = 0, 1, ...) (from memory).
+    # A finite 1e6 eV barrier moves the wall by 1/kappa ~ 1e-3 nm, 1e-4 of E_1.
+    field = 100.0
+    f_eV_nm = field * 1e-4
+    band = band_from_layers([(5.0, barrier_eV, M_GAAS), (300.0, 0.0, M_GAAS)],
+                            field_kV_per_cm=field)
+    v_wall = f_eV_nm * 5.0
+    lev = solve_semiclassical(band, max_states=5)
+    n = np.arange(1, 6)
+    closed = (C_EV_NM2 / M_GAAS) ** (1 / 3) * f_eV_nm ** (2 / 3) * (1.5 * np.pi * (n - 0.25)) ** (2 / 3)
+    np.testing.assert_allclose(lev.energies_eV - v_wall, closed, rtol=1e-3)
+    # exact Airy solution of the hard-wall triangular well: E_n = (hbar^2/2m)^(1/3)(eF)^(2/3)|a_n|
+    # (Landau and Lifshitz, Quantum Mechanics, §24; zeros from scipy.special.ai_zeros);
+    # the WKB ground state is within 1 % (the known error of the method for n = 1).
+    a_n = -special.ai_zeros(1)[0][0]
+    airy_e1 = (C_EV_NM2 / M_GAAS) ** (1 / 3) * f_eV_nm ** (2 / 3) * a_n
+    assert abs(lev.states[0].energy_eV - v_wall - airy_e1) / airy_e1 < 0.01
+    # a hard wall plus smooth point: quantum-number function G = 1 at the ground state
+    qp = quantisation_phase(band, [lev.states[0].carrier_energy_eV])[0]
+    assert len(qp.regions) == 1
+    assert qp.regions[0].right_kind == "turning"
+    assert qp.regions[0].quantum_number == pytest.approx(1.0, abs=1e-5)
+
+
+# ---------------------------------------------------------------- finite / infinite square wells
+def test_finite_square_well_equals_transcendental():
+    # step phases make the estimate equal to the exact finite-well equation
+    # (Bastard, Phys. Rev. B 24, 5693 (1981)), BenDaniel-Duke mass ratio; 1 ueV.
+    band = band_from_layers([(20.0, 0.3, 0.092), (10.0, 0.0, M_GAAS), (20.0, 0.3, 0.092)])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")          # no validity warning for an ordinary well
+        lev = solve_semiclassical(band)
+    exact = finite_well_levels(10.0, 0.3, 0.3, M_GAAS, 0.092, 0.092)
+    assert len(lev) == len(exact) == 3
+    np.testing.assert_allclose(lev.energies_eV, exact, atol=1e-6)
+    for s in lev.states:
+        assert s.validity < VALIDITY_THRESHOLD
+        assert s.region == 0
+        assert s.converged and s.tolerance_eV <= 1e-7
+
+
+def test_asymmetric_finite_well_with_mass_steps():
+    # different barriers and masses on each side; exact matching in the test (BenDaniel and
+    # Duke 1966), 1 ueV.
+    band = band_from_layers([(25.0, 0.25, 0.08), (8.0, 0.0, 0.041), (25.0, 0.4, 0.1)])
+    lev = solve_semiclassical(band)
+    exact = finite_well_levels(8.0, 0.25, 0.4, 0.041, 0.08, 0.1)
+    assert len(lev) == len(exact) >= 2
+    np.testing.assert_allclose(lev.energies_eV, exact, atol=1e-6)
+
+
+def test_nonparabolic_finite_well():
+    # two-band energy-dependent mass m(E) = m (1 + (E - V)/Eg) (D. F. Nelson, R. C. Miller and
+    # D. A. Kleinman, Phys. Rev. B 35, 7770 (1987)), the same rule qwell.bands documents;
+    # exact matching with these masses in the test; 1 ueV.
+    layers = [(30.0, 0.5, 0.045, 1.0), (6.0, 0.0, 0.041, 0.8), (30.0, 0.5, 0.045, 1.0)]
+    band = band_from_layers(layers, nonparabolic=True)
+
+    def mass_of(e, where):
+        if where == "w":
+            return 0.041 * (1.0 + e / 0.8)
+        return 0.045 * max(1.0 + (e - 0.5) / 1.0, 0.01)
+
+    lev = solve_semiclassical(band)
+    exact = finite_well_levels(6.0, 0.5, 0.5, None, None, None, mass_of=mass_of)
+    assert len(lev) == len(exact) >= 2
+    np.testing.assert_allclose(lev.energies_eV, exact, atol=1e-6)
+
+
+def test_infinite_square_well_exact():
+    # E_n = hbar^2 pi^2 n^2 / (2 m L^2) (Landau and Lifshitz, Quantum Mechanics, §22, problem 1)
+    L = 10.0
+    band = band_from_layers([(5.0, np.inf, M_GAAS), (L, 0.0, M_GAAS), (5.0, np.inf, M_GAAS)])
+    lev = solve_semiclassical(band, max_states=5, tolerance_eV=1e-12)
+    n = np.arange(1, 6)
+    np.testing.assert_allclose(lev.energies_eV, C_EV_NM2 * np.pi ** 2 * n ** 2 / (M_GAAS * L ** 2),
+                               rtol=1e-9)
+    # without max_states only the first 10 are listed, and the notes say so
+    lev10 = solve_semiclassical(band)
+    assert len(lev10) == 10
+    assert any("hard walls" in note for note in lev10.notes)
+
+
+def test_very_high_barriers_approach_infinite_well():
+    # finite barriers of 1e6 eV: the exact finite-well levels (test-side matching) and the
+    # estimate agree to 1 ueV, and both lie below the infinite-well values
+    # (Landau and Lifshitz, Quantum Mechanics, §22).
+    L = 10.0
+    band = band_from_layers([(5.0, 1e6, M_GAAS), (L, 0.0, M_GAAS), (5.0, 1e6, M_GAAS)])
+    lev = solve_semiclassical(band, max_states=3)
+    inf = C_EV_NM2 * np.pi ** 2 * np.arange(1, 4) ** 2 / (M_GAAS * L ** 2)
+    assert np.all(lev.energies_eV < inf)
+    np.testing.assert_allclose(lev.energies_eV, inf, rtol=1e-3)
+
+
+# ---------------------------------------------------------------- poor cases are flagged
+def test_v_shaped_well_ground_state_flagged():
+    # V = F|z|: even states at the zeros of Ai', odd at the zeros of Ai
+    # (Landau and Lifshitz, Quantum Mechanics, §24, with the symmetry of the potential;
+    # zeros from scipy.special.ai_zeros).  WKB misses the ground state by ~10 %.
+    f_eV_nm = 0.01
+    half = 200.0
+    pl = Piece(-half, 0.0, 0, kind="linear", edge_start_eV=f_eV_nm * half,
+               edge_slope_eV_per_nm=-f_eV_nm, mass_m0=M_GAAS)
+    pr = Piece(0.0, half, 1, kind="linear", edge_start_eV=0.0, edge_slope_eV_per_nm=f_eV_nm,
+               mass_m0=M_GAAS)
+    band = Band("conduction", (pl, pr))
+    with pytest.warns(ValidityWarning, match="e1"):
+        lev = solve_semiclassical(band, max_states=4)
+    a, ap = special.ai_zeros(2)[:2]
+    scale = (C_EV_NM2 / M_GAAS) ** (1 / 3) * f_eV_nm ** (2 / 3)
+    exact = np.sort(np.concatenate([-a, -ap])) * scale
+    e1 = lev.states[0]
+    assert e1.validity > VALIDITY_THRESHOLD
+    assert "validity" in e1.message
+    assert any(note.startswith("e1:") for note in lev.notes)
+    assert abs(e1.energy_eV - exact[0]) / exact[0] > 0.05      # the flag is warranted
+    # the excited states are not flagged and are within 1 % of the exact values
+    for s, ex in zip(lev.states[1:], exact[1:]):
+        assert s.validity < VALIDITY_THRESHOLD
+        assert abs(s.energy_eV - ex) / ex < 0.01
+
+
+# ---------------------------------------------------------------- wells under a field
+@pytest.mark.parametrize("field", [20.0, 50.0, 100.0])
+def test_tilted_well_against_finite_differences(field):
+    # square well under a field, where levels cross the energy of the tilted well's edge
+    # (Airy-matched end phase).  Reference: a finite-difference solution written here.
+    # Bound used: the semiclassical error of a linear potential against a wall, 0.76 % for the
+    # ground state (Airy zero a_1 vs (9 pi/8)^(2/3), both computed here from scipy.special),
+    # applied to the energy above the lowest point of the well.
+    band = band_from_layers([(20.0, 0.3, 0.09), (10.0, 0.0, M_GAAS), (20.0, 0.3, 0.09)],
+                            field_kV_per_cm=field)
+    lev = solve_semiclassical(band)
+    ref = fd_levels(band, step_nm=0.005)[: len(lev)]
+    a1 = -special.ai_zeros(1)[0][0]
+    bound = 1.0 - (9 * np.pi / 8) ** (2 / 3) / a1
+    bottom = field * 1e-4 * 20.0
+    assert len(lev) >= 1
+    for s, r in zip(lev.states, ref):
+        assert abs(s.energy_eV - r) <= bound * (r - bottom)
+
+
+def test_phase_continuous_across_well_edge():
+    # at the energy of the upper edge of a tilted well the end changes from a turning point to
+    # a step; the Airy-matched phase (M. Abramowitz and I. A. Stegun, Handbook, §10.4) keeps
+    # G(E) continuous there.
+    field = 50.0
+    band = band_from_layers([(20.0, 0.3, 0.09), (10.0, 0.0, M_GAAS), (20.0, 0.3, 0.09)],
+                            field_kV_per_cm=field)
+    edge = field * 1e-4 * 30.0
+    below, above = quantisation_phase(band, [edge - 1e-9, edge + 1e-9])
+    assert below.regions[0].right_kind == "turning+step"
+    assert above.regions[0].right_kind == "step"
+    assert abs(below.regions[0].quantum_number - above.regions[0].quantum_number) < 1e-6
+
+
+# ---------------------------------------------------------------- coupled wells
+def test_separate_wells_regions_assigned():
+    # two different wells with a thick barrier: each level belongs to one region and equals that
+    # isolated well's exact level (test-side matching, Bastard 1981) to 1 ueV; no flags.
+    band = band_from_layers([(20.0, 0.3, M_GAAS), (6.0, 0.0, M_GAAS), (20.0, 0.3, M_GAAS),
+                             (8.0, 0.0, M_GAAS), (20.0, 0.3, M_GAAS)])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        lev = solve_semiclassical(band)
+    left = finite_well_levels(6.0, 0.3, 0.3, M_GAAS, M_GAAS, M_GAAS)
+    right = finite_well_levels(8.0, 0.3, 0.3, M_GAAS, M_GAAS, M_GAAS)
+    expect = sorted([(e, 0) for e in left] + [(e, 1) for e in right])
+    assert len(lev) == len(expect)
+    for s, (e, region) in zip(lev.states, expect):
+        assert s.region == region
+        assert abs(s.energy_eV - e) < 1e-6
+        assert "unreliable" not in s.message
+    # the independent finite-difference solution of the whole stack agrees with the estimate
+    # (the 20 nm barrier decouples the wells) within the requested root tolerance (1e-7 eV)
+    # plus twice the finite-difference error estimated by halving the step
+    fd_h = fd_levels(band, step_nm=0.005)[: len(lev)]
+    fd_h2 = fd_levels(band, step_nm=0.0025)[: len(lev)]
+    err = np.max(np.abs(fd_h - fd_h2))
+    np.testing.assert_allclose(fd_h2, lev.energies_eV, rtol=0, atol=1e-7 + 2 * err)
+
+
+def test_coupled_wells_flagged():
+    # symmetric double well with a 2 nm barrier: the estimate gives one level per well and
+    # cannot see the tunnel splitting; it must flag the states.  The finite-difference solution
+    # written here shows the actual splitting.
+    band = band_from_layers([(20.0, 0.3, M_GAAS), (6.0, 0.0, M_GAAS), (2.0, 0.3, M_GAAS),
+                             (6.0, 0.0, M_GAAS), (20.0, 0.3, M_GAAS)])
+    with pytest.warns(ValidityWarning, match="unreliable"):
+        lev = solve_semiclassical(band)
+    e1, e2 = lev.states[0], lev.states[1]
+    assert {e1.region, e2.region} == {0, 1}
+    assert "unreliable" in e1.message and "unreliable" in e2.message
+    assert any("unreliable" in note for note in lev.notes)
+    assert "some flagged" in lev.message
+    fd = fd_levels(band, step_nm=0.005)
+    assert fd[1] - fd[0] > 1e-3                         # real splitting of more than 1 meV
+    assert fd[0] < e1.energy_eV < fd[1]                 # the estimate sits inside the doublet
+
+
+# ---------------------------------------------------------------- step well
+def test_step_well_count_and_flags():
+    # well with a shallow shoulder: the count of states below the cladding must equal that of
+    # the finite-difference solution written here (oscillation theorem: one eigenvalue per
+    # node count); the state near the shoulder edge is flagged (internal step reflection), and
+    # the notes name the energy where the semiclassical count drops.
+    band = band_from_layers([(20.0, 0.3, M_GAAS), (5.0, 0.0, M_GAAS), (10.0, 0.1, M_GAAS),
+                             (20.0, 0.3, M_GAAS)])
+    with pytest.warns(ValidityWarning, match="validity"):
+        lev = solve_semiclassical(band)
+    fd = fd_levels(band, step_nm=0.005, count=12)
+    assert len(lev) == int(np.sum(fd < 0.3))
+    assert np.all(np.diff(lev.energies_eV) > 0)
+    assert len({s.label for s in lev.states}) == len(lev)
+    assert any("count drops at 0.1" in note for note in lev.notes)
+    flagged = [s for s in lev.states if s.validity > VALIDITY_THRESHOLD]
+    assert flagged and all("validity" in s.message for s in flagged)
+
+
+# ---------------------------------------------------------------- misc
+def test_no_bound_state_message():
+    # a 'well' whose bottom is above the lower cladding holds no bound state
+    band = band_from_layers([(20.0, 0.1, M_GAAS), (5.0, 0.2, M_GAAS), (20.0, 0.3, M_GAAS)])
+    lev = solve_semiclassical(band)
+    assert len(lev) == 0
+    assert "no bound state" in lev.message
+
+
+def test_bad_parameters():
+    band = band_from_layers([(20.0, 0.3, M_GAAS), (10.0, 0.0, M_GAAS), (20.0, 0.3, M_GAAS)])
+    with pytest.raises(ParameterError):
+        solve_semiclassical(band, tolerance_eV=0.0)
+    with pytest.raises(ParameterError):
+        solve_semiclassical(band, max_states=0)
