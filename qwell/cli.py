@@ -143,6 +143,14 @@ def cmd_profile(args) -> int:
     print(_table(rows, ["layer", "material", "start nm", "thick nm", "ML", "Ec eV", "Ehh eV",
                         "Elh eV", "eps_xx %"],
                  ["<", "<", ">", ">", ">", ">", ">", ">", ">"]))
+    offsets = prof.band_offsets()
+    if offsets:
+        print("\nBand offsets at interfaces (right minus left; Qc = ΔEc / (ΔEc - ΔEv,top))")
+        rows = [[f"{o['left']} | {o['right']}", f"{o['z_nm']:.3f}", f"{1e3 * o['delta_conduction_eV']:+.1f}",
+                 "—" if o["delta_valence_eV"] is None else f"{1e3 * o['delta_valence_eV']:+.1f}",
+                 "—" if o["conduction_share"] is None else f"{100 * o['conduction_share']:.0f} %"]
+                for o in offsets]
+        print(_table(rows, ["interface", "z nm", "ΔEc meV", "ΔEv meV", "Qc"], ["<", ">", ">", ">", ">"]))
     for w in prof.warnings:
         print(f"warning: {w}")
     return 0
@@ -194,8 +202,11 @@ def _print_transitions(trans, show_all=False) -> None:
                      ["<", ">", ">", ">", ">", ">", ">"]))
     if band:
         shown = band if show_all else [t for t in band if (t.overlap or 0.0) >= 1e-3]
+        lowest = min(band, key=lambda t: t.energy_eV)
         rows = [[t.name, f"{t.energy_eV:.6f}", f"{1e3 * t.wavelength_um:.2f}",
-                 f"{t.overlap:.4f}", f"{t.te:.4f}", f"{t.tm:.4f}", "Δn=0" if t.strongest else ""]
+                 f"{t.overlap:.4f}", f"{t.te:.4f}", f"{t.tm:.4f}",
+                 ", ".join(x for x in ("Δn=0" if t.strongest else "",
+                                       "lowest energy" if t is lowest else "") if x)]
                 for t in shown]
         print("\nInterband transitions (strongest first; excitonic binding not included)")
         print(_table(rows, ["transition", "energy eV", "λ nm", "|<e|h>|²", "TE", "TM", ""],
@@ -260,8 +271,7 @@ def cmd_levels(args) -> int:
                      ["<", "<", ">", ">", ">", ">"]))
     for m, sol in sols.items():
         for lev in sol.levels.values():
-            if lev.message and (not lev.states or "bound state" not in lev.message.split(";")[0]
-                                or ";" in lev.message):
+            if lev.message and not lev.states:
                 print(f"note ({m}, {lev.band}): {lev.message}")
             for n in lev.notes:
                 print(f"note ({m}, {lev.band}): {n}")

@@ -25,7 +25,7 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Callable
 
 import numpy as np
@@ -145,6 +145,33 @@ class Profile:
             raise MaterialError(f"band {name!r} is not defined in every layer of this stack "
                                 "(user materials need valence_edge and hole masses)") from None
 
+    def band_offsets(self) -> list[dict]:
+        """Band offsets at each interface between two uniform layers.
+
+        Returns a list of dicts with ``left``, ``right`` (layer labels),
+        ``z_nm``, ``delta_conduction_eV`` (Ec right - Ec left),
+        ``delta_valence_eV`` (top valence edge right - left, None if
+        undefined) and ``conduction_share`` Qc = dEc / (dEc - dEv) (None when
+        the gap difference vanishes).  Field tilt cancels at an interface.
+        """
+        out = []
+        for a, b in zip(self.layers[:-1], self.layers[1:]):
+            ia, ib = self.layer_samples(a.index), self.layer_samples(b.index)
+            ec_a, ec_b = self.conduction_edge_eV[ia][-1], self.conduction_edge_eV[ib][0]
+            top = np.fmax(self.heavy_hole_edge_eV, self.light_hole_edge_eV)
+            ev_a, ev_b = top[ia][-1], top[ib][0]
+            dec = float(ec_b - ec_a)
+            dev = float(ev_b - ev_a) if np.isfinite(ev_a) and np.isfinite(ev_b) else None
+            share = None
+            if dev is not None and abs(dec - dev) > 1e-6:
+                share = dec / (dec - dev)
+            if abs(dec) < 1e-9 and (dev is None or abs(dev) < 1e-9):
+                continue
+            out.append({"left": a.label, "right": b.label, "z_nm": a.end_nm,
+                        "delta_conduction_eV": dec, "delta_valence_eV": dev,
+                        "conduction_share": share})
+        return out
+
     def to_json(self) -> dict:
         def arr(a):
             return [None if not np.isfinite(v) else round(float(v), 9) for v in a]
@@ -161,6 +188,7 @@ class Profile:
             "heavy_hole_mass": arr(self.heavy_hole_mass),
             "light_hole_mass": arr(self.light_hole_mass),
             "layers": [lay.to_json() for lay in self.layers],
+            "band_offsets": self.band_offsets(),
             "warnings": list(self.warnings),
         }
 
@@ -322,6 +350,7 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
     slope = stack.field_kV_per_cm * FIELD_EV_PER_NM_PER_KV_CM
 
     funcs: list[_LayerFunctions] = []
+    families: list = []
     layer_profiles: list[LayerProfile] = []
     warnings: list[str] = []
     z = 0.0
@@ -336,6 +365,7 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
         funcs.append(lf)
         lw: list[str] = []
         mats = [at(0.0), at(1.0)] if not uniform else [at(0.0)]
+        families.append(mats[0].family if uniform else None)
         ml = mats[0].monolayer_nm
         hc = math.inf
         if substrate_mat is not None:
@@ -423,8 +453,35 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
             cols[k].append(v)
     zcat = np.concatenate(zs)
     cat = {k: np.concatenate(v) for k, v in cols.items()}
-    return Profile(stack=stack, layers=tuple(layer_profiles), bands=bands, z_nm=zcat,
+    prof = Profile(stack=stack, layers=tuple(layer_profiles), bands=bands, z_nm=zcat,
                    conduction_edge_eV=cat["ec"], heavy_hole_edge_eV=cat["ehh"],
                    light_hole_edge_eV=cat["elh"], electron_mass=cat["me"],
                    heavy_hole_mass=cat["mhh"], light_hole_mass=cat["mlh"], gap_eV=cat["gap"],
                    warnings=tuple(warnings), sample_layer=np.concatenate(owner))
+    extra = _offset_warnings(prof, families)
+    if extra:
+        prof = replace(prof, warnings=prof.warnings + tuple(extra))
+    return prof
+
+
+def _offset_warnings(prof: Profile, families: list) -> list[str]:
+    """Flag the known InGaAs/GaAs offset-split problem of interpolated tables.
+
+    The valence-offset bowing of InGaAs in interpolated tables puts only about
+    a third of the In(x)Ga(1-x)As/GaAs offset in the conduction band, while
+    measurements give roughly 60-70 % (physics notes of this project; e.g.
+    Huang et al., Appl. Phys. Lett. (1989), from memory).  Users can override
+    ``conduction_edge`` per layer.
+    """
+    out = []
+    for o in prof.band_offsets():
+        i = next(lp.index for lp in prof.layers if lp.label == o["left"])
+        pair = {families[i], families[i + 1]}
+        if pair == {"InGaAs", "GaAs"} and o["conduction_share"] is not None \
+                and 0 < o["conduction_share"] < 0.5:
+            out.append(f"interface {o['left']} | {o['right']}: the tables put only "
+                       f"{100 * o['conduction_share']:.0f} % of the offset in the conduction band; "
+                       "measurements on InGaAs/GaAs give about 60-70 % — check it, and override "
+                       "conduction_edge on the layer if your design depends on it")
+            break
+    return out

@@ -171,3 +171,34 @@ layers:
     # both sides of each interface are sampled, so steps plot vertically
     assert np.sum(np.isclose(z, 10.0)) == 2
     assert math.isclose(z[-1], lay["end_nm"] + 10.0)
+
+
+def test_band_offsets_gaas_algaas_share():
+    # Fact of the trade (common practice, no source): for GaAs/AlGaAs (x < 0.45) about
+    # 60-67 % of the gap difference falls in the conduction band.
+    st = _stack("""
+substrate: GaAs
+layers:
+  - {material: Al0.30Ga0.70As, thickness: 10 nm, name: left}
+  - {material: GaAs, thickness: 6 nm, name: well}
+  - {material: Al0.30Ga0.70As, thickness: 10 nm, name: right}
+""")
+    offs = band_profile(st).band_offsets()
+    assert [(o["left"], o["right"]) for o in offs] == [("left", "well"), ("well", "right")]
+    assert 0.60 <= offs[0]["conduction_share"] <= 0.67
+    assert offs[0]["delta_conduction_eV"] == pytest.approx(-offs[1]["delta_conduction_eV"])
+
+
+def test_ingaas_offset_split_is_flagged():
+    # Pitfall (physics notes; Huang et al., Appl. Phys. Lett. (1989), from memory): interpolated
+    # tables put ~37 % of the In0.2Ga0.8As/GaAs offset in the conduction band, measurements ~70 %.
+    st = _stack("""
+substrate: GaAs
+layers:
+  - {material: GaAs, thickness: 20 nm}
+  - {material: In0.2Ga0.8As, thickness: 7 nm, name: well}
+  - {material: GaAs, thickness: 20 nm}
+""")
+    prof = band_profile(st)
+    assert prof.band_offsets()[0]["conduction_share"] < 0.5
+    assert any("60-70 %" in w for w in prof.warnings)
