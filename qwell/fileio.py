@@ -38,11 +38,18 @@ def _check_target(path: Path, protect=()) -> Path:
     return path
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def atomic_write_bytes(path, data: bytes, protect=()) -> Path:
     """Write ``data`` to ``path`` atomically (temporary file + rename)."""
     path = _check_target(Path(path), protect)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
     try:
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual file mode
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()

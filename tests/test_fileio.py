@@ -38,3 +38,12 @@ def test_failure_leaves_nothing(tmp_path, monkeypatch):
     with pytest.raises(OSError, match="disk full"):
         atomic_write_text(p, "x")
     assert list(tmp_path.iterdir()) == []
+
+
+def test_written_file_has_the_usual_mode(tmp_path):
+    # POSIX: new files get 0666 & ~umask (common practice, no source)
+    p = tmp_path / "m.txt"
+    atomic_write_text(p, "x")
+    mask = os.umask(0)
+    os.umask(mask)
+    assert (p.stat().st_mode & 0o777) == (0o666 & ~mask)
