@@ -14,7 +14,7 @@ import pytest
 from scipy import constants as const
 from scipy.linalg import eigh_tridiagonal
 from scipy.optimize import brentq
-from scipy.special import ai_zeros
+from scipy.special import ai_zeros, airy
 
 from qwell.bands import Band, Piece, RepeatInfo, band_from_layers
 from qwell.solvers.exact import count_states_below, minibands, solve_exact, wavefunction
@@ -434,3 +434,83 @@ def test_kronig_penney_minibands():
     b1 = mbs[0]
     inside = [s for s in lev.states if b1.bottom_eV - 1e-3 < s.energy_eV < b1.top_eV + 1e-3]
     assert len(inside) == 5
+
+
+# ------------------------------------------------------------ tilted double barrier: pole refinement
+def _airy_layer_matrix(V0, F, m, h, E):
+    """Exact transfer matrix of (psi, psi'/m) over a layer with V = V0 + F x, 0 <= x <= h.
+
+    psi = A Ai(zeta) + B Bi(zeta) with zeta = alpha x + (m/C)(V0 - E)/alpha^2,
+    alpha^3 = m F / C (real cube root, any sign of F): the Airy-function solution
+    of the linear potential (L. D. Landau and E. M. Lifshitz, Quantum Mechanics,
+    3rd ed., Pergamon 1977, sect. 24; Airy-function transfer matrices for biased
+    tunnelling structures: K. F. Brennan and C. J. Summers, J. Appl. Phys. 61, 614
+    (1987), from memory).  Complex E allowed (scipy.special.airy).
+    """
+    a = np.cbrt(m * F / C)
+    offset = (m / C) * (V0 - E) / a ** 2
+    Ai0, Aip0, Bi0, Bip0 = airy(offset)
+    Ai1, Aip1, Bi1, Bip1 = airy(a * h + offset)
+    W0 = np.array([[Ai0, Bi0], [a * Aip0 / m, a * Bip0 / m]])
+    W1 = np.array([[Ai1, Bi1], [a * Aip1 / m, a * Bip1 / m]])
+    return W1 @ np.linalg.inv(W0)
+
+
+def _airy_open_mismatch(layers, F, E):
+    """Outgoing-wave condition of a biased stack with flat claddings (Airy matrices inside).
+
+    Left cladding: psi = exp(-i k z) (outgoing to the left); right cladding:
+    psi' = +i k psi (outgoing to the right); Re k > 0.  Its complex zero is the
+    resonance pole E_r - i Gamma/2 (Gamow/Siegert outgoing-wave condition,
+    e.g. Landau and Lifshitz, Quantum Mechanics, sect. 134).
+    """
+    z = 0.0
+    kL = np.sqrt(layers[0][2] * (E - layers[0][1]) / C + 0j)
+    vec = np.array([1.0 + 0j, -1j * kL / layers[0][2]])
+    for t, V, m in layers:
+        vec = _airy_layer_matrix(V + F * z, F, m, t, E) @ vec
+        z += t
+    VR, mR = layers[-1][1] + F * z, layers[-1][2]
+    kR = np.sqrt(mR * (E - VR) / C + 0j)
+    return vec[1] - 1j * kR / mR * vec[0]
+
+
+def test_tilted_double_barrier_pole_converges():
+    # A double-barrier resonance under 20 kV/cm: every layer is tilted (sliced by the
+    # solver), the reference pole comes from exact Airy-function matrices (above).
+    from scipy.optimize import newton
+
+    from qwell.solvers import _transfer as tr
+    from qwell.solvers.exact import _cladding, _poles
+
+    layers = [(10, 0.0, 0.067), (4, 0.3, 0.0919), (6, 0.0, 0.067), (4, 0.3, 0.0919),
+              (10, 0.0, 0.067)]
+    F_kV = 20.0
+    F = F_kV * 1e-4  # eV/nm per kV/cm (definition of the unit)
+    band = band_from_layers(layers, field_kV_per_cm=F_kV)
+    tol = 1e-9
+    lev = solve_exact(band, wavefunctions=False, tolerance_eV=tol)
+    qb = [s for s in lev.states if not s.bound]
+    assert len(qb) == 1
+    s = qb[0]
+    assert s.converged and s.tolerance_eV <= tol
+    gamma = HBAR_EVS / s.lifetime_s
+    # independent start for the reference: the well level of the unbiased closed
+    # 6 nm well (Bastard 1981 equations, above) with a small negative imaginary part
+    e_start = _square_well_levels(6.0, 0.3, 0.067, 0.0919)[0] + F * 17.0  # well centre 17 nm
+    pole = newton(lambda e: _airy_open_mismatch(layers, F, e), e_start - 1e-4j, tol=1e-15,
+                  maxiter=200)
+    assert abs(_airy_open_mismatch(layers, F, pole)) < 1e-10
+    # the refined pole matches the exact one to the requested tolerance
+    assert abs(s.carrier_energy_eV - pole.real) < tol
+    assert abs(gamma - (-2 * pole.imag)) < 2 * tol
+    # the sliced pole converges as h^2 (midpoint slicing, even error expansion):
+    # the error falls by ~4 per halving of the step (Richardson 1911, above)
+    cl, cr = _cladding(band, "left"), _cladding(band, "right")
+    errs = []
+    for level in range(4):
+        p, _, done = _poles(tr.build_slices(band, level), np.array([pole]), cl, cr, 1e-14)
+        assert done[0]
+        errs.append(abs(p[0] - pole))
+    ratios = np.array(errs[:-1]) / np.array(errs[1:])
+    assert np.all((ratios > 3.5) & (ratios < 4.5))

@@ -13,7 +13,17 @@ from importlib import import_module
 from ..errors import ParameterError
 from .results import Levels, Miniband, State
 
-__all__ = ["METHODS", "solve", "Levels", "State", "Miniband"]
+__all__ = ["METHODS", "solve", "Levels", "State", "Miniband", "solve_exact",
+           "count_states_below", "minibands", "wavefunction"]
+
+#: names re-exported lazily from qwell.solvers.exact (imported on first use)
+_EXACT_EXPORTS = ("solve_exact", "count_states_below", "minibands", "wavefunction")
+
+
+def __getattr__(name):
+    if name in _EXACT_EXPORTS:
+        return getattr(import_module("qwell.solvers.exact"), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 #: method name -> (module, function)
 METHODS = {

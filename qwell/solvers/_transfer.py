@@ -61,20 +61,31 @@ class Slices:
 
 def build_slices(band, level: int = 0, *, z_lo_nm: float | None = None,
                  z_hi_nm: float | None = None) -> Slices:
-    """Slice ``band`` (optionally only ``[z_lo_nm, z_hi_nm]``) at refinement ``level``."""
+    """Slice ``band`` (optionally only ``[z_lo_nm, z_hi_nm]``) at refinement ``level``.
+
+    A flat piece is one slice with its own constants (no function evaluation);
+    linear and smooth pieces are cut into ``max(2, ceil(t / 0.5 nm)) * 2**level``
+    midpoint slices.
+    """
     z0s, hs, vs, ms, gs, ps = [], [], [], [], [], []
     exact = True
     lo = band.z_start_nm if z_lo_nm is None else z_lo_nm
     hi = band.z_end_nm if z_hi_nm is None else z_hi_nm
+    nonpar = band.nonparabolic
     for i, p in enumerate(band.pieces):
         a, b = max(p.z_start_nm, lo), min(p.z_end_nm, hi)
         if b - a <= 1e-12:
             continue
         if p.kind == "flat":
-            n = 1
-        else:
-            exact = False
-            n = max(2, int(np.ceil((b - a) / BASE_STEP_NM))) * 2 ** level
+            z0s.append(np.array([a]))
+            hs.append(np.array([b - a]))
+            vs.append(np.array([float(p.edge_start_eV)]))
+            ms.append(np.array([float(p.mass_m0)]))
+            gs.append(np.array([np.inf if (p.gap_eV is None or not nonpar) else float(p.gap_eV)]))
+            ps.append(np.array([i]))
+            continue
+        exact = False
+        n = max(2, int(np.ceil((b - a) / BASE_STEP_NM))) * 2 ** level
         edges = np.linspace(a, b, n + 1)
         mid = 0.5 * (edges[:-1] + edges[1:])
         z0s.append(edges[:-1])
@@ -82,7 +93,7 @@ def build_slices(band, level: int = 0, *, z_lo_nm: float | None = None,
         vs.append(p.potential(mid))
         ms.append(p.mass(mid))
         g = p.gap(mid)
-        gs.append(np.full(n, np.inf) if (g is None or not band.nonparabolic) else g)
+        gs.append(np.full(n, np.inf) if (g is None or not nonpar) else g)
         ps.append(np.full(n, i))
     return Slices(np.concatenate(z0s), np.concatenate(hs), np.concatenate(vs),
                   np.concatenate(ms), np.concatenate(gs), np.concatenate(ps), exact)
@@ -139,7 +150,7 @@ def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
         h = None
     if lengths is not None:
         h = lengths
-    m = eff_mass(m0, v, g, E)
+    m = eff_mass(m0, v, g, E) if np.any(np.isfinite(g)) else m0 + 0.0 * E
     q = m * (E - v) / C_EV_NM2
     if np.iscomplexobj(q):
         kap = np.sqrt(-q)
@@ -153,23 +164,58 @@ def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
     osc = q > 0
     k = np.sqrt(np.abs(q))
     x = k * h
-    # oscillatory
-    co = np.cos(x)
-    so = h * np.sinc(x / np.pi)
-    # evanescent, scaled by exp(-x)
-    e2 = np.exp(-2.0 * x)
-    ce = 0.5 * (1.0 + e2)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        se = np.where(x > 1e-8, -np.expm1(-2.0 * x) / (2.0 * np.where(x == 0, 1, x)), 1.0 - x) * h
-    a = np.where(osc, co, ce)
-    s = np.where(osc, so, se)
-    return a, m * s, -(q / m) * s, a, np.where(osc, 0.0, x)
+    shape = x.shape
+    a = np.empty(shape)
+    s = np.empty(shape)
+    ls = x.copy()
+    if osc.all():
+        # oscillatory everywhere: cos(kx), sin(kx)/k (k > 0 strictly)
+        np.cos(x, out=a)
+        np.divide(np.sin(x), k, out=s)
+        ls[...] = 0.0
+    else:
+        # evanescent entries scaled by exp(-x): cosh -> (1 + e^-2x)/2,
+        # sinh/kappa -> (1 - e^-2x)/(2 kappa), with -expm1 for small x; kappa = 0 gives h
+        hb = np.broadcast_to(h, shape)
+        ev = ~osc
+        xe, ke = x[ev], k[ev]
+        pos = ke > 0
+        a[ev] = 0.5 * (1.0 + np.exp(-2.0 * xe))
+        s[ev] = np.where(pos, -np.expm1(-2.0 * xe) / (2.0 * np.where(pos, ke, 1.0)), hb[ev])
+        if osc.any():
+            xo = x[osc]
+            a[osc] = np.cos(xo)
+            s[osc] = np.sin(xo) / k[osc]
+            ls[osc] = 0.0
+    return a, m * s, -(q / m) * s, a, ls
 
 
 def subset(sl: Slices, lo: int, hi: int) -> Slices:
     """Slices ``lo:hi``."""
     return Slices(sl.z0_nm[lo:hi], sl.h_nm[lo:hi], sl.v_eV[lo:hi], sl.m_m0[lo:hi],
                   sl.g_eV[lo:hi], sl.piece[lo:hi], sl.exact)
+
+
+def _reduce(a, b, c, d, *, renorm: bool, track_log: bool):
+    """Pairwise product (later @ earlier) of 2x2 matrices given by components (ns, nE)."""
+    logs = 0.0
+    while a.shape[0] > 1:
+        if a.shape[0] % 2:
+            one = np.ones((1,) + a.shape[1:], dtype=a.dtype)
+            zero = np.zeros_like(one)
+            a, b, c, d = (np.concatenate([x, y]) for x, y in ((a, one), (b, zero), (c, zero),
+                                                              (d, one)))
+        a0, b0, c0, d0 = a[0::2], b[0::2], c[0::2], d[0::2]
+        a1, b1, c1, d1 = a[1::2], b[1::2], c[1::2], d[1::2]
+        a, b, c, d = (a1 * a0 + b1 * c0, a1 * b0 + b1 * d0, c1 * a0 + d1 * c0,
+                      c1 * b0 + d1 * d0)
+        if renorm:
+            s = np.maximum(np.maximum(np.abs(a), np.abs(b)), np.maximum(np.abs(c), np.abs(d)))
+            s = np.where(s > 0, s, 1.0)
+            a, b, c, d = a / s, b / s, c / s, d / s
+            if track_log:
+                logs = logs + np.log(s).sum(axis=0)
+    return a[0], b[0], c[0], d[0], logs
 
 
 def product(sl: Slices, energies, *, track_log: bool = False, backward: bool = False):
@@ -191,25 +237,52 @@ def product(sl: Slices, energies, *, track_log: bool = False, backward: bool = F
     if backward:
         # inverse transfer, from the far end back to the start: M(-h) = [[a, -b], [-c, d]]
         a, b, c, d, ls = a[::-1], -b[::-1], -c[::-1], d[::-1], ls[::-1]
-    A = np.stack([np.stack([a, b], -1), np.stack([c, d], -1)], -2)  # (ns, nE, 2, 2)
-    cplx = np.iscomplexobj(A)
+    cplx = np.iscomplexobj(a)
+    nE = a.shape[1]
     if cplx:
-        A = A * np.exp(ls)[..., None, None] if track_log else A
-        logs = np.zeros(A.shape[1], dtype=complex)
+        if track_log:
+            f = np.exp(ls)
+            a, b, c, d = a * f, b * f, c * f, d * f
+        logs = np.zeros(nE, dtype=complex)
     else:
-        logs = ls.sum(axis=0) if track_log else np.zeros(A.shape[1])
-    while A.shape[0] > 1:
-        if A.shape[0] % 2:
-            eye = np.broadcast_to(np.eye(2, dtype=A.dtype), (1,) + A.shape[1:])
-            A = np.concatenate([A, eye], axis=0)
-        A = A[1::2] @ A[0::2]
-        if not cplx:
-            s = np.max(np.abs(A), axis=(-1, -2))
+        logs = ls.sum(axis=0) if track_log else np.zeros(nE)
+    a, b, c, d, lg = _reduce(a, b, c, d, renorm=not cplx, track_log=track_log and not cplx)
+    M = np.empty((nE, 2, 2), dtype=a.dtype)
+    M[:, 0, 0], M[:, 0, 1], M[:, 1, 0], M[:, 1, 1] = a, b, c, d
+    return M, logs + lg
+
+
+def carry(sl: Slices, energies, p0, u0, lo: int, hi: int, *, backward: bool = False,
+          coef=None):
+    """State vector ``(psi, u)`` carried across slices ``lo:hi`` (real energies, bounded).
+
+    Forward: from the start of slice ``lo`` to the end of slice ``hi - 1``;
+    backward: from the end of slice ``hi - 1`` to the start of slice ``lo``.
+    The result is renormalised (only its direction is meaningful).  Few slices
+    are stepped one by one; many are reduced pairwise first.  ``coef`` may hold
+    :func:`coefficients` of all slices of ``sl`` at ``energies`` (reused).
+    """
+    p = np.asarray(p0, dtype=float) + 0.0 * np.asarray(energies, dtype=float)
+    u = np.asarray(u0, dtype=float) + 0.0 * p
+    if hi <= lo:
+        return p, u
+    if coef is None:
+        sub = sl if (lo == 0 and hi == sl.n) else subset(sl, lo, hi)
+        a, b, c, d, _ = coefficients(sub, energies)
+    else:
+        a, b, c, d = (x[lo:hi] for x in coef[:4])
+    if backward:
+        a, b, c, d = a[::-1], -b[::-1], -c[::-1], d[::-1]
+    if a.shape[0] > 8:
+        a, b, c, d, _ = _reduce(a, b, c, d, renorm=True, track_log=False)
+        return a * p + b * u, c * p + d * u
+    for j in range(a.shape[0]):
+        p, u = a[j] * p + b[j] * u, c[j] * p + d[j] * u
+        if j % 4 == 3:
+            s = np.maximum(np.abs(p), np.abs(u))
             s = np.where(s > 0, s, 1.0)
-            A = A / s[..., None, None]
-            if track_log:
-                logs = logs + np.log(s).sum(axis=0)
-    return A[0], logs
+            p, u = p / s, u / s
+    return p, u
 
 
 def propagate_states(sl: Slices, energies, psi0, u0, *, backward: bool = False):

@@ -107,18 +107,9 @@ def _mismatch(sl: tr.Slices, E: np.ndarray, clad_l, clad_r) -> np.ndarray:
     kl, ml = tr.cladding_kappa(*clad_l, E)
     kr, mr = tr.cladding_kappa(*clad_r, E)
     jm = _split_index(sl)
-    if jm > 0:
-        ML, _ = tr.product(tr.subset(sl, 0, jm), E)
-        pl = ML[:, 0, 0] + ML[:, 0, 1] * (kl / ml)
-        ul = ML[:, 1, 0] + ML[:, 1, 1] * (kl / ml)
-    else:
-        pl, ul = np.ones_like(E), kl / ml
-    if jm < sl.n:
-        MR, _ = tr.product(tr.subset(sl, jm, sl.n), E, backward=True)
-        pr = MR[:, 0, 0] - MR[:, 0, 1] * (kr / mr)
-        ur = MR[:, 1, 0] - MR[:, 1, 1] * (kr / mr)
-    else:
-        pr, ur = np.ones_like(E), -kr / mr
+    coef = tr.coefficients(sl, E)
+    pl, ul = tr.carry(sl, E, 1.0, kl / ml, 0, jm, coef=coef)
+    pr, ur = tr.carry(sl, E, 1.0, -kr / mr, jm, sl.n, backward=True, coef=coef)
     # weight making u comparable with psi in the matching slice
     j = min(jm, sl.n - 1)
     mj = tr.eff_mass(sl.m_m0[j], sl.v_eV[j], sl.g_eV[j], E)
@@ -168,20 +159,27 @@ def _vroot(f, lo, hi, flo, fhi, xtol, maxit=200):
     return lo, hi
 
 
-def _isolate(count, e_lo, e_hi, n_lo, n_hi, seeds=(), n_grid=24, min_width=1e-13, max_pass=80):
+def _isolate(count, e_lo, e_hi, n_lo, n_hi, seeds=(), n_grid=24, min_width=1e-13, max_pass=80,
+             pre=None):
     """Brackets [a_k, b_k] with N(a_k) = k, N(b_k) = k + 1 for k = n_lo .. n_hi - 1.
 
     ``count`` is the vectorised counting function.  All bisection midpoints of a
     pass are evaluated in one call; every evaluated point tightens every bracket.
-    Returns (a, b, isolated) arrays indexed by k - n_lo.
+    ``pre = (E, N)`` gives points already counted (then no initial grid is
+    evaluated here).  Returns (a, b, isolated) arrays indexed by k - n_lo.
     """
     pts_e = [np.array([e_lo, e_hi])]
     pts_n = [np.array([n_lo, n_hi])]
-    init = np.concatenate([np.linspace(e_lo, e_hi, n_grid + 2)[1:-1], np.asarray(seeds, float)])
-    init = init[(init > e_lo) & (init < e_hi)]
-    if init.size:
-        pts_e.append(init)
-        pts_n.append(count(init))
+    if pre is not None:
+        pts_e.append(np.asarray(pre[0], float))
+        pts_n.append(np.asarray(pre[1]))
+    else:
+        init = np.concatenate([np.linspace(e_lo, e_hi, n_grid + 2)[1:-1],
+                               np.asarray(seeds, float)])
+        init = init[(init > e_lo) & (init < e_hi)]
+        if init.size:
+            pts_e.append(init)
+            pts_n.append(count(init))
     ks = np.arange(n_lo, n_hi)
     for _ in range(max_pass):
         E = np.concatenate(pts_e)
@@ -203,20 +201,24 @@ def _isolate(count, e_lo, e_hi, n_lo, n_hi, seeds=(), n_grid=24, min_width=1e-13
     return a, b, iso
 
 
-def _eigenvalues(band: Band, sl: tr.Slices, clad_l, clad_r, e_lo, e_hi, kmax, xtol, seeds=()):
+def _eigenvalues(band: Band, sl: tr.Slices, clad_l, clad_r, e_lo, e_hi, kmax, xtol, seeds=(),
+                 n_grid=24):
     """Eigenvalues of the sliced problem below e_hi: (E, bracket half-width, isolated)."""
     def count(e):
         return _count(sl, e, clad_l, clad_r)
 
-    n_hi = int(count(np.array([e_hi]))[0])
-    n_lo = int(count(np.array([e_lo]))[0])
+    # one counting pass: both ends, a coarse grid and the seeds
+    init = np.concatenate([np.linspace(e_lo, e_hi, n_grid + 2)[1:-1], np.asarray(seeds, float)])
+    init = init[(init > e_lo) & (init < e_hi)]
+    N0 = count(np.concatenate([[e_lo, e_hi], init]))
+    n_lo, n_hi = int(N0[0]), int(N0[1])
     if kmax is not None:
         n_hi = min(n_hi, n_lo + kmax)
     if n_hi <= n_lo:
         return np.zeros(0), np.zeros(0), np.zeros(0, bool), n_lo
-    a, b, iso = _isolate(count, e_lo, e_hi, n_lo, n_hi, seeds=seeds)
-    fa = _mismatch(sl, a, clad_l, clad_r)
-    fb = _mismatch(sl, b, clad_l, clad_r)
+    a, b, iso = _isolate(count, e_lo, e_hi, n_lo, n_hi, pre=(init, N0[2:]))
+    fab = _mismatch(sl, np.concatenate([a, b]), clad_l, clad_r)
+    fa, fb = fab[:a.size], fab[a.size:]
 
     def f(x, idx):
         return _mismatch(sl, x, clad_l, clad_r)
@@ -258,56 +260,76 @@ def count_states_below(band: Band, energies_eV: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------- wavefunctions
-def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarray:
-    """Bounded two-sided evaluation of the sliced solution at energy E on z (unnormalised).
+def _waves_on(sl: tr.Slices, E: np.ndarray, z: np.ndarray, clad_l, clad_r):
+    """Bounded two-sided evaluation of the sliced solutions at energies E (nS,) on z (nz,).
 
     The left-decaying solution is used left of a matching interface and the
     right-decaying one right of it; they are joined by least squares on the
     state vector (psi, u) at that interface (chosen next to the deepest slice).
+    All energies are evaluated together.
+
+    Returns
+    -------
+    psi : array (nS, nz)
+        Unnormalised values on the z points inside the sliced range
+        (``z`` is expected inside it; points outside are treated by the tails).
+    tails : tuple of arrays
+        ``(c_l, k_l, c_r, k_r)``: the left tail is ``c_l * exp(k_l (z - z_a))`` for
+        ``z < z_a`` and the right tail ``c_r * exp(-k_r (z - z_b))`` for ``z > z_b``
+        (z_a, z_b the ends of the slices), same normalisation as ``psi``.
     """
-    e = np.array([float(E)])
+    e = np.asarray(E, dtype=float)
     kl, ml = tr.cladding_kappa(*clad_l, e)
     kr, mr = tr.cladding_kappa(*clad_r, e)
     PL, UL, LL, _ = tr.propagate_states(sl, e, 1.0, kl / ml)
     PR, UR, LR, _ = tr.propagate_states(sl, e, 1.0, -kr / mr, backward=True)
-    PL, UL, LL, PR, UR, LR = (x[:, 0] for x in (PL, UL, LL, PR, UR, LR))
     ns = sl.n
     jdeep = int(np.argmin(sl.v_eV))
     jm = jdeep if jdeep > 0 else min(1, ns)
+    jw = min(jm, ns - 1)
     # weight making u comparable with psi
-    m_here = tr.eff_mass(sl.m_m0[min(jm, ns - 1)], sl.v_eV[min(jm, ns - 1)], sl.g_eV[min(jm, ns - 1)], E)
-    w = np.sqrt(tr.C_EV_NM2 * m_here / max(abs(E - sl.v_eV[min(jm, ns - 1)]), 1e-4))
-    vl = np.array([PL[jm], w * UL[jm]])
-    vr = np.array([PR[jm], w * UR[jm]])
-    lam = float(vr @ vl) / float(vl @ vl)  # vr ~ lam * vl
+    m_here = tr.eff_mass(sl.m_m0[jw], sl.v_eV[jw], sl.g_eV[jw], e)
+    w = np.sqrt(tr.C_EV_NM2 * m_here / np.maximum(np.abs(e - sl.v_eV[jw]), 1e-4))
+    vl0, vl1 = PL[jm], w * UL[jm]
+    vr0, vr1 = PR[jm], w * UR[jm]
+    lam = (vr0 * vl0 + vr1 * vl1) / (vl0 * vl0 + vl1 * vl1)  # vr ~ lam * vl
     bounds = np.concatenate([sl.z0_nm, [sl.z_end_nm]])
     zb = bounds[jm]
     z = np.asarray(z, dtype=float)
-    out = np.zeros_like(z)
-    # left cladding / right cladding
-    m = z < bounds[0]
-    out[m] = PL[0] * np.exp(np.minimum(kl[0] * (z[m] - bounds[0]) + LL[0] - LL[jm], 700))
-    m = z > bounds[-1]
-    out[m] = PR[-1] / lam * np.exp(np.minimum(-kr[0] * (z[m] - bounds[-1]) + LR[-1] - LR[jm], 700))
-    inside = (z >= bounds[0]) & (z <= bounds[-1])
-    zi = z[inside]
-    j = np.clip(np.searchsorted(bounds, zi, side="right") - 1, 0, ns - 1)
-    res = np.empty_like(zi)
-    left = zi < zb
-    # forward from slice starts (left part)
+    j = np.clip(np.searchsorted(bounds, z, side="right") - 1, 0, ns - 1)
+    left = z < zb
+    res = np.empty((e.size, z.size))
+    Ec = e[:, None]
     if left.any():
         jl = j[left]
-        x = zi[left] - bounds[jl]
-        a, b, c, d, ls = tr.coefficients(sl, np.full(jl.size, E), lengths=x, sl_index=jl)
-        res[left] = (a * PL[jl] + b * UL[jl]) * np.exp(np.minimum(ls + LL[jl] - LL[jm], 700))
+        x = z[left] - bounds[jl]
+        a, b, c, d, ls = tr.coefficients(sl, Ec, lengths=x, sl_index=jl)
+        res[:, left] = (a * PL[jl].T + b * UL[jl].T) * np.exp(
+            np.minimum(ls + LL[jl].T - LL[jm][:, None], 700))
     right = ~left
     if right.any():
         jr = j[right]
-        x = bounds[jr + 1] - zi[right]
-        a, b, c, d, ls = tr.coefficients(sl, np.full(jr.size, E), lengths=x, sl_index=jr)
-        res[right] = (a * PR[jr + 1] - b * UR[jr + 1]) / lam * np.exp(
-            np.minimum(ls + LR[jr + 1] - LR[jm], 700))
-    out[inside] = res
+        x = bounds[jr + 1] - z[right]
+        a, b, c, d, ls = tr.coefficients(sl, Ec, lengths=x, sl_index=jr)
+        res[:, right] = (a * PR[jr + 1].T - b * UR[jr + 1].T) / lam[:, None] * np.exp(
+            np.minimum(ls + LR[jr + 1].T - LR[jm][:, None], 700))
+    c_l = PL[0] * np.exp(np.minimum(LL[0] - LL[jm], 700))
+    c_r = PR[-1] / lam * np.exp(np.minimum(LR[-1] - LR[jm], 700))
+    return res, (c_l, kl, c_r, kr)
+
+
+def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarray:
+    """Unnormalised sliced solution at one energy E on any z (claddings included)."""
+    z = np.asarray(z, dtype=float)
+    za, zb = float(sl.z0_nm[0]), sl.z_end_nm
+    inside = (z >= za) & (z <= zb)
+    res, (c_l, kl, c_r, kr) = _waves_on(sl, np.array([float(E)]), z[inside], clad_l, clad_r)
+    out = np.zeros_like(z)
+    out[inside] = res[0]
+    m = z < za
+    out[m] = c_l[0] * np.exp(np.minimum(kl[0] * (z[m] - za), 700))
+    m = z > zb
+    out[m] = c_r[0] * np.exp(np.minimum(-kr[0] * (z[m] - zb), 700))
     return out
 
 
@@ -324,18 +346,28 @@ def wavefunction(band: Band, energy_eV: float, z_nm: np.ndarray) -> np.ndarray:
                     _cladding(band, "left"), _cladding(band, "right"))
 
 
-def _grid(band: Band, E: float, step_nm: float, clad_l, clad_r):
-    kl, _ = tr.cladding_kappa(*clad_l, np.array([E]))
-    kr, _ = tr.cladding_kappa(*clad_r, np.array([E]))
-    tails = []
-    for k in (kl[0], kr[0]):
-        t = _TAIL_DECAY / (2 * k) if k > 0 else _TAIL_MAX_NM
-        tails.append(float(np.clip(t, _TAIL_MIN_NM, _TAIL_MAX_NM)))
-    segs = [np.linspace(band.z_start_nm - tails[0], band.z_start_nm,
-                        max(2, int(np.ceil(tails[0] / step_nm)) + 1))[:-1]]
+def _tail_length(k: float) -> float:
+    t = _TAIL_DECAY / (2 * k) if k > 0 else _TAIL_MAX_NM
+    return float(np.clip(t, _TAIL_MIN_NM, _TAIL_MAX_NM))
+
+
+def _interior_grid(band: Band, step_nm: float) -> np.ndarray:
+    """Grid over the listed layers: every interface, step <= step_nm, end point included."""
+    segs = []
     for p in band.pieces:
         n = max(1, int(np.ceil(p.thickness_nm / step_nm)))
         segs.append(np.linspace(p.z_start_nm, p.z_end_nm, n + 1)[:-1])
+    segs.append(np.array([band.z_end_nm]))
+    return np.concatenate(segs)
+
+
+def _grid(band: Band, E: float, step_nm: float, clad_l, clad_r):
+    kl, _ = tr.cladding_kappa(*clad_l, np.array([E]))
+    kr, _ = tr.cladding_kappa(*clad_r, np.array([E]))
+    tails = [_tail_length(kl[0]), _tail_length(kr[0])]
+    segs = [np.linspace(band.z_start_nm - tails[0], band.z_start_nm,
+                        max(2, int(np.ceil(tails[0] / step_nm)) + 1))[:-1]]
+    segs.append(_interior_grid(band, step_nm)[:-1])
     segs.append(np.linspace(band.z_end_nm, band.z_end_nm + tails[1],
                             max(2, int(np.ceil(tails[1] / step_nm)) + 1)))
     return np.concatenate(segs), kl[0], kr[0]
@@ -345,35 +377,68 @@ def _trapz(y, x):
     return float(np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(x))) if x.size > 1 else 0.0
 
 
+def _normalised_states(band: Band, sl: tr.Slices, energies, step_nm: float, clad_l, clad_r,
+                       closed_tails: bool = True):
+    """Normalised wavefunctions of several states at once: list of (z, psi, probabilities).
+
+    Each state gets the grid of :func:`_grid` (interior shared by all states,
+    cladding tails of ``_TAIL_DECAY`` decay lengths of the density); the
+    density is normalised with the trapezoid rule plus the analytic tails
+    ``psi_end^2 / (2 kappa)`` beyond the grid (bound states).
+    """
+    E = np.atleast_1d(np.asarray(energies, dtype=float))
+    if E.size == 0:
+        return []
+    zi = _interior_grid(band, step_nm)
+    za, zb = band.z_start_nm, band.z_end_nm
+    psi_i, (c_l, kl, c_r, kr) = _waves_on(sl, E, zi, clad_l, clad_r)
+    dzi = np.diff(zi)
+    dens_i = psi_i ** 2
+    seg = 0.5 * (dens_i[:, 1:] + dens_i[:, :-1]) * dzi
+    cum = np.concatenate([np.zeros((E.size, 1)), np.cumsum(seg, axis=1)], axis=1)
+    # interface positions on the interior grid (exact floats, see _interior_grid)
+    edge_idx = np.searchsorted(zi, band.boundaries_nm)
+    n_layers = (len(band.layer_names) if band.layer_names else
+                1 + max(p.layer_index for p in band.pieces))
+    out = []
+    for i in range(E.size):
+        tl, tr_ = _tail_length(kl[i]), _tail_length(kr[i])
+        zl = np.linspace(za - tl, za, max(2, int(np.ceil(tl / step_nm)) + 1))[:-1]
+        zr = np.linspace(zb, zb + tr_, max(2, int(np.ceil(tr_ / step_nm)) + 1))[1:]
+        pl = c_l[i] * np.exp(np.minimum(kl[i] * (zl - za), 700))
+        pr = c_r[i] * np.exp(np.minimum(-kr[i] * (zr - zb), 700))
+        z = np.concatenate([zl, zi, zr])
+        psi = np.concatenate([pl, psi_i[i], pr])
+        dl = np.concatenate([pl, psi_i[i, :1]]) ** 2
+        dr = np.concatenate([psi_i[i, -1:], pr]) ** 2
+        zl1 = np.concatenate([zl, zi[:1]])
+        zr1 = np.concatenate([zi[-1:], zr])
+        int_l = float(np.sum(0.5 * (dl[1:] + dl[:-1]) * np.diff(zl1)))
+        int_r = float(np.sum(0.5 * (dr[1:] + dr[:-1]) * np.diff(zr1)))
+        tail_l = psi[0] ** 2 / (2 * kl[i]) if (closed_tails and kl[i] > 0) else 0.0
+        tail_r = psi[-1] ** 2 / (2 * kr[i]) if (closed_tails and kr[i] > 0) else 0.0
+        norm = int_l + float(cum[i, -1]) + int_r + tail_l + tail_r
+        psi = psi / np.sqrt(norm)
+        if psi[np.argmax(np.abs(psi))] < 0:
+            psi = -psi
+        probs = np.zeros(n_layers)
+        piece_int = np.diff(cum[i, edge_idx])
+        for k, p in enumerate(band.pieces):
+            val = float(piece_int[k])
+            if k == 0:
+                val += int_l + tail_l
+            if k == len(band.pieces) - 1:
+                val += int_r + tail_r
+            if p.layer_index < probs.size:
+                probs[p.layer_index] += val / norm
+        out.append((z, psi, tuple(float(x) for x in probs)))
+    return out
+
+
 def _normalised_state(band: Band, sl: tr.Slices, E: float, step_nm: float, clad_l, clad_r,
                       closed_tails: bool = True):
-    z, kl, kr = _grid(band, E, step_nm, clad_l, clad_r)
-    psi = _wave_on(sl, E, z, clad_l, clad_r)
-    dens = psi ** 2
-    tail_l = dens[0] / (2 * kl) if (closed_tails and kl > 0) else 0.0
-    tail_r = dens[-1] / (2 * kr) if (closed_tails and kr > 0) else 0.0
-    norm = _trapz(dens, z) + tail_l + tail_r
-    psi = psi / np.sqrt(norm)
-    if psi[np.argmax(np.abs(psi))] < 0:
-        psi = -psi
-    dens = psi ** 2
-    tail_l, tail_r = tail_l / norm, tail_r / norm
-    # per-layer probability; interface points shared
-    edges = band.boundaries_nm
-    probs = np.zeros(len(band.layer_names) if band.layer_names else
-                     1 + max(p.layer_index for p in band.pieces))
-    for i, p in enumerate(band.pieces):
-        lo = -np.inf if i == 0 else edges[i]
-        hi = np.inf if i == len(band.pieces) - 1 else edges[i + 1]
-        sel = (z >= lo) & (z <= hi)
-        val = _trapz(dens[sel], z[sel])
-        if i == 0:
-            val += tail_l
-        if i == len(band.pieces) - 1:
-            val += tail_r
-        if p.layer_index < probs.size:
-            probs[p.layer_index] += val
-    return z, psi, tuple(float(x) for x in probs)
+    """One normalised state (see :func:`_normalised_states`)."""
+    return _normalised_states(band, sl, [E], step_nm, clad_l, clad_r, closed_tails)[0]
 
 
 # ---------------------------------------------------------------- resonances
@@ -389,9 +454,18 @@ def _open_mismatch(sl: tr.Slices, E, clad_l, clad_r):
 
 
 def _poles(sl: tr.Slices, starts, clad_l, clad_r, xtol, maxit=80):
-    """Vectorised secant iteration for complex poles from real start energies."""
-    x0 = np.asarray(starts, dtype=complex) - 1e-6j
-    x1 = np.asarray(starts, dtype=complex) - 2e-6j
+    """Vectorised secant iteration for complex poles.
+
+    ``starts`` are real energies (closed-box levels) or complex pole estimates
+    (then the secant starts at the estimate and a point shifted by a small
+    fraction of its width).
+    """
+    s0 = np.asarray(starts, dtype=complex)
+    if np.any(s0.imag != 0):
+        d = 1e-3 * np.abs(s0.imag) + 1e-9
+        x0, x1 = s0.copy(), s0 + d * (1 - 1j)
+    else:
+        x0, x1 = s0 - 1e-6j, s0 - 2e-6j
     f0 = _open_mismatch(sl, x0, clad_l, clad_r)
     f1 = _open_mismatch(sl, x1, clad_l, clad_r)
     done = np.zeros(x0.size, bool)
@@ -414,6 +488,83 @@ def _poles(sl: tr.Slices, starts, clad_l, clad_r, xtol, maxit=80):
         step[ia] = np.abs(dx)
         done[ia] = (np.abs(dx) < xtol) | (dx == 0)
     return x1, step, done
+
+
+def _refine_poles(band: Band, poles, level: int, clad_l, clad_r, xtol: float,
+                  tolerance_eV: float, max_level: int = _MAX_LEVEL):
+    """Richardson refinement of complex poles, halving the slice step until agreement.
+
+    ``poles`` were found on the slices of ``level``.  The poles are followed
+    from level to level (secant started at the previous level's pole); at each
+    level ``l >= 1`` the extrapolate ``R_l = (4 p_l - p_{l-1}) / 3`` is formed
+    (error even in the step h), and a pole is accepted once two successive
+    extrapolates agree to ``tolerance_eV``; that difference is its tolerance.
+    Refinement stops at ``max_level``; a pole not settled by then keeps the
+    last difference (reported as not converged).  A pole that cannot be
+    followed (secant failure or a jump to another pole) gets an infinite
+    tolerance.
+
+    Returns
+    -------
+    poles : complex array
+        Best estimates (last extrapolates).
+    tol : float array
+        Reached accuracy [eV] of each pole (absolute complex difference).
+
+    References
+    ----------
+    L. F. Richardson, Phil. Trans. R. Soc. A 210, 307 (1911).
+    """
+    raw = {level: np.asarray(poles, dtype=complex)}
+    n = raw[level].size
+    best = raw[level].copy()
+    tol = np.full(n, np.inf)
+    rich_prev = np.full(n, np.nan + 0j)
+    alive = np.ones(n, bool)
+
+    def follow(lv, starts, idx):
+        sl = tr.build_slices(band, lv)
+        p, _, done = _poles(sl, starts, clad_l, clad_r, xtol)
+        prev = raw[lv - 1 if lv > level else lv + 1][idx]
+        ok = done & np.isfinite(p) & (np.abs(p - prev) < 0.1 * np.abs(prev.imag) + 1e-3)
+        return p, ok
+
+    if level == 0:
+        # need a coarser partner: go one level finer first
+        levels = range(1, max_level + 1)
+    else:
+        p, ok = follow(level - 1, raw[level], np.arange(n))
+        raw[level - 1] = p
+        alive &= ok
+        rich_prev = np.where(alive, (4 * raw[level] - p) / 3, rich_prev)
+        best = np.where(alive, rich_prev, best)
+        tol = np.where(alive, np.abs(rich_prev - raw[level]), np.inf)
+        levels = range(level + 1, max_level + 1)
+    active = alive.copy()  # every live pole needs two extrapolates before it may stop
+    for lv in levels:
+        idx = np.nonzero(active)[0]
+        if idx.size == 0:
+            break
+        prev = raw[lv - 1]
+        # start from the previous pole moved by the expected h^2 correction
+        start = prev[idx] + (best[idx] - prev[idx]) * 0.75 if lv - 2 in raw else prev[idx]
+        p_new = np.full(n, np.nan + 0j)
+        p, ok = follow(lv, start, idx)
+        p_new[idx] = p
+        raw[lv] = np.where(np.isnan(p_new.real), prev, p_new)
+        bad = idx[~ok]
+        alive[bad] = False
+        active[bad] = False
+        tol[bad] = np.inf
+        good = idx[ok]
+        rich = (4 * raw[lv][good] - prev[good]) / 3
+        had = ~np.isnan(rich_prev[good].real)
+        est = np.where(had, np.abs(rich - rich_prev[good]), np.abs(rich - raw[lv][good]))
+        rich_prev[good] = rich
+        best[good] = rich
+        tol[good] = est
+        active[good] = ~(had & (est <= tolerance_eV))
+    return best, np.maximum(tol, xtol)
 
 
 def _quasi_bound(band: Band, sl: tr.Slices, xtol: float):
@@ -638,35 +789,32 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         notes.append("an eigenvalue pair could not be separated (splitting below 1e-13 eV)")
 
     states = []
+    waves = (_normalised_states(band, final_sl, final_E[:E.size], grid_step_nm, clad_l, clad_r)
+             if wavefunctions else None)
     for i in range(E.size):
         z = psi = None
         probs = ()
         if wavefunctions:
-            z, psi, probs = _normalised_state(band, final_sl, float(final_E[i]), grid_step_nm,
-                                              clad_l, clad_r)
+            z, psi, probs = waves[i]
         states.append(dict(energy=float(E[i]), tol=float(tol[i]), conv=bool(converged[i]),
                            bound=True, life=None, z=z, psi=psi, probs=probs, msg=""))
 
     if quasi_bound:
         xq = max(min(tolerance_eV / 10, 1e-9), 1e-13)
         poles, steps, _ = _quasi_bound(band, final_sl, xq)
-        ptol = steps
+        ptol = np.maximum(steps, xq) if len(poles) else steps
         if not flat and len(poles):
-            prev_sl = tr.build_slices(band, max(0, len(levels_E) - 2))
-            p2, s2, d2 = _poles(prev_sl, poles.real, clad_l, clad_r, xq)
-            # Richardson on the complex pole (even error expansion in h)
-            good = d2 & (np.abs(p2 - poles) < 0.1 * np.abs(poles.imag) + 1e-3)
-            rich = np.where(good, (4 * poles - p2) / 3, poles)
-            ptol = np.where(good, np.abs(rich - poles), np.inf)
-            poles = rich
-        for p, t in zip(poles, ptol):
+            poles, ptol = _refine_poles(band, poles, len(levels_E) - 1, clad_l, clad_r, xq,
+                                        tolerance_eV)
+        qwaves = (_normalised_states(band, final_sl, np.real(poles), grid_step_nm, clad_l, clad_r,
+                                     closed_tails=False) if wavefunctions else None)
+        for iq, (p, t) in enumerate(zip(poles, ptol)):
             gamma = max(-2 * p.imag, 0.0)
             life = tr.HBAR_EV_S / gamma if gamma > 0 else np.inf
             z = psi = None
             probs = ()
             if wavefunctions:
-                z, psi, probs = _normalised_state(band, final_sl, float(p.real), grid_step_nm,
-                                                  clad_l, clad_r, closed_tails=False)
+                z, psi, probs = qwaves[iq]
             t = float(max(t, xq))
             states.append(dict(energy=float(p.real), tol=t, conv=t <= tolerance_eV, bound=False,
                                life=float(life), z=z, psi=psi, probs=probs,
