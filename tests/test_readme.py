@@ -1,0 +1,40 @@
+"""The README's promises: the job paragraph, the two set-up commands, the shown output, cautions."""
+
+import re
+import shlex
+from pathlib import Path
+
+from qwell.cli import main
+
+ROOT = Path(__file__).resolve().parents[1]
+README = (ROOT / "README.md").read_text()
+
+
+def test_opens_with_the_job_and_two_commands():
+    first = next(p for p in README.split("\n\n") if p.strip() and not p.startswith("#"))
+    assert len(first) > 200 and "engineers" in first
+    blocks = re.findall(r"```\n(.*?)\n```", README, flags=re.S)
+    assert blocks[0].strip() == "python3 -m pip install . && qwell levels layers/pump-laser-well.yaml"
+    assert blocks[1].strip() == 'python3 -m pip install ".[test]" && python3 -m pytest -q'
+    ci = (ROOT / ".ci" / "run").read_text()
+    assert 'pip install --quiet --disable-pip-version-check ".[test]"' in ci
+    assert "python3 -m pytest -q" in ci
+
+
+def test_shown_output_is_what_the_command_prints(capsys, monkeypatch):
+    m = re.search(r"```\n\$ (qwell [^\n]+)\n(.*?)\n```", README, flags=re.S)
+    assert m, "README shows a qwell run with its output"
+    cmd, shown = m.group(1), m.group(2)
+    monkeypatch.chdir(ROOT)
+    rc = main(shlex.split(cmd)[1:])
+    out = capsys.readouterr().out
+    assert rc == 0
+    assert out.rstrip() == shown.rstrip()
+
+
+def test_cautions_are_shown():
+    from qwell.report import CAUTIONS
+    for needle in ("IEC 60825-1", "invisible infrared laser radiation", "arsenic",
+                   "confirm every wavelength", "local codes and licensed practice"):
+        assert needle in README
+        assert any(needle in c for c in CAUTIONS)
