@@ -642,18 +642,31 @@ def bands_for_transitions(transitions, extra=()) -> tuple:
     return tuple(b for b in BAND_NAMES if b in need)
 
 
-def _solve_design(stack, bands, wavefunctions):
-    from .levels import solve_stack
+def _solve_design(stack, bands, wavefunctions, needed=None):
+    """Solve one design; with ``needed`` state labels, skip the resonance search when
+    every needed state is truly bound (quasi-bound states lie above all bound ones,
+    so the bound labels do not change) and fall back to the full solve otherwise."""
+    from .levels import solve_profile
+    from .profile import band_profile
 
-    sol = solve_stack(stack, bands=bands, method="exact", transitions=True,
-                      wavefunctions=wavefunctions)
+    prof = band_profile(stack)
+    sol = None
+    if needed:
+        sol = solve_profile(prof, bands=bands, method="exact", transitions=True,
+                            wavefunctions=wavefunctions, quasi_bound=False)
+        have = {s.label for s in sol.states}
+        if not set(needed) <= have:
+            sol = None
+    if sol is None:
+        sol = solve_profile(prof, bands=bands, method="exact", transitions=True,
+                            wavefunctions=wavefunctions)
     states = tuple((s.label, float(s.energy_eV), bool(s.bound)) for s in sol.states)
     trans = tuple((t.name, float(t.energy_eV), float(t.wavelength_um)) for t in sol.transitions)
     return states, trans
 
 
 def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("conduction",),
-                 wavefunctions: bool = False) -> DesignPoint:
+                 wavefunctions: bool = False, needed=None) -> DesignPoint:
     """Solve one design: ``stack`` with ``values`` applied (see :func:`apply_parameters`).
 
     This is the single evaluation used by every workflow here.  The stack is
@@ -670,12 +683,17 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
     wavefunctions : bool
         Compute wavefunctions (and with them dipoles); energies do not depend
         on it.
+    needed : sequence of str, optional
+        State labels the caller needs (e.g. ``("e1", "hh1")``); when all are
+        bound, quasi-bound resonances are not searched (faster; the other
+        results are unchanged).
     """
     values = dict(values or {})
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         s = apply_parameters(stack, values)
-        states, trans = _solve_design(s, tuple(bands), wavefunctions)
+        states, trans = _solve_design(s, tuple(bands), wavefunctions,
+                                      tuple(needed) if needed else None)
     notes, cats = [], []
     for w in caught:
         msg = str(w.message)
@@ -691,7 +709,7 @@ _BASE_CACHE: dict = {}
 
 def _eval_chunk(payload, items):
     """Worker: evaluate a chunk of parameter dicts on the stack rebuilt from its mapping."""
-    raw, file, bands, wavefunctions = payload
+    raw, file, bands, wavefunctions, needed = payload
     from .stack import stack_from_mapping
 
     key = (id(raw), file)
@@ -703,7 +721,7 @@ def _eval_chunk(payload, items):
             _BASE_CACHE[key] = (raw, stack_from_mapping(raw, file=file))
         base = _BASE_CACHE[key]
     stack = base[1]
-    return [design_point(stack, values, bands=bands, wavefunctions=wavefunctions)
+    return [design_point(stack, values, bands=bands, wavefunctions=wavefunctions, needed=needed)
             for values in items]
 
 
@@ -718,7 +736,7 @@ def _emit(points, stacklevel=3):
 
 def evaluate_many(stack, value_sets, *, bands=("conduction",), wavefunctions: bool = False,
                   jobs=None, dask=None, dask_timeout_s: float | None = None,
-                  progress: bool | None = None, label: str = "") -> list:
+                  progress: bool | None = None, label: str = "", needed=None) -> list:
     """:func:`design_point` for many parameter sets, in parallel where it pays.
 
     Parameters
@@ -738,7 +756,8 @@ def evaluate_many(stack, value_sets, *, bands=("conduction",), wavefunctions: bo
     from . import parallel
 
     raw = copy.deepcopy(dict(stack.raw))
-    payload = (raw, stack.path, tuple(bands), bool(wavefunctions))
+    payload = (raw, stack.path, tuple(bands), bool(wavefunctions),
+               tuple(needed) if needed else None)
     fn = partial(_eval_chunk, payload)
     kw = {}
     if dask_timeout_s is not None:
@@ -1674,8 +1693,10 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
                                      f"(nominal {p.value:.6g}) leaves the valid range: {exc}"
                                      ) from None
             sets.append({p.path: v})
+    needed = tuple(transition.split("-"))
     pm = evaluate_many(stack, sets, bands=bands, jobs=jobs, dask=dask,
-                       dask_timeout_s=dask_timeout_s, progress=progress, label="tolerance")
+                       dask_timeout_s=dask_timeout_s, progress=progress, label="tolerance",
+                       needed=needed)
     contributions = []
     for k, (p, d, spec) in enumerate(items):
         lp, lm = pm[2 * k].wavelength(transition), pm[2 * k + 1].wavelength(transition)
@@ -1695,7 +1716,7 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
             continue
         up[p.path] = p.value + s * d
         down[p.path] = p.value - s * d
-    corners = evaluate_many(stack, [down, up], bands=bands, jobs=1)
+    corners = evaluate_many(stack, [down, up], bands=bands, jobs=1, needed=needed)
     corner_min, corner_max = corners[0].wavelength(transition), corners[1].wavelength(transition)
 
     mc = None
@@ -1717,7 +1738,7 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
             sample_sets.append(d)
         pts = evaluate_many(stack, sample_sets, bands=bands, jobs=jobs, dask=dask,
                             dask_timeout_s=dask_timeout_s, progress=progress,
-                            label="Monte Carlo")
+                            label="Monte Carlo", needed=needed)
         lam = np.array([pt.wavelength(transition) for pt in pts])
         ok = lam[np.isfinite(lam)]
         if ok.size < lam.size:

@@ -102,7 +102,7 @@ def _bands_for(which) -> tuple:
 
 def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
                   transitions: bool = True, tolerance_eV: float = 1e-7,
-                  wavefunctions: bool = True) -> Solution:
+                  wavefunctions: bool = True, quasi_bound: bool = True) -> Solution:
     """Solve the bands of a profile and collect transitions.
 
     Parameters
@@ -116,6 +116,11 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
         only for the exact method).
     tolerance_eV : float
         Energy tolerance of each state [eV].
+    wavefunctions : bool
+        Compute wavefunctions (needed for dipoles and overlaps).
+    quasi_bound : bool
+        Also search for quasi-bound resonances (exact method); they lie above
+        every bound state, so skipping them leaves the bound labels unchanged.
     """
     if method not in METHODS:
         raise ParameterError(f"unknown method {method!r}; expected one of: " + ", ".join(METHODS))
@@ -128,6 +133,7 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
         opts = {"tolerance_eV": tolerance_eV}
         if method == "exact":
             opts["wavefunctions"] = wavefunctions and transitions
+            opts["quasi_bound"] = quasi_bound
         levels[b] = solve(profile.bands[b], method, **opts)
     trans = ()
     if transitions and method == "exact":
