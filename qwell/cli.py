@@ -217,6 +217,31 @@ def _print_transitions(trans, show_all=False) -> None:
                   "not shown; --json lists all)")
 
 
+def _spectrum_lines(solution, chosen, args):
+    """Lines of the spectrum plot and a short description of the choice.
+
+    With ``--transition`` the chosen lines are used as given.  Otherwise the
+    plot shows one kind (``--spectrum``; default intersubband when the stack
+    has any): intersubband lines start from the ground subband only (the
+    populated one in an undoped well at low density), interband lines all.
+    """
+    if args.transition:
+        return chosen, "chosen lines"
+    kinds = {t.kind for t in chosen}
+    kind = args.spectrum or ("intersubband" if "intersubband" in kinds else "interband")
+    lines = [t for t in chosen if t.kind == kind]
+    if kind == "intersubband":
+        cb = solution.levels.get("conduction")
+        ground = cb.states[0].label if cb is not None and len(cb) else "e1"
+        lines = [t for t in lines if t.initial == ground]
+        what = f"intersubband absorption from {ground}"
+    else:
+        what = "interband lines"
+    if not lines:
+        raise QwellError(f"--png: no {kind} transitions to plot")
+    return lines, what
+
+
 def cmd_levels(args) -> int:
     from .levels import compare_methods
     from .optics import select_transitions
@@ -234,8 +259,10 @@ def cmd_levels(args) -> int:
         exact = sols.get("exact")
         if exact is None or not chosen.get("exact"):
             raise QwellError("--png: the spectrum needs transitions from the exact method")
-        spec = spectrum(chosen["exact"], linewidth_meV=args.linewidth, shape=args.lineshape)
-        plot_spectrum(spec, args.png, axis=args.axis, title=stack.name)
+        lines, what = _spectrum_lines(exact, chosen["exact"], args)
+        spec = spectrum(lines, linewidth_meV=args.linewidth, shape=args.lineshape)
+        plot_spectrum(spec, args.png, axis=args.axis, title=f"{stack.name}: {what}",
+                      protect=[args.stack])
     if args.json:
         if len(sols) == 1:
             (m, sol), = sols.items()
@@ -328,6 +355,8 @@ def build_parser() -> argparse.ArgumentParser:
                     help="spectrum line FWHM in meV (default 10)")
     lv.add_argument("--lineshape", default="lorentzian", choices=["lorentzian", "gaussian"])
     lv.add_argument("--axis", default="wavelength", choices=["wavelength", "energy"])
+    lv.add_argument("--spectrum", choices=["intersubband", "interband"],
+                    help="which lines the --png spectrum shows (default: intersubband if any)")
     lv.set_defaults(func=cmd_levels)
 
     for extra in _EXTRA_COMMANDS:

@@ -751,10 +751,12 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
         sub = f"{shape}, FWHM {spec.linewidth_meV:g} meV"
         if any(t.kind == "interband" for t in spec.lines):
             sub += f", {spec.polarization.upper()}; excitons not included"
-        ax.set_title((title + "\n" if title else "") + sub, fontsize=11, pad=34)
+        longest = max((len(t.name) for t in spec.lines), default=0)
+        pad = 12 + 6.0 * longest   # points: clear the rotated line labels above the axes
+        ax.set_title((title + "\n" if title else "") + sub, fontsize=11, pad=pad)
         ax.grid(True, color="0.85", lw=0.6, zorder=0)
         ax.tick_params(labelsize=10)
-        fig.subplots_adjust(left=0.1, right=0.97, bottom=0.13, top=0.78 if title else 0.82)
+        fig.subplots_adjust(left=0.1, right=0.97, bottom=0.13, top=0.74 if title else 0.78)
         return atomic_savefig(fig, path, protect=protect, dpi=150)
     finally:
         plt.close(fig)

@@ -172,3 +172,16 @@ def test_console_entry_point_no_traceback(tmp_path):
                          capture_output=True, text=True, timeout=120)
     assert res.returncode == 2
     assert "Traceback" not in res.stderr and "Unobtainium" in res.stderr
+
+
+def test_levels_spectrum_png(capsys, tmp_path):
+    import matplotlib.image as mpimg
+    png = tmp_path / "s.png"
+    rc, out, err = run(capsys, "levels", str(ROOT / "layers" / "parabolic-well.yaml"),
+                       "--band", "conduction", "--png", str(png))
+    assert rc == 0, err
+    img = mpimg.imread(png)
+    assert img.shape[1] > 800 and float(np.std(img[..., :3])) > 0.05
+    rc, out, err = run(capsys, "levels", str(ROOT / "layers" / "pump-laser-well.yaml"),
+                       "--spectrum", "intersubband", "--png", str(tmp_path / "t.png"))
+    assert rc == 2 and "no intersubband transitions" in err
