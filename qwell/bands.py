@@ -36,13 +36,23 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["Piece", "Band", "RepeatInfo", "band_from_layers", "BAND_NAMES", "BAND_PREFIX"]
+__all__ = ["Piece", "Band", "RepeatInfo", "band_from_layers", "band_of_label", "BAND_NAMES",
+           "BAND_PREFIX"]
 
 BAND_NAMES = ("conduction", "heavy_hole", "light_hole")
 #: State label prefixes, e.g. e1, hh1, lh1.
 BAND_PREFIX = {"conduction": "e", "heavy_hole": "hh", "light_hole": "lh"}
 
 _MIN_MASS_FRACTION = 0.01
+
+
+def band_of_label(label: str) -> str:
+    """Band name of a state label: 'hh2' -> 'heavy_hole', 'lh1' -> 'light_hole', 'e3' -> 'conduction'."""
+    if label.startswith("hh"):
+        return "heavy_hole"
+    if label.startswith("lh"):
+        return "light_hole"
+    return "conduction"
 
 ArrayFn = Callable[[np.ndarray], np.ndarray]
 

@@ -33,6 +33,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .bands import band_of_label
 from .plots import BAND_STYLE, shade_layers
 
 __all__ = [
@@ -533,16 +534,8 @@ def _sign(band: str) -> int:
     return 1 if band == "conduction" else -1
 
 
-def _band_of_label(label: str) -> str:
-    if label.startswith("hh"):
-        return "heavy_hole"
-    if label.startswith("lh"):
-        return "light_hole"
-    return "conduction"
-
-
 def _find_state(levels, label):
-    b = _band_of_label(label)
+    b = band_of_label(label)
     lev = levels.get(b)
     if lev is None:
         return None

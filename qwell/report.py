@@ -40,6 +40,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
+from .bands import band_of_label
 from .errors import QwellError, QwellWarning, ValidityWarning
 from .units import HC_EV_UM
 
@@ -215,14 +216,6 @@ def default_transitions(solution) -> tuple:
                 out.append(t)
                 break
     return tuple(out)
-
-
-def _band_of_label(label: str) -> str:
-    if label.startswith("hh"):
-        return "heavy_hole"
-    if label.startswith("lh"):
-        return "light_hole"
-    return "conduction"
 
 
 def _energies_by_label(solution) -> dict:
@@ -510,7 +503,7 @@ def sensitivity_rows(stack, chosen, *, profile=None, solution=None,
     notes = list(notes)
     pairs = [(t.name, t.initial, t.final) for t in chosen]
     labels = {lab for t in chosen for lab in (t.initial, t.final)}
-    bands = sorted({_band_of_label(lab) for lab in labels})
+    bands = sorted({band_of_label(lab) for lab in labels})
     if solution is not None:
         qb = {s.band for s in solution.states if s.label in labels and not s.bound}
     else:
