@@ -57,9 +57,19 @@ def _table(rows, headers, aligns=None) -> str:
     return "\n".join(out)
 
 
+#: Options of the current invocation that every stack-loading command honours.
+_INVOCATION = {"self_consistent": False}
+
+
 def _load(path):
+    """Load a stack; ``--self-consistent`` switches on the charged path for every command."""
     from .stack import load_stack
-    return load_stack(path)
+    stack = load_stack(path)
+    if _INVOCATION["self_consistent"] and not stack.self_consistent:
+        from dataclasses import replace
+        stack = replace(stack, self_consistent=True,
+                        raw={**dict(stack.raw), "self_consistent": True})
+    return stack
 
 
 # ---------------------------------------------------------------------------
@@ -119,7 +129,16 @@ def cmd_profile(args) -> int:
         if not args.json:
             print(f"wrote {path}")
     if args.json:
-        _print_json(prof.to_json())
+        out = prof.to_json()
+        sc = getattr(args, "_sc", None)
+        if sc is not None:
+            from .levels import self_consistent_json
+            out["self_consistent"] = self_consistent_json(sc)
+            out["self_consistent"].update({
+                "z_nm": sc.z_nm.tolist(), "potential_eV": sc.potential_eV.tolist(),
+                "electron_density_cm3": sc.electron_density_cm3.tolist(),
+                "hole_density_cm3": sc.hole_density_cm3.tolist()})
+        _print_json(out)
         return 0
     print(f"{stack.name}  (T = {stack.temperature_K:g} K"
           + (f", substrate {stack.substrate}" if stack.substrate else "")
@@ -157,8 +176,24 @@ def cmd_profile(args) -> int:
 
 
 def _profile_of(stack, args):
-    from .profile import band_profile
-    return band_profile(stack)
+    from .levels import prepare_profile
+    prof, sc = prepare_profile(stack)
+    if sc is not None and not getattr(args, "json", False):
+        _print_self_consistent(sc)
+    args._sc = sc
+    return prof
+
+
+def _print_self_consistent(sc) -> None:
+    import math
+    ef = sc.fermi_level_eV
+    print(f"self-consistent (Schrödinger–Poisson): {sc.iterations} iterations, residual "
+          f"{sc.residual_meV:.3g} meV, charge residual {sc.charge_residual:.2g}, Fermi level "
+          + ("not defined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV"))
+    occ = {k: v for k, v in sc.sheet_densities_cm2.items() if v > 0}
+    if occ:
+        print("sheet densities: " + ", ".join(f"{k} {v:.4g} cm⁻²" for k, v in occ.items()))
+    print()
 
 
 # ---------------------------------------------------------------------------
@@ -166,11 +201,16 @@ def _profile_of(stack, args):
 # ---------------------------------------------------------------------------
 
 def _solutions(stack, args):
+    from dataclasses import replace
+
     from .levels import solve_profile
     prof = _profile_of(stack, args)
     methods = ["exact", "semiclassical"] if args.method == "both" else [args.method]
-    return {m: solve_profile(prof, bands=args.band, method=m,
+    sols = {m: solve_profile(prof, bands=args.band, method=m,
                              transitions=(m == "exact")) for m in methods}
+    if args._sc is not None:
+        sols = {m: replace(s, self_consistent=args._sc) for m, s in sols.items()}
+    return sols
 
 
 def _state_rows(sol):
@@ -268,6 +308,9 @@ def cmd_levels(args) -> int:
             (m, sol), = sols.items()
             out = sol.to_json()
             out["transitions"] = [t.to_json() for t in chosen[m]]
+            if sol.self_consistent is not None:
+                from .levels import depolarised_lines
+                out["depolarisation"] = depolarised_lines(sol)
         else:
             out = {"stack": stack.name, "temperature_K": stack.temperature_K, "method": "both",
                    "methods": {}, "comparison": compare_methods(sols["exact"], sols["semiclassical"])}
@@ -309,6 +352,16 @@ def cmd_levels(args) -> int:
             print(f"note: {n}")
     trans = chosen.get("exact", ())
     _print_transitions(trans, show_all=bool(args.transition))
+    if "exact" in sols and sols["exact"].self_consistent is not None:
+        from .levels import depolarised_lines
+        names = {t.name for t in trans}
+        rows = [[d["transition"], f"{d['sheet_density_cm2']:.4g}", f"{1e3 * d['shift_eV']:.3f}",
+                 f"{d['shifted_energy_eV']:.6f}", f"{d['shifted_wavelength_um']:.5f}"]
+                for d in depolarised_lines(sols["exact"]) if d["transition"] in names]
+        if rows:
+            print("\nIntersubband absorption with the depolarisation shift (Ando, Fowler, Stern 1982)")
+            print(_table(rows, ["transition", "Δn cm⁻²", "shift meV", "energy eV", "λ µm"],
+                         ["<", ">", ">", ">", ">"]))
     for w in next(iter(sols.values())).profile.warnings:
         print(f"warning: {w}")
     if args.png:
@@ -361,6 +414,11 @@ def build_parser() -> argparse.ArgumentParser:
 
     for extra in _EXTRA_COMMANDS:
         extra(sub)
+    for name, cmd in sub.choices.items():
+        if name != "materials":
+            cmd.add_argument("--self-consistent", action="store_true",
+                             help="solve Schrödinger–Poisson with the stack's doping first "
+                                  "(also set by 'self_consistent: true' in the stack)")
     return p
 
 
@@ -385,6 +443,7 @@ def main(argv=None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_USAGE
+    _INVOCATION["self_consistent"] = bool(getattr(args, "self_consistent", False))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", QwellWarning)
         try:

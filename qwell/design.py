@@ -646,10 +646,9 @@ def _solve_design(stack, bands, wavefunctions, needed=None):
     """Solve one design; with ``needed`` state labels, skip the resonance search when
     every needed state is truly bound (quasi-bound states lie above all bound ones,
     so the bound labels do not change) and fall back to the full solve otherwise."""
-    from .levels import solve_profile
-    from .profile import band_profile
+    from .levels import solve_profile, stack_profile
 
-    prof = band_profile(stack)
+    prof = stack_profile(stack)
     sol = None
     if needed:
         sol = solve_profile(prof, bands=bands, method="exact", transitions=True,

@@ -10,7 +10,7 @@ This is the Python API behind ``qwell levels``::
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from .bands import BAND_NAMES
 from .errors import ParameterError
@@ -36,6 +36,8 @@ class Solution:
     transitions : tuple of qwell.optics.Transition
         Intersubband (conduction) and interband lines, strongest first.
     notes : tuple of str
+    self_consistent : qwell.selfconsistent.SelfConsistentResult or None
+        The Schrödinger–Poisson result when the profile is self-consistent.
     """
 
     stack: object
@@ -44,6 +46,7 @@ class Solution:
     levels: dict
     transitions: tuple = ()
     notes: tuple = field(default=())
+    self_consistent: object = None
 
     @property
     def states(self):
@@ -70,9 +73,22 @@ class Solution:
             "states": [_state_json(s) for s in self.states],
             "transitions": [t.to_json() for t in self.transitions],
             "minibands": [_miniband_json(m) for b in self.levels.values() for m in b.minibands],
+            "self_consistent": (None if self.self_consistent is None
+                                else self_consistent_json(self.self_consistent)),
             "notes": list(self.notes) + [n for b in self.levels.values() for n in b.notes]
                      + [b.message for b in self.levels.values() if b.message],
         }
+
+
+def self_consistent_json(sc) -> dict:
+    """Summary of a Schrödinger–Poisson result for JSON output."""
+    import math
+    ef = sc.fermi_level_eV
+    return {"fermi_level_eV": None if ef is None or math.isnan(ef) else float(ef),
+            "iterations": int(sc.iterations), "residual_meV": float(sc.residual_meV),
+            "charge_residual": float(sc.charge_residual), "converged": bool(sc.converged),
+            "sheet_densities_cm2": {k: float(v) for k, v in sc.sheet_densities_cm2.items()},
+            "boundary": sc.boundary}
 
 
 def _state_json(s) -> dict:
@@ -157,9 +173,44 @@ def _transitions(profile: Profile, levels: dict) -> tuple:
     return tuple(out)
 
 
-def solve_stack(stack, **options) -> Solution:
-    """Build the profile of ``stack`` and solve it (see :func:`solve_profile`)."""
-    return solve_profile(band_profile(stack), **options)
+def wants_self_consistent(stack, self_consistent: bool | None = None) -> bool:
+    """Whether the charged (Schrödinger–Poisson) path applies: the argument, else the stack key."""
+    return bool(stack.self_consistent if self_consistent is None else self_consistent)
+
+
+def prepare_profile(stack, *, self_consistent: bool | None = None):
+    """The profile every command solves, and the self-consistent result if any.
+
+    Returns ``(profile, sc)``: with ``self_consistent`` (or the stack's
+    ``self_consistent: true``) the profile includes the electrostatic
+    potential of the doping and free carriers (:func:`qwell.selfconsistent.
+    solve_self_consistent`, states of the loop reused), else it is the
+    flat-band :func:`~qwell.profile.band_profile` and ``sc`` is None.
+    """
+    if not wants_self_consistent(stack, self_consistent):
+        return band_profile(stack), None
+    from .selfconsistent import solve_self_consistent
+    sc = solve_self_consistent(stack, solution="loop")
+    return sc.profile, sc
+
+
+def stack_profile(stack, *, self_consistent: bool | None = None) -> Profile:
+    """The profile of ``stack`` (self-consistent when asked or set in the stack)."""
+    return prepare_profile(stack, self_consistent=self_consistent)[0]
+
+
+def solve_stack(stack, *, self_consistent: bool | None = None, **options) -> Solution:
+    """Build the profile of ``stack`` and solve it (see :func:`solve_profile`).
+
+    With ``self_consistent`` (or the stack key) the states are those of the
+    self-consistent potential and the solution carries the charge result in
+    :attr:`Solution.self_consistent`.
+    """
+    prof, sc = prepare_profile(stack, self_consistent=self_consistent)
+    sol = solve_profile(prof, **options)
+    if sc is not None:
+        sol = replace(sol, self_consistent=sc)
+    return sol
 
 
 def compare_methods(exact: Solution, semi: Solution) -> list[dict]:
@@ -199,4 +250,47 @@ def compare_methods(exact: Solution, semi: Solution) -> list[dict]:
                                  "difference_percent": None})
     return rows
 
+
+def depolarised_lines(solution: Solution) -> list[dict]:
+    """Depolarisation-shifted intersubband absorption lines of a doped solution.
+
+    For each conduction intersubband transition, the shift uses the sheet
+    density difference n_i - n_j of the self-consistent occupation and the
+    static dielectric constant of the layer where the initial state is most
+    likely found.  Empty without a self-consistent result.
+
+    Returns a list of dicts: ``transition``, ``energy_eV`` (bare),
+    ``shift_eV``, ``shifted_energy_eV``, ``shifted_wavelength_um``,
+    ``sheet_density_cm2``.
+
+    References
+    ----------
+    .. [1] T. Ando, A. B. Fowler and F. Stern, Rev. Mod. Phys. 54, 437 (1982).
+    """
+    sc = solution.self_consistent
+    if sc is None or "conduction" not in solution.levels:
+        return []
+    from .selfconsistent import depolarisation_shift
+    from .units import HC_EV_UM
+
+    lev = solution.levels["conduction"]
+    out = []
+    for t in solution.transitions:
+        if t.kind != "intersubband":
+            continue
+        n = sc.sheet_densities_cm2.get(t.initial, 0.0) - sc.sheet_densities_cm2.get(t.final, 0.0)
+        if n <= 0:
+            continue
+        s = lev[t.initial]
+        where = int(max(range(len(s.layer_probability)), key=lambda k: s.layer_probability[k]))
+        eps = solution.stack.material_of(solution.stack.layers[where]).dielectric_constant \
+            if solution.stack.layers[where].grade is None else None
+        if not eps:
+            continue
+        shift = depolarisation_shift(solution, "conduction", t.name, n, eps)
+        e = t.energy_eV + shift
+        out.append({"transition": t.name, "energy_eV": t.energy_eV, "shift_eV": shift,
+                    "shifted_energy_eV": e, "shifted_wavelength_um": HC_EV_UM / e,
+                    "sheet_density_cm2": n})
+    return out
 

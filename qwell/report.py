@@ -342,10 +342,10 @@ def _wavelengths_of(stack, pairs, bands, quasi_bound_bands, tolerance_eV) -> dic
     ``pairs``: (name, initial label, final label).  Only ``bands`` are solved,
     without wavefunctions; quasi-bound states only where a reviewed state is one.
     """
-    from .profile import band_profile
+    from .levels import stack_profile
     from .solvers import solve
 
-    prof = band_profile(stack)
+    prof = stack_profile(stack)
     energies = {}
     for b in bands:
         if b not in prof.bands:
@@ -487,12 +487,12 @@ def sensitivity_rows(stack, chosen, *, profile=None, solution=None,
     (tuple of SensitivityRow, tuple of str)
         Rows (grouped by transition) and notes.
     """
-    from .profile import band_profile
+    from .levels import stack_profile
 
     chosen = tuple(chosen)
     if not chosen:
         return (), ("no transition chosen: no sensitivity computed",)
-    prof = profile if profile is not None else band_profile(stack)
+    prof = profile if profile is not None else stack_profile(stack)
     plan = _design_jobs(stack, composition_step) if use_design else None
     if plan is None:
         plan = _raw_jobs(stack, prof, composition_step)
@@ -575,13 +575,12 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
     Warnings raised while solving are captured, listed in the report and
     returned in :attr:`ReportData.warnings` (not re-raised here).
     """
-    from .levels import compare_methods, solve_profile
+    from .levels import compare_methods, solve_profile, stack_profile
     from .optics import select_transitions
-    from .profile import band_profile
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", QwellWarning)
-        prof = band_profile(stack)
+        prof = stack_profile(stack)
         exact = solve_profile(prof, method="exact", transitions=True, tolerance_eV=tolerance_eV)
         semi = solve_profile(prof, method="semiclassical", transitions=False,
                              tolerance_eV=tolerance_eV)

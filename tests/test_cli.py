@@ -185,3 +185,29 @@ def test_levels_spectrum_png(capsys, tmp_path):
     rc, out, err = run(capsys, "levels", str(ROOT / "layers" / "pump-laser-well.yaml"),
                        "--spectrum", "intersubband", "--png", str(tmp_path / "t.png"))
     assert rc == 2 and "no intersubband transitions" in err
+
+
+def test_self_consistent_levels(capsys):
+    path = str(ROOT / "layers" / "doped-detector.yaml")
+    rc, out, err = run(capsys, "levels", path, "--band", "conduction", "--json")
+    assert rc == 0, err
+    js = json.loads(out)
+    sc = js["self_consistent"]
+    assert sc["converged"]
+    # Charge neutrality (Gauss's law, no source needed): all donors, 5e17 cm^-3 over the
+    # 19 ML well (a/2 at 77 K), end up as electrons in the subbands, to 1e-6 relative.
+    from qwell.stack import load_stack
+    well = load_stack(path).layers[1]
+    n_total = sum(sc["sheet_densities_cm2"].values())
+    assert n_total == pytest.approx(5e17 * well.thickness_nm * 1e-7, rel=1e-6)
+    assert js["depolarisation"] and js["depolarisation"][0]["shift_eV"] > 0
+
+
+def test_self_consistent_flag_on_undoped_stack_changes_nothing(capsys):
+    path = str(ROOT / "layers" / "lwir-detector.yaml")
+    rc, out, _ = run(capsys, "levels", path, "--band", "conduction", "--json")
+    plain = json.loads(out)
+    rc2, out2, err2 = run(capsys, "levels", path, "--band", "conduction", "--json", "--self-consistent")
+    assert rc == rc2 == 0, err2
+    sc = json.loads(out2)
+    assert [s["energy_eV"] for s in sc["states"]] == [s["energy_eV"] for s in plain["states"]]
