@@ -125,7 +125,7 @@ def cmd_profile(args) -> int:
     prof = _profile_of(stack, args)
     if args.png:
         from .plots import plot_profile
-        path = plot_profile(prof, args.png, protect=[args.stack])
+        path = plot_profile(prof, args.png, protect=[args.stack], charge=getattr(args, "_sc", None))
         if not args.json:
             print(f"wrote {path}")
     if args.json:

@@ -50,7 +50,7 @@ def shade_layers(ax, profile, *, label=True, y_text=None):
                     fontsize=7, rotation=90 if width / span < 0.09 else 0, color="0.25")
 
 
-def plot_profile(profile, path, *, protect=(), title=None):
+def plot_profile(profile, path, *, protect=(), title=None, charge=None):
     """Band-edge plot (conduction, heavy- and light-hole edges) with layer boundaries.
 
     Parameters
@@ -60,6 +60,9 @@ def plot_profile(profile, path, *, protect=(), title=None):
         Output PNG (or PDF by suffix), written atomically.
     protect : sequence of paths
         Input files that must never be overwritten.
+    charge : qwell.selfconsistent.SelfConsistentResult, optional
+        Draw its electron (and hole) density on a second axis and mark the
+        Fermi level.
     """
     import matplotlib.pyplot as plt
 
@@ -77,6 +80,23 @@ def plot_profile(profile, path, *, protect=(), title=None):
     ax.set_title(title or profile.stack.name, fontsize=11)
     ax.legend(loc="center right", fontsize=8, frameon=False)
     shade_layers(ax, profile)
+    if charge is not None:
+        ef = charge.fermi_level_eV
+        if ef is not None and np.isfinite(ef):
+            ax.axhline(ef, color="0.2", ls="-.", lw=1.0, zorder=2)
+            ax.text(z[0] + 0.01 * (z[-1] - z[0]), ef, "Fermi level", va="bottom", ha="left",
+                    fontsize=8, color="0.2")
+        ax2 = ax.twinx()
+        ax2.fill_between(charge.z_nm, charge.electron_density_cm3, color="#56B4E9", alpha=0.35,
+                         lw=0, label="electron density")
+        if np.any(charge.hole_density_cm3 > 0):
+            ax2.fill_between(charge.z_nm, charge.hole_density_cm3, color="#E69F00", alpha=0.35,
+                             lw=0, hatch="//", label="hole density")
+        ax2.set_ylabel("carrier density (cm$^{-3}$)")
+        ax2.set_ylim(bottom=0)
+        h1, l1 = ax.get_legend_handles_labels()
+        h2, l2 = ax2.get_legend_handles_labels()
+        ax.legend(h1 + h2, l1 + l2, loc="center right", fontsize=8, frameon=False)
     fig.tight_layout()
     out = atomic_savefig(fig, path, protect=protect)
     plt.close(fig)
