@@ -181,6 +181,8 @@ class ReportData:
         Distinct warning messages raised while solving.
     created_utc : datetime.datetime
     tolerance_eV : float
+    charge : qwell.selfconsistent.SelfConsistentResult or None
+        The Schrödinger–Poisson result when the stack is solved self-consistently.
     """
 
     stack: object
@@ -194,6 +196,7 @@ class ReportData:
     warnings: tuple
     created_utc: _dt.datetime
     tolerance_eV: float = REPORT_TOLERANCE_EV
+    charge: object = None
 
 
 # ---------------------------------------------------------------------------
@@ -575,12 +578,12 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
     Warnings raised while solving are captured, listed in the report and
     returned in :attr:`ReportData.warnings` (not re-raised here).
     """
-    from .levels import compare_methods, solve_profile, stack_profile
+    from .levels import compare_methods, prepare_profile, solve_profile
     from .optics import select_transitions
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", QwellWarning)
-        prof = stack_profile(stack)
+        prof, sc = prepare_profile(stack)
         exact = solve_profile(prof, method="exact", transitions=True, tolerance_eV=tolerance_eV)
         semi = solve_profile(prof, method="semiclassical", transitions=False,
                              tolerance_eV=tolerance_eV)
@@ -600,7 +603,7 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
             msgs.append(str(w.message))
         else:  # not ours: pass it on unchanged
             warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
-    return ReportData(stack=stack, profile=prof, exact=exact, semiclassical=semi,
+    return ReportData(stack=stack, profile=prof, exact=exact, semiclassical=semi, charge=sc,
                       chosen=tuple(chosen), comparison=comparison, sensitivity=tuple(sens),
                       sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
                       created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
@@ -958,6 +961,16 @@ def diagram_blocks(data: ReportData) -> list:
     return blocks
 
 
+def _charge_summary(sc) -> str:
+    """One line on a Schrödinger–Poisson result for the settings table."""
+    import math
+    ef = sc.fermi_level_eV
+    occ = ", ".join(f"{k} {v:.3g} cm⁻²" for k, v in sc.sheet_densities_cm2.items() if v > 1e6)
+    return (f"yes: {sc.iterations} iterations, residual {sc.residual_meV:.2g} meV, Fermi level "
+            + ("undefined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV")
+            + (f"; sheet densities {occ}" if occ else ""))
+
+
 def stack_blocks(data: ReportData) -> list:
     """Page 2: layer table and stack settings."""
     st, prof = data.stack, data.profile
@@ -1001,8 +1014,7 @@ def stack_blocks(data: ReportData) -> list:
         ["substrate", st.substrate or "none (layers unstrained)"],
         ["field", f"{st.field_kV_per_cm:g} kV/cm"],
         ["nonparabolicity", "on (two-band, conduction band)" if st.nonparabolicity else "off"],
-        ["self-consistent", ("requested; this report uses the flat-band potential"
-                             if st.self_consistent else "no")],
+        ["self-consistent", _charge_summary(data.charge) if data.charge is not None else "no"],
         ["total thickness", f"{st.total_thickness_nm:.4f} nm"],
         ["layers", f"{len(st.layers)} (after expanding {len(st.repeats)} repeat block(s))"
          if st.repeats else str(len(st.layers))],
@@ -1336,9 +1348,10 @@ def caution_blocks(data: ReportData) -> list:
     unconv = [s.label for s in data.exact.states if not s.converged]
     if unconv:
         own.append("states not converged to the tolerance: " + ", ".join(unconv))
-    if data.stack.self_consistent:
-        own.append("the stack asks for a self-consistent (Schrödinger–Poisson) potential; this "
-                   "report uses the flat-band potential")
+    if data.charge is not None:
+        own.append("states, transitions and sensitivities use the self-consistent "
+                   "(Schrödinger–Poisson) potential of the doping; donors are taken as fully "
+                   "ionised unless a donor level is given")
     if any(t.kind == "interband" for t in data.exact.transitions):
         from .optics import EXCITON_NOTE
         own.append(EXCITON_NOTE)
