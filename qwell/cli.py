@@ -234,12 +234,17 @@ def _print_transitions(trans, show_all=False) -> None:
     inter = sorted((t for t in trans if t.kind == "intersubband"), key=lambda t: -strength(t))
     band = sorted((t for t in trans if t.kind == "interband"), key=lambda t: -strength(t))
     if inter:
+        shown_i = inter if show_all else [t for t in inter if (t.oscillator_strength or 0) >= 1e-3]
         rows = [[t.name, f"{t.energy_eV:.6f}", f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}",
                  f"{t.frequency_THz:.3f}", f"{t.dipole_nm:.4f}", f"{t.oscillator_strength:.4f}"]
-                for t in inter]
+                for t in shown_i]
         print("\nIntersubband transitions (absorption from the lower state, strongest first)")
         print(_table(rows, ["transition", "energy eV", "λ µm", "cm⁻¹", "THz", "|z| nm", "f"],
                      ["<", ">", ">", ">", ">", ">", ">"]))
+        hidden = len(inter) - len(shown_i)
+        if hidden:
+            print(f"({hidden} intersubband line{'s' if hidden != 1 else ''} with f < 0.001 "
+                  "not shown; --json lists all)")
     if band:
         shown = band if show_all else [t for t in band if (t.overlap or 0.0) >= 1e-3]
         lowest = min(band, key=lambda t: t.energy_eV)
