@@ -4,6 +4,8 @@ import re
 import shlex
 from pathlib import Path
 
+import pytest
+
 from qwell.cli import main
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -21,10 +23,15 @@ def test_opens_with_the_job_and_two_commands():
     assert "python3 -m pytest -q" in ci
 
 
-def test_shown_output_is_what_the_command_prints(capsys, monkeypatch):
-    m = re.search(r"```\n\$ (qwell [^\n]+)\n(.*?)\n```", README, flags=re.S)
-    assert m, "README shows a qwell run with its output"
-    cmd, shown = m.group(1), m.group(2)
+SHOWN = re.findall(r"```\n\$ (qwell [^\n]+)\n(.*?)\n```", README, flags=re.S)
+
+
+def test_readme_shows_runs():
+    assert any(cmd.startswith("qwell levels") for cmd, _ in SHOWN)
+
+
+@pytest.mark.parametrize("cmd, shown", SHOWN, ids=[c for c, _ in SHOWN])
+def test_shown_output_is_what_the_command_prints(capsys, monkeypatch, cmd, shown):
     monkeypatch.chdir(ROOT)
     rc = main(shlex.split(cmd)[1:])
     out = capsys.readouterr().out
