@@ -227,6 +227,12 @@ def _state_rows(sol):
     return rows
 
 
+def _hidden_note(hidden: int, kind: str, criterion: str) -> None:
+    if hidden:
+        print(f"({hidden} {kind} line{'s' if hidden != 1 else ''} with {criterion} "
+              "not shown; --json lists all)")
+
+
 def _print_transitions(trans, show_all=False) -> None:
     """Intersubband then interband tables, each strongest first; forbidden lines counted."""
     from .optics import strength
@@ -241,10 +247,7 @@ def _print_transitions(trans, show_all=False) -> None:
         print("\nIntersubband transitions (absorption from the lower state, strongest first)")
         print(_table(rows, ["transition", "energy eV", "λ µm", "cm⁻¹", "THz", "|z| nm", "f"],
                      ["<", ">", ">", ">", ">", ">", ">"]))
-        hidden = len(inter) - len(shown_i)
-        if hidden:
-            print(f"({hidden} intersubband line{'s' if hidden != 1 else ''} with f < 0.001 "
-                  "not shown; --json lists all)")
+        _hidden_note(len(inter) - len(shown_i), "intersubband", "f < 0.001")
     if band:
         shown = band if show_all else [t for t in band if (t.overlap or 0.0) >= 1e-3]
         lowest = min(band, key=lambda t: t.energy_eV)
@@ -256,10 +259,7 @@ def _print_transitions(trans, show_all=False) -> None:
         print("\nInterband transitions (strongest first; excitonic binding not included)")
         print(_table(rows, ["transition", "energy eV", "λ nm", "|<e|h>|²", "TE", "TM", ""],
                      ["<", ">", ">", ">", ">", ">", "<"]))
-        hidden = len(band) - len(shown)
-        if hidden:
-            print(f"({hidden} interband line{'s' if hidden != 1 else ''} with |<e|h>|² < 0.001 "
-                  "not shown; --json lists all)")
+        _hidden_note(len(band) - len(shown), "interband", "|<e|h>|² < 0.001")
 
 
 def _spectrum_lines(solution, chosen, args):

@@ -94,32 +94,24 @@ def test_levels_table_and_transition_pick(capsys):
     assert "e1" in out and "e2" in out and "Intersubband" in out
 
 
-def test_gaas_well_emits_near_850nm(capsys, tmp_path):
+@pytest.mark.parametrize("barrier, well, widths, target_nm", [
     # Fact of the trade (common practice, no source): a GaAs well of about 8-10 nm between
     # Al0.3Ga0.7As barriers emits near 850 nm at room temperature; required within +-25 nm.
-    for width in ("8 nm", "10 nm"):
-        f = tmp_path / "w.yaml"
-        f.write_text("substrate: GaAs\nlayers:\n  - {material: Al0.30Ga0.70As, thickness: 30 nm}\n"
-                     f"  - {{material: GaAs, thickness: {width}}}\n"
-                     "  - {material: Al0.30Ga0.70As, thickness: 30 nm}\n")
-        rc, out, err = run(capsys, "levels", str(f), "--json")
-        assert rc == 0, err
-        t = {x["from"] + "-" + x["to"]: x for x in json.loads(out)["transitions"]}["e1-hh1"]
-        assert abs(1e3 * t["wavelength_um"] - 850.0) < 25.0
-
-
-def test_ingaas_well_emits_near_980nm(capsys, tmp_path):
+    ("Al0.30Ga0.70As", "GaAs", ("8 nm", "10 nm"), 850.0),
     # Fact of the trade (common practice, no source): a strained In0.2Ga0.8As well of about
     # 7-8 nm between GaAs barriers emits near 980 nm; required within +-25 nm.
-    for width in ("7 nm", "8 nm"):
+    ("GaAs", "In0.2Ga0.8As", ("7 nm", "8 nm"), 980.0),
+])
+def test_interband_emission_facts_of_the_trade(capsys, tmp_path, barrier, well, widths, target_nm):
+    for width in widths:
         f = tmp_path / "w.yaml"
-        f.write_text("substrate: GaAs\nlayers:\n  - {material: GaAs, thickness: 30 nm}\n"
-                     f"  - {{material: In0.2Ga0.8As, thickness: {width}}}\n"
-                     "  - {material: GaAs, thickness: 30 nm}\n")
+        f.write_text(f"substrate: GaAs\nlayers:\n  - {{material: {barrier}, thickness: 30 nm}}\n"
+                     f"  - {{material: {well}, thickness: {width}}}\n"
+                     f"  - {{material: {barrier}, thickness: 30 nm}}\n")
         rc, out, err = run(capsys, "levels", str(f), "--json")
         assert rc == 0, err
         t = {x["from"] + "-" + x["to"]: x for x in json.loads(out)["transitions"]}["e1-hh1"]
-        assert abs(1e3 * t["wavelength_um"] - 980.0) < 25.0
+        assert abs(1e3 * t["wavelength_um"] - target_nm) < 25.0
 
 
 # --- bad input: one line, exit 2, no traceback, nothing written -------------------------
