@@ -99,6 +99,18 @@ running maximum of the count is used, so no state is listed twice, and the
 notes name the energy; a count that jumps up there gives a state at that
 energy marked "ill-defined".
 
+Bands made only of flat pieces take a closed-form path with the same rule:
+``G`` of every region of every segment is a sum of ``k_j L_j`` and two
+arctangent step phases, evaluated for all regions on one cosine-spaced grid
+(points crowd towards the segment ends, where ``G`` has square-root
+behaviour); all roots are then refined together by a safeguarded secant
+iteration whose rounds evaluate ``G`` at ``c -/+ tolerance_eV/2`` (a bracket
+verified by the sign change), with bisection as the fallback.  The validity
+figure is then the largest internal step reflection amplitude and the
+tunnelling factor ``exp(-sum kappa_j L_j)``.  The per-band data of this path
+(pieces, regions, coefficient arrays) is kept between calls for the same
+:class:`~qwell.bands.Band` object (looked up by identity, released with it).
+
 Wavefunctions are not provided (``State.psi`` and ``State.z_nm`` are None,
 ``layer_probability`` is empty).
 
@@ -118,7 +130,9 @@ References
 
 from __future__ import annotations
 
+import math
 import warnings
+import weakref
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -671,6 +685,16 @@ def quantisation_phase(band: Band, energies_eV) -> tuple:
 # ---------------------------------------------------------------------------
 # Root finding
 # ---------------------------------------------------------------------------
+def _half_width(tol, a, b) -> float:
+    """Half width of a final bracket [c - h, c + h] whose rounded width stays <= tol.
+
+    The ends are rounded to the nearest double, so ``h`` is kept a few units in
+    the last place of the largest energy involved below ``tol / 2``.
+    """
+    scale = float(max(np.max(np.abs(a)), np.max(np.abs(b)))) if len(a) else 0.0
+    return max(0.5 * tol * (1.0 - 1e-9) - 4.0 * float(np.spacing(scale)), 0.0)
+
+
 def _solve_roots(fn, a, b, fa, fb, tol, c0=None):
     """Vectorised root refinement of fn(E) = 0 on brackets [a, b] (fa < 0 < fb).
 
@@ -686,7 +710,7 @@ def _solve_roots(fn, a, b, fa, fb, tol, c0=None):
     fa = fa.copy()
     fb = fb.copy()
     c = b - fb * (b - a) / (fb - fa) if c0 is None else np.clip(c0, a, b)
-    half = 0.5 * tol * (1.0 - 1e-9)      # keeps hi - lo <= tol despite rounding
+    half = _half_width(tol, a, b)
     n = len(a)
     lo_out = np.empty(n)
     hi_out = np.empty(n)
@@ -749,8 +773,9 @@ def _illinois(fn, a, b, fa, fb, tol):
         c = np.where(bad, 0.5 * (a + b), c)
         done = (np.abs(c - c_old) < 0.25 * tol) | (b - a < tol)
         if np.all(done):
-            lo = np.maximum(c - 0.5 * tol, a)
-            hi = np.minimum(c + 0.5 * tol, b)
+            half = _half_width(tol, a, b)
+            lo = np.maximum(c - half, a)
+            hi = np.minimum(c + half, b)
             f2 = fn(np.concatenate([lo, hi]))
             flo, fhi = f2[: len(lo)], f2[len(lo):]
             ok = (flo <= _G_NOISE) & (fhi >= -_G_NOISE)
@@ -927,6 +952,9 @@ def solve_semiclassical(band: Band, *, tolerance_eV: float = 1e-7,
         raise ParameterError("tolerance_eV must be positive")
     if max_states is not None and max_states < 1:
         raise ParameterError("max_states must be at least 1")
+    plan = _flat_plan(band)
+    if plan is not None:
+        return _solve_flat(band, plan, tolerance_eV, max_states)
     els = _build_elements(band)
     limit = min(els[0].v_a, els[-1].v_b)      # = band.confinement_limit_eV
     finite_v = [v for e in els for v in (e.v_a, e.v_b) if np.isfinite(v)]
@@ -956,14 +984,24 @@ def solve_semiclassical(band: Band, *, tolerance_eV: float = 1e-7,
     unreliable_any = False
     # per-state diagnostics
     infos = []
-    for c in cands:
+    picked = []
+    need = {}          # element -> candidates whose region holds it
+    for ci, c in enumerate(cands):
         regs = (list(c.regions) if c.regions
                 else _structure(els, c.energy + (1e-9 if c.ill_defined else 0.0)))
         reg = regs[min(c.region, len(regs) - 1)]
-        spacing = c.spacing
-        spans = _element_spans(band, els, reg, c.energy)
+        picked.append((regs, reg))
+        for i in reg.elements:
+            need.setdefault(i, []).append(ci)
+    # allowed parts of the elements (turning points) for all states at once, per element
+    all_spans = [{} for _ in cands]
+    for i, cis in need.items():
+        lo, hi = _allowed_span(band, els[i], np.array([cands[ci].energy for ci in cis]))
+        for ci, a, b in zip(cis, lo.tolist(), hi.tolist()):
+            all_spans[ci][i] = (a, b)
+    for c, (regs, reg), spans in zip(cands, picked, all_spans):
         span = _region_span(band, els, reg, c.energy, spans)
-        infos.append((regs, reg, spacing, span, spans))
+        infos.append((regs, reg, c.spacing, span, spans))
 
     for idx, (c, (regs, reg, spacing, span, spans)) in enumerate(zip(cands, infos)):
         msgs = [f"region {c.region} (z = {span[0]:.3f} to {span[1]:.3f} nm)"
@@ -1015,30 +1053,8 @@ def solve_semiclassical(band: Band, *, tolerance_eV: float = 1e-7,
                             tolerance_eV=float(c.width), converged=conv, region=c.region,
                             validity=validity, message="; ".join(msgs)))
 
-    v_max_inner = max(finite_v)
-    if np.isfinite(limit) and v_max_inner > limit + 1e-12:
-        notes.append(f"leaky structure: barriers rise above the confinement limit "
-                     f"{float(band.profile_energy(limit)):.4g} eV; quasi-bound states above it "
-                     "are not reported")
-    elif np.isfinite(limit):
-        notes.append(f"energies above the confinement limit "
-                     f"{float(band.profile_energy(limit)):.4g} eV are not reported")
-    if drops:
-        notes.append("the semiclassical count drops at "
-                     + ", ".join(f"{float(band.profile_energy(e)):.4g}" for e in drops)
-                     + " eV (boundary type changes); states near these energies are uncertain")
-    if not states:
-        message = (f"no bound state below the confinement limit "
-                   f"(well bottom {float(band.profile_energy(v_min)):.4g} eV)")
-    else:
-        message = f"{len(states)} semiclassical state(s)"
-        if unreliable_any:
-            message += "; some flagged unreliable (see notes)"
-    return Levels(band=band.name, method="semiclassical", states=tuple(states),
-                  converged=all_converged, message=message, notes=tuple(notes),
-                  tolerance_eV=tolerance_eV,
-                  confinement_limit_eV=(float(band.profile_energy(limit))
-                                        if np.isfinite(limit) else None))
+    return _finish(band, states, notes, limit, v_min, max(finite_v), drops, unreliable_any,
+                   all_converged, tolerance_eV)
 
 
 def _scan(band, els, v_min, e_top, crit_all, tol):
@@ -1112,3 +1128,496 @@ def _scan(band, els, v_min, e_top, crit_all, tol):
                 cands.append(c)
                 best = current
     return cands, drops
+
+
+# ---------------------------------------------------------------------------
+# Fast path: bands made only of flat pieces
+# ---------------------------------------------------------------------------
+# When every piece is flat the quantisation function of a region is closed
+# form, G(E) = (sum_j k_j(E) L_j + delta_L(E) + delta_R(E)) / pi with the
+# step phases delta = arctan(m_w kappa_b / (m_b k_w))^-1 of the module
+# docstring, so the whole solve is a handful of array expressions: G of every
+# region of every energy segment on one grid (one evaluation), then all roots
+# refined together.  The diagnostics reduce to closed forms as well (validity
+# = largest internal step reflection amplitude, tunnelling factor
+# exp(-sum kappa_j L_j)).  Results are the same as the general path within
+# the requested tolerance.
+
+#: Grid points per energy segment of the flat fast path (one evaluation for all).
+_FLAT_SCAN_POINTS = 129
+#: Guarded Newton/secant rounds before the fast path falls back to bisection.
+_FLAT_NEWTON_ROUNDS = 8
+#: Hard cap on refinement rounds (bisection halves the bracket each round).
+_FLAT_MAX_ROUNDS = 80
+_FLAT_CACHE: dict = {}
+_FLAT_CACHE_MAX = 64
+_INV_PI = 1.0 / np.pi
+#: Scan grid fractions t = (1 - cos)/2 on [0, 1] (points crowd towards both ends).
+_FLAT_T = 0.5 * (1.0 - np.cos(np.linspace(0.0, np.pi, _FLAT_SCAN_POINTS)))
+_FLAT_T[0], _FLAT_T[-1] = 0.0, 1.0
+
+
+class _FlatPlan:
+    """Per-band static data of an all-flat band (cached by band identity).
+
+    Layout of the coefficient arrays of G: the column axis first, the row (or
+    root) axis last, so that every array operation in :meth:`G` runs over
+    contiguous energies.
+    """
+
+    def __init__(self, band: Band):
+        ps = band.pieces
+        self.z0 = [float(p.z_start_nm) for p in ps]
+        self.z1 = [float(p.z_end_nm) for p in ps]
+        self.thick = [b - a for a, b in zip(self.z0, self.z1)]
+        self.v = [float(p.edge_start_eV) for p in ps]
+        self.m = [float(p.mass_m0) for p in ps]
+        # 1/gap of nonparabolic pieces, 0 for parabolic ones (the two-band rule of Band.mass)
+        self.invg = [1.0 / float(p.gap_eV) if (band.nonparabolic and p.gap_eV is not None)
+                     else 0.0 for p in ps]
+        self.nonparabolic = any(g != 0.0 for g in self.invg)
+        mats = {}
+        self.mat = [mats.setdefault(key, len(mats)) for key in zip(self.v, self.m, self.invg)]
+        self.mats = list(mats)
+        self.limit = min(self.v[0], self.v[-1])
+        self.finite_v = [v for v in self.v if not math.isinf(v)]
+        self.v_min = min(self.finite_v)
+        self.v_max = max(self.finite_v)
+        self.crit = sorted(set(self.finite_v))
+        self.packs = {}
+
+    def runs(self, energy: float) -> list:
+        """Allowed regions at one energy as (first piece, last piece) pairs."""
+        out = []
+        start = None
+        for j, v in enumerate(self.v):
+            if v < energy:
+                if start is None:
+                    start = j
+            elif start is not None:
+                out.append((start, j - 1))
+                start = None
+        if start is not None:
+            out.append((start, len(self.v) - 1))
+        return out
+
+    def mass(self, j: int, energy: float) -> float:
+        """m(E) [m0] of piece j (clipped like Band.mass)."""
+        ig = self.invg[j]
+        if ig == 0.0:
+            return self.m[j]
+        return self.m[j] * max(1.0 + (energy - self.v[j]) * ig, _MIN_MASS_FRACTION)
+
+    def k(self, j: int, energy: float, sign: float = 1.0) -> float:
+        """Wave number (sign=+1) or decay constant (sign=-1) of piece j [1/nm]."""
+        d = sign * (energy - self.v[j])
+        if d <= 0.0:
+            return 0.0
+        if math.isinf(d):
+            return math.inf
+        return math.sqrt(d * self.mass(j, energy) / HBAR2_2M0_EV_NM2)
+
+    def pack(self, e_top: float):
+        """Segments, regions and the coefficient arrays of G for energies below e_top.
+
+        Returns ``(rows, segs, grid, grid_coef, coef, nu, ulp)``: rows (segment,
+        region, first piece, last piece); segments (segment, lower edge, first
+        row, row count, regions); the scan grid shaped (points, rows); the
+        coefficients broadcast to the grid, and shaped (columns, 1, rows); the
+        number of phase columns; the unit in the last place of the largest
+        scanned energy [eV].
+        """
+        got = self.packs.get(e_top)
+        if got is not None:
+            return got
+        edges = [self.v_min] + [c for c in self.crit if self.v_min < c < e_top] + [e_top]
+        rows = []
+        segs = []
+        ea, eb = [], []
+        for s in range(len(edges) - 1):
+            lo_e, hi_e = edges[s], edges[s + 1]
+            width = hi_e - lo_e
+            if width <= 0:
+                continue
+            eps = max(1e-12, 1e-10 * width)
+            a, b = lo_e + eps, hi_e - eps
+            if b <= a:
+                continue
+            runs = self.runs(0.5 * (lo_e + hi_e))
+            segs.append((s, lo_e, len(rows), len(runs), runs))
+            for r, (j0, j1) in enumerate(runs):
+                rows.append((s, r, j0, j1))
+                ea.append(a)
+                eb.append(b)
+        if not rows:
+            got = (rows, segs, None, None, None, 0, 0.0)
+            self.packs[e_top] = got
+            return got
+        # materials that occur inside some region (the others add nothing to the phase)
+        used = sorted({self.mat[j] for (_s, _r, j0, j1) in rows for j in range(j0, j1 + 1)})
+        lsum = [[0.0] * len(rows) for _ in used]
+        where = {u: i for i, u in enumerate(used)}
+        wl, wr, bl, br = [], [], [], []
+        for i, (_s, _r, j0, j1) in enumerate(rows):
+            for j in range(j0, j1 + 1):
+                lsum[where[self.mat[j]]][i] += self.thick[j]
+            wl.append(j0)
+            wr.append(j1)
+            bl.append(j0 - 1)
+            br.append(j1 + 1)
+        vu = [self.mats[u][0] for u in used]
+        mu = [self.mats[u][1] for u in used]
+        gu = [self.mats[u][2] for u in used]
+        ends = (wl, wr, bl, br)
+        pv, pm, pg = self.v, self.m, self.invg
+        v_e = [[pv[j] for j in col] for col in ends]
+        m_e = [[pm[j] for j in col] for col in ends]
+        g_e = [[pg[j] for j in col] for col in ends]
+        nr = len(rows)
+        # grid points crowd towards both segment ends (t = (1 - cos)/2), where G has
+        # square-root behaviour, so that interpolated starting points are uniformly good
+        t = _FLAT_T
+        ea_a, eb_a = np.asarray(ea, dtype=float), np.asarray(eb, dtype=float)
+        grid = ea_a[None, :] + t[:, None] * (eb_a - ea_a)[None, :]
+        grid[-1] = eb_a
+        col = np.ones((1, 1, nr))
+        if self.nonparabolic:
+            # columns: materials (phase); then left/right well side, left/right barrier side
+            coef = (np.asarray(lsum).reshape(-1, 1, nr),
+                    np.asarray(vu).reshape(-1, 1, 1) * col, np.asarray(mu).reshape(-1, 1, 1) * col,
+                    np.asarray(gu).reshape(-1, 1, 1) * col,
+                    np.asarray(v_e).reshape(4, 1, nr), np.asarray(m_e).reshape(4, 1, nr),
+                    np.asarray(g_e).reshape(4, 1, nr))
+        else:
+            # pi G = sum_u A_u sqrt(E - v_u)+ + sum_ends arctan2(a sqrt(E - v_w)+, c sqrt(v_b - E)+):
+            # one square root over the columns [materials, well sides, barrier sides] of
+            # s (E - v), then the phase sum and the arctan of the ends
+            nu = len(used)
+            mw = np.asarray(m_e[:2])
+            mb = np.asarray(m_e[2:])
+            cv = np.concatenate([np.asarray(vu).reshape(nu, 1) * np.ones((1, nr)),
+                                 np.asarray(v_e[:2]), -np.asarray(v_e[2:])])
+            cs = np.ones((nu + 4, nr))
+            cs[nu + 2:] = -1.0
+            cc = np.concatenate([np.asarray(lsum).reshape(nu, nr)
+                                 * np.sqrt(np.asarray(mu) / HBAR2_2M0_EV_NM2).reshape(nu, 1)
+                                 * _INV_PI,
+                                 np.sqrt(mw / HBAR2_2M0_EV_NM2),
+                                 mw / np.sqrt(mb * HBAR2_2M0_EV_NM2)])
+            coef = tuple(x.reshape(-1, 1, nr) for x in (cv, cs, cc))
+        npts = _FLAT_SCAN_POINTS
+        grid_coef = tuple(x.repeat(npts, axis=1) for x in coef)
+        # unit in the last place of the largest energy of the scan (final bracket rounding)
+        ulp = math.ulp(max(max(abs(x) for x in ea), max(abs(x) for x in eb)))
+        got = (rows, segs, grid, grid_coef, coef, len(used), ulp)
+        if len(self.packs) < 8:
+            self.packs[e_top] = got
+        return got
+
+    def G(self, energy, coef, nu):
+        """G(E) for energies shaped (n, rows) with coefficients (columns, n or 1, rows)."""
+        if not self.nonparabolic:
+            cv, cs, cc = coef
+            q = np.sqrt(np.fmax(energy * cs - cv, 0.0)) * cc
+            a = np.arctan2(q[nu:nu + 2], q[nu + 2:])
+            g = a[0] + a[1]
+            g *= _INV_PI
+            for i in range(nu):
+                g += q[i]
+            return g
+        # nonparabolic: masses m(E) per column; (E - inf) * 0 of a parabolic hard wall gives
+        # NaN, which fmax turns into the clip value (callers hold an errstate)
+        lsum, vu, mu, gu, ve, me, ge = coef
+        d = energy - vu
+        mass = mu * np.fmax(1.0 + d * gu, _MIN_MASS_FRACTION)
+        phi = (lsum * np.sqrt(np.fmax(d, 0.0) * mass / HBAR2_2M0_EV_NM2)).sum(axis=0)
+        dw = energy - ve[:2]
+        m_w = me[:2] * np.fmax(1.0 + dw * ge[:2], _MIN_MASS_FRACTION)
+        db = ve[2:] - energy
+        m_b = me[2:] * np.fmax(1.0 - db * ge[2:], _MIN_MASS_FRACTION)
+        k_s = np.sqrt(np.fmax(dw, 0.0) * m_w / HBAR2_2M0_EV_NM2)
+        q = m_w * np.sqrt(np.fmax(db, 0.0) / (m_b * HBAR2_2M0_EV_NM2))
+        a = np.arctan2(k_s, q)
+        return (phi + a[0] + a[1]) * _INV_PI
+
+
+def _flat_plan(band: Band):
+    """The cached :class:`_FlatPlan` of a band made only of flat pieces, else None."""
+    key = id(band)
+    hit = _FLAT_CACHE.get(key)
+    if hit is not None and hit[0]() is band:
+        return hit[1]
+    plan = None
+    if all(p.kind != "smooth" and p.edge_slope_eV_per_nm == 0.0 for p in band.pieces):
+        plan = _FlatPlan(band)
+    try:
+        ref = weakref.ref(band, lambda r, key=key: (_FLAT_CACHE.pop(key, None)
+                                                    if _FLAT_CACHE.get(key, (None,))[0] is r
+                                                    else None))
+    except TypeError:          # not weak-referenceable: no caching
+        return plan
+    if len(_FLAT_CACHE) >= _FLAT_CACHE_MAX:
+        _FLAT_CACHE.pop(next(iter(_FLAT_CACHE)))
+    _FLAT_CACHE[key] = (ref, plan)
+    return plan
+
+
+def _flat_roots(plan: _FlatPlan, grid, grid_coef, coef, nu, tol, ulp):
+    """Brackets and refines every root G = n of every row of an all-flat band.
+
+    One evaluation of G on the grid of every row brackets all roots (G is
+    continuous and increasing inside a segment; a running maximum guards
+    against rounding).  A linear interpolation in the bracket starts a
+    vectorised safeguarded secant iteration: each round evaluates G at
+    ``c -/+ tol/2`` for all roots at once; where the two values straddle the
+    target the root is bracketed to ``tol`` (verified, done), elsewhere the
+    verified bracket shrinks and the secant (Newton) step through the two
+    points gives the next ``c`` (bisection when it leaves the bracket, and
+    after ``_FLAT_NEWTON_ROUNDS`` rounds).
+
+    Returns ``(ga, roots)``: G at the bottom of each row's segment (list) and
+    ``None`` or ``(row, target, lo, hi, slope, done)`` as lists.
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):     # guarded divisions below
+        return _flat_roots_inner(plan, grid, grid_coef, coef, nu, tol, ulp)
+
+
+def _flat_roots_inner(plan, grid, grid_coef, coef, nu, tol, ulp):
+    """Body of :func:`_flat_roots` (inside its errstate)."""
+    gg = np.maximum.accumulate(plan.G(grid, grid_coef, nu), axis=0).T   # (rows, points)
+    ga = gg[:, 0].tolist()
+    gb = gg[:, -1].tolist()
+    row, target, offs = [], [], []
+    top = 0.0
+    for r, (g0, g1) in enumerate(zip(ga, gb)):
+        n_lo = max(1, math.floor(g0) + 1)
+        n_hi = math.floor(g1)
+        offs.append(top)
+        if n_hi >= n_lo:
+            row.extend([r] * (n_hi - n_lo + 1))
+            target.extend(range(n_lo, n_hi + 1))
+        top += max(g1, 0.0) - min(g0, 0.0) + 2.0
+    if not row:
+        return ga, None
+    # one sorted key array over all rows: row r's G shifted by offs[r] (the rows do not overlap)
+    offs = np.asarray(offs)
+    tgt = np.asarray(target, dtype=float)
+    row_a = np.asarray(row)
+    keys = (gg + offs[:, None]).ravel()
+    j = keys.searchsorted(tgt + offs[row_a]) - 1       # keys[j] < target <= keys[j + 1]
+    ef = grid.T.ravel()
+    a, b = ef.take(j), ef.take(j + 1)
+    gf = gg.ravel()
+    fa, fb = gf.take(j) - tgt, gf.take(j + 1) - tgt
+    c = b - fb * (b - a) / (fb - fa)
+    mid = 0.5 * (a + b)
+    c = np.where((c > a) & (c < b), c, mid)
+    # coefficients of each root's row (one row: they broadcast as they are)
+    sub = coef if len(ga) == 1 else tuple(x[..., row_a] for x in coef)
+    half = 0.5 * tol * (1.0 - 1e-9) - 4.0 * ulp      # rounded hi - lo stays <= tol
+    half = max(half, 0.0)
+    pm = np.array([[-half], [half]])
+    total = len(row)
+    done = None                              # per-root flags once some but not all are done
+    for it in range(_FLAT_MAX_ROUNDS):
+        e2 = c + pm
+        f2 = plan.G(e2, sub, nu) - tgt
+        flo, fhi = f2[0], f2[1]
+        ok = (flo <= _G_NOISE) & (fhi >= -_G_NOISE)
+        n_ok = int(np.count_nonzero(ok))
+        if done is None and n_ok == total:
+            lo, hi = e2[0], e2[1]
+            return ga, (row, target, lo.tolist(), hi.tolist(),
+                        ((fhi - flo) / (hi - lo)).tolist(), [True] * total)
+        if n_ok:
+            if done is None:
+                done = np.zeros(total, dtype=bool)
+                lo_out, hi_out, sl_out = a.copy(), b.copy(), np.zeros(total)
+            new = ok & ~done
+            lo_out[new], hi_out[new] = e2[0, new], e2[1, new]
+            sl_out[new] = (fhi[new] - flo[new]) / (e2[1, new] - e2[0, new])
+            done |= ok
+            if np.count_nonzero(done) == total:
+                break
+        # shrink the verified bracket [a, b] with the two new points
+        below = fhi < 0
+        a = np.where(below, e2[1], a)
+        fa = np.where(below, fhi, fa)
+        above = flo > 0
+        b = np.where(above, e2[0], b)
+        fb = np.where(above, flo, fb)
+        mid = 0.5 * (a + b)
+        if it < _FLAT_NEWTON_ROUNDS:
+            cn = c - (flo + fhi) * half / (fhi - flo)
+            cn = np.where((cn > a) & (cn < b), cn, mid)
+        else:
+            cn = mid
+        c = cn if done is None else np.where(done, c, cn)
+    if done is None:
+        done = np.zeros(total, dtype=bool)
+        lo_out, hi_out, sl_out = a, b, np.zeros(total)
+    # unconverged leftovers keep their verified bracket [a, b]
+    lo_out = np.where(done, lo_out, a)
+    hi_out = np.where(done, hi_out, b)
+    sl_out = np.where(done, sl_out, (fb - fa) / (b - a))
+    return ga, (row, target, lo_out.tolist(), hi_out.tolist(), sl_out.tolist(), done.tolist())
+
+
+def _solve_flat(band: Band, plan: _FlatPlan, tol: float, max_states) -> Levels:
+    """solve_semiclassical for an all-flat band (closed-form G, see _FlatPlan)."""
+    limit = plan.limit
+    notes = []
+    want = max_states
+    if math.isinf(limit):
+        if want is None:
+            want = 10
+            notes.append("both claddings are hard walls: only the lowest 10 states are listed "
+                         "(use max_states)")
+        e_top = plan.v_max + 1.0
+    else:
+        e_top = limit
+    while True:
+        cands, drops = _flat_scan(plan, plan.pack(e_top), tol)
+        if not math.isinf(limit) or len(cands) >= want:
+            break
+        e_top = plan.v_min + 2.0 * (e_top - plan.v_min)
+    if want is not None:
+        cands = cands[:want]
+
+    # candidates: (energy, width, region, n, converged, ill_defined, spacing, runs)
+    infos = []
+    for c in cands:
+        runs = c[7] if c[7] is not None else plan.runs(c[0] + 1e-9)
+        j0, j1 = runs[min(c[2], len(runs) - 1)]
+        infos.append((runs, (j0, j1), (plan.z0[j0], plan.z1[j1])))
+    sign = band.carrier_sign
+    prefix = band.prefix
+    states = []
+    all_converged = True
+    unreliable_any = False
+    for idx, (c, (runs, (j0, j1), span)) in enumerate(zip(cands, infos)):
+        energy, width, region, n, converged, ill, spacing = c[:7]
+        msgs = [f"region {region} (z = {span[0]:.3f} to {span[1]:.3f} nm)"
+                + ("" if ill else f", n = {n} in region")]
+        bad = False
+        # validity: flat pieces have d(1/k)/dz = 0; internal steps give reflection amplitudes
+        validity = 0.0
+        for j in range(j0 + 1, j1 + 1):
+            g1 = plan.k(j - 1, energy) / plan.mass(j - 1, energy)
+            g2 = plan.k(j, energy) / plan.mass(j, energy)
+            if g1 + g2 > 0:
+                validity = max(validity, abs((g1 - g2) / (g1 + g2)))
+        if validity > VALIDITY_THRESHOLD:
+            msgs.append(f"semiclassical validity figure {validity:.2f} > {VALIDITY_THRESHOLD}: "
+                        "estimate poor")
+            bad = True
+        if ill:
+            msgs.append("boundary type changes at this energy: estimate ill-defined")
+            bad = True
+        for nb in (region - 1, region + 1):
+            if nb < 0 or nb >= len(runs):
+                continue
+            n0, n1 = runs[nb]
+            nspan = (plan.z0[n0], plan.z1[n1])
+            between = range(n1 + 1, j0) if nb < region else range(j1 + 1, n0)
+            total = 0.0
+            for jb in between:
+                if math.isinf(plan.v[jb]):
+                    total = float("inf")
+                    break
+                total += plan.k(jb, energy, -1.0) * plan.thick[jb]
+            T = math.exp(-total)
+            if T > TUNNEL_FACTOR_LIMIT:
+                msgs.append(f"barrier to region {nb} not opaque (tunnelling factor {T:.2g}): "
+                            "regions coupled, estimate unreliable")
+                bad = True
+            for jdx, (c2, (_r2, _g2, span2)) in enumerate(zip(cands, infos)):
+                if jdx == idx:
+                    continue
+                if span2[1] <= nspan[0] or span2[0] >= nspan[1]:
+                    continue
+                t = T * math.sqrt(spacing * c2[6]) / (2.0 * math.pi)
+                de = abs(energy - c2[0])
+                if t > MIXING_LIMIT * de:
+                    msgs.append(f"near-resonant with {prefix}{jdx + 1} in region {nb} "
+                                f"(|dE| = {de * 1e3:.3g} meV, tunnel coupling ~{t * 1e3:.2g} meV):"
+                                " estimate unreliable")
+                    bad = True
+        label = f"{prefix}{idx + 1}"
+        conv = converged and width <= tol * (1 + 1e-9)
+        all_converged = all_converged and conv
+        if bad:
+            unreliable_any = True
+            notes.append(f"{label}: " + "; ".join(msgs[1:]))
+            warnings.warn(f"{band.name} {label}: " + "; ".join(msgs[1:]), ValidityWarning,
+                          stacklevel=3)
+        states.append(State(band=band.name, label=label, index=idx + 1,
+                            energy_eV=float(sign * energy), carrier_energy_eV=float(energy),
+                            bound=True, tolerance_eV=float(width), converged=conv,
+                            region=region, validity=float(validity), message="; ".join(msgs)))
+    return _finish(band, states, notes, limit, plan.v_min, plan.v_max, drops, unreliable_any,
+                   all_converged, tol)
+
+
+def _flat_scan(plan: _FlatPlan, pack, tol):
+    """Candidates and count drops of an all-flat band (same bookkeeping as _scan)."""
+    rows, segs, grid, grid_coef, coef, nu, ulp = pack
+    cands = []
+    drops = []
+    if not rows:
+        return cands, drops
+    ga, roots = _flat_roots(plan, grid, grid_coef, coef, nu, tol, ulp)
+    start_count = [max(0, math.floor(g)) for g in ga]
+    per_row = [[] for _ in rows]
+    if roots is not None:
+        for r, n, lo, hi, sl, ok in zip(*roots):
+            per_row[r].append((0.5 * (lo + hi), hi - lo, rows[r][1], int(n), ok, False,
+                               1.0 / sl if sl > 0 else float("inf")))
+    best = 0
+    for s, lo_e, r0, nrow, runs in segs:
+        count_start = sum(start_count[r0:r0 + nrow])
+        found = []
+        for r in range(r0, r0 + nrow):
+            found.extend(c + (runs,) for c in per_row[r])
+        if count_start < best and s > 0:
+            drops.append(lo_e)
+        current = count_start
+        while current > best:          # count jumps up at the critical energy itself
+            cands.append((lo_e, 0.0, 0, current, True, True, float("inf"), None))
+            best += 1
+        found.sort(key=lambda c: c[0])
+        for c in found:
+            current += 1
+            if current > best:
+                cands.append(c)
+                best = current
+    return cands, drops
+
+
+def _finish(band, states, notes, limit, v_min, v_max_inner, drops, unreliable_any,
+            all_converged, tolerance_eV) -> Levels:
+    """Summary notes and the Levels object (shared by both paths)."""
+    sign = band.carrier_sign
+    finite = not math.isinf(limit)
+    if finite and v_max_inner > limit + 1e-12:
+        notes.append(f"leaky structure: barriers rise above the confinement limit "
+                     f"{float(sign * limit):.4g} eV; quasi-bound states above it "
+                     "are not reported")
+    elif finite:
+        notes.append(f"energies above the confinement limit "
+                     f"{float(sign * limit):.4g} eV are not reported")
+    if drops:
+        notes.append("the semiclassical count drops at "
+                     + ", ".join(f"{float(sign * e):.4g}" for e in drops)
+                     + " eV (boundary type changes); states near these energies are uncertain")
+    if not states:
+        message = (f"no bound state below the confinement limit "
+                   f"(well bottom {float(sign * v_min):.4g} eV)")
+    else:
+        message = f"{len(states)} semiclassical state(s)"
+        if unreliable_any:
+            message += "; some flagged unreliable (see notes)"
+    return Levels(band=band.name, method="semiclassical", states=tuple(states),
+                  converged=all_converged, message=message, notes=tuple(notes),
+                  tolerance_eV=tolerance_eV,
+                  confinement_limit_eV=float(sign * limit) if finite else None)
