@@ -454,7 +454,12 @@ def main(argv=None) -> int:
         try:
             rc = args.func(args)
         except QwellError as exc:
-            print(f"qwell: error: {exc}", file=sys.stderr)
+            msg = str(exc)
+            hist = getattr(exc, "history", None)
+            if hist and "history" not in msg:
+                shown = ", ".join(f"{h:.3g}" for h in list(hist)[-12:])
+                msg += f" (residual history, meV: {shown})"
+            print(f"qwell: error: {msg}", file=sys.stderr)
             return EXIT_USAGE
         except KeyboardInterrupt:
             print("qwell: interrupted", file=sys.stderr)

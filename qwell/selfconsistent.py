@@ -685,9 +685,11 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
                     continue
                 if guessed or state is not None:
                     raise ConvergenceError(
-                        "no Fermi level makes the stack neutral: no bound electron subband can "
-                        "take the carriers of the dopants (widen or deepen the wells, or give a "
-                        "fermi_level)", history=history) from None
+                        "no Fermi level makes the stack neutral: as the charge bends the bands, "
+                        "the bound subbands can no longer take the carriers of the dopants — "
+                        "they would spill into the barrier continuum (parallel conduction), "
+                        "which this model does not hold; lower or set back the doping, widen or "
+                        "deepen the wells, or give a fermi_level", history=history) from None
                 # flat bands hold no subband for the carriers (a heterojunction
                 # channel forms only with the charge): start from the
                 # semiclassical potential instead

@@ -203,3 +203,18 @@ def test_self_consistent_flag_on_undoped_stack_changes_nothing(capsys):
     assert rc == rc2 == 0, err2
     sc = json.loads(out2)
     assert [s["energy_eV"] for s in sc["states"]] == [s["energy_eV"] for s in plain["states"]]
+
+
+def test_self_consistent_refusal_shows_history(capsys, tmp_path):
+    # 3e12 cm^-2 of barrier donors lift two narrow wells until their subbands cannot hold the
+    # electrons (they would spill into the barrier continuum): refused with the history.
+    f = tmp_path / "heavy.yaml"
+    f.write_text("temperature: 77 K\nself_consistent: true\nlayers:\n"
+                 "  - {material: Al0.30Ga0.70As, thickness: 30 nm, doping: {donors: 1e18 cm^-3, from: 5 nm, to: 20 nm}}\n"
+                 "  - {material: GaAs, thickness: 8 nm}\n"
+                 "  - {material: Al0.30Ga0.70As, thickness: 3 nm}\n"
+                 "  - {material: GaAs, thickness: 6 nm}\n"
+                 "  - {material: Al0.30Ga0.70As, thickness: 30 nm, doping: {donors: 1e18 cm^-3, from: 10 nm, to: 25 nm}}\n")
+    rc, out, err = run(capsys, "levels", str(f))
+    assert rc == 2
+    assert len(err.strip().splitlines()) == 1 and "residual history, meV:" in err
