@@ -438,3 +438,67 @@ def test_separate_wells_three_regions_finite_differences():
     fd_h2 = fd_levels(band, step_nm=0.0025, count=len(lev))
     err = np.max(np.abs(fd_h - fd_h2)[opaque])
     np.testing.assert_allclose(fd_h2[opaque], e_sc[opaque], rtol=0, atol=1e-7 + 2 * err)
+
+
+# ---------------------------------------------------------------- nonparabolic flat bands
+def _two_band_mass(m_edge, v_eV, gap_eV):
+    # two-band energy-dependent mass m(E) = m (1 + (E - V)/Eg), clipped at 1 % of m like
+    # qwell.bands documents (D. F. Nelson, R. C. Miller and D. A. Kleinman, Phys. Rev. B 35,
+    # 7770 (1987)); gap None means parabolic
+    if gap_eV is None:
+        return lambda e: m_edge
+    return lambda e: m_edge * max(1.0 + (e - v_eV) / gap_eV, 0.01)
+
+
+def test_nonparabolic_asymmetric_well_mixed_barriers():
+    # parabolic left barrier, nonparabolic well and right barrier of different gaps: the
+    # estimate equals exact BenDaniel-Duke matching with the energy-dependent masses written
+    # here (BenDaniel and Duke, Phys. Rev. 152, 683 (1966); Nelson, Miller and Kleinman,
+    # Phys. Rev. B 35, 7770 (1987)), 1 ueV.
+    layers = [(25.0, 0.35, 0.08), (7.0, 0.0, 0.041, 0.8), (25.0, 0.5, 0.045, 1.0)]
+    band = band_from_layers(layers, nonparabolic=True)
+    mass = {"l": _two_band_mass(0.08, 0.35, None), "w": _two_band_mass(0.041, 0.0, 0.8),
+            "r": _two_band_mass(0.045, 0.5, 1.0)}
+    exact = finite_well_levels(7.0, 0.35, 0.5, None, None, None,
+                               mass_of=lambda e, where: mass[where](e))
+    lev = solve_semiclassical(band)
+    assert len(lev) == len(exact) >= 2
+    np.testing.assert_allclose(lev.energies_eV, exact, atol=1e-6)
+
+
+def test_nonparabolic_infinite_well_closed_form():
+    # hard walls: k(E) L = n pi with hbar^2 k^2 / (2 m(E)) = E and m(E) = m (1 + E/Eg)
+    # (Nelson, Miller and Kleinman, Phys. Rev. B 35, 7770 (1987)) gives
+    # E (1 + E/Eg) = X_n = hbar^2 pi^2 n^2 / (2 m L^2), i.e. E = Eg (sqrt(1 + 4 X_n/Eg) - 1)/2;
+    # the rule with hard-wall phases is exact here (Landau and Lifshitz, §22, problem 1 for the
+    # parabolic case).  One wall without a gap, one with a gap.
+    L, m_w, gap = 10.0, 0.041, 0.8
+    band = band_from_layers([(5.0, np.inf, 0.045), (L, 0.0, m_w, gap), (5.0, np.inf, 0.045, 1.0)],
+                            nonparabolic=True)
+    lev = solve_semiclassical(band, max_states=5, tolerance_eV=1e-12)
+    n = np.arange(1, 6)
+    x = C_EV_NM2 * np.pi ** 2 * n ** 2 / (m_w * L ** 2)
+    np.testing.assert_allclose(lev.energies_eV, gap * (np.sqrt(1.0 + 4.0 * x / gap) - 1.0) / 2.0,
+                               rtol=1e-9)
+
+
+def test_nonparabolic_two_separate_wells():
+    # two different nonparabolic wells behind 40 nm barriers (two regions at once): every level
+    # is the isolated well's exact BenDaniel-Duke level with m(E) written here (Nelson, Miller and
+    # Kleinman, Phys. Rev. B 35, 7770 (1987)), 1 ueV, in its own region, and no warning.
+    barrier = (40.0, 0.5, 0.045, 1.0)
+    widths = (5.0, 8.0)
+    band = band_from_layers([barrier, (widths[0], 0.0, 0.041, 0.8), barrier,
+                             (widths[1], 0.0, 0.041, 0.8), barrier], nonparabolic=True)
+    mass = {"l": _two_band_mass(0.045, 0.5, 1.0), "w": _two_band_mass(0.041, 0.0, 0.8),
+            "r": _two_band_mass(0.045, 0.5, 1.0)}
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        lev = solve_semiclassical(band)
+    expect = sorted((e, r) for r, w in enumerate(widths)
+                    for e in finite_well_levels(w, 0.5, 0.5, None, None, None,
+                                                mass_of=lambda e, where: mass[where](e)))
+    assert len(lev) == len(expect) >= 4
+    for s, (e, region) in zip(lev.states, expect):
+        assert s.region == region
+        assert abs(s.energy_eV - e) < 1e-6

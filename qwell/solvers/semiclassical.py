@@ -81,8 +81,9 @@ This figure does not see the error of the ground state of a smooth, flat
 bottomed anharmonic well (e.g. quartic); treat such ground states with care.
 
 Numerics.  Turning points come from the pieces: analytic for linear pieces,
-bisection inside monotone stretches of smooth pieces (split at their
-extrema).  Phase integrals are closed forms for flat pieces and parabolic
+a vectorised Illinois iteration inside monotone stretches of smooth pieces
+(split at their extrema; next to an extremum ``V_x`` the iteration runs on
+``sqrt(V - V_x) - sqrt(E - V_x)``, which is nearly linear there).  Phase integrals are closed forms for flat pieces and parabolic
 linear pieces, else Gauss-Legendre quadrature after the substitution
 ``z = a + (b - a)(1 - cos theta)/2``, which removes the square-root end
 singularities, with node doubling until two estimates agree to
@@ -97,11 +98,14 @@ vectorised secant rounds end with a bracket of width ``tolerance_eV``
 ``sum floor(G)`` drop (e.g. a shallow shoulder becoming allowed) the
 running maximum of the count is used, so no state is listed twice, and the
 notes name the energy; a count that jumps up there gives a state at that
-energy marked "ill-defined".
+energy marked "ill-defined".  The validity figures of all states are computed
+together, vectorised over states and sample points, element by element.
 
 Bands made only of flat pieces take a closed-form path with the same rule:
 ``G`` of every region of every segment is a sum of ``k_j L_j`` and two
-arctangent step phases, evaluated for all regions on one cosine-spaced grid
+arctangent step phases (for a nonparabolic band with the energy-dependent
+masses ``m_j(E) = m_j (1 + (E - V_j)/Eg_j)`` of every piece in ``k_j``,
+``kappa`` and the step phases, still closed form per energy [6]_), evaluated for all regions on one cosine-spaced grid
 (points crowd towards the segment ends, where ``G`` has square-root
 behaviour); all roots are then refined together by a safeguarded secant
 iteration whose rounds evaluate ``G`` at ``c -/+ tolerance_eV/2`` (a bracket
@@ -126,6 +130,8 @@ References
    approximation", Phys. Rev. B 24, 5693 (1981).
 .. [5] M. Abramowitz and I. A. Stegun, Handbook of Mathematical Functions,
    NBS (1964), §10.4 (Airy functions).
+.. [6] D. F. Nelson, R. C. Miller and D. A. Kleinman, "Band nonparabolicity
+   effects in semiconductor quantum wells", Phys. Rev. B 35, 7770 (1987).
 """
 
 from __future__ import annotations
@@ -337,6 +343,19 @@ def _turning_point(band, el: _Element, energy: np.ndarray) -> np.ndarray:
             z0 = _opt.brentq(lambda z: float(p.potential(np.array([z]))[0]) - e0, a0, b0,
                              xtol=1e-13 * max(1.0, abs(el.z_a), abs(el.z_b)), rtol=1e-15)
         return np.full_like(energy, min(max(z0, el.z_a), el.z_b))
+    if not (el.junction_a if rising else el.junction_b):
+        # the low end is an extremum of V, where V - V_low ~ (z - z_low)^2: iterate on
+        # sqrt(V - V_low) - sqrt(E - V_low) instead (same root and sign, nearly linear there)
+        v_low = float(vt[0])
+        s_e = np.sqrt(np.maximum(energy - v_low, 0.0))
+        fa = np.sqrt(np.maximum(vt[j - 1] - v_low, 0.0)) - s_e
+        fb = np.sqrt(np.maximum(vt[j] - v_low, 0.0)) - s_e
+
+        def resid(z):
+            return np.sqrt(np.maximum(p.potential(z) - v_low, 0.0)) - s_e
+    else:
+        def resid(z):
+            return p.potential(z) - energy
     side = np.zeros_like(energy)
     tol = 1e-13 * max(1.0, abs(el.z_a), abs(el.z_b))
     c = a
@@ -344,7 +363,7 @@ def _turning_point(band, el: _Element, energy: np.ndarray) -> np.ndarray:
         with np.errstate(divide="ignore", invalid="ignore"):
             c = b - fb * (b - a) / (fb - fa)
         c = np.where(np.isfinite(c), c, 0.5 * (a + b))
-        fc = p.potential(c) - energy
+        fc = resid(c)
         same_a = np.sign(fc) == np.sign(fa)
         a_n = np.where(same_a, c, a)
         fa_n = np.where(same_a, fc, fa)
@@ -368,7 +387,11 @@ def _allowed_span(band, el: _Element, energy: np.ndarray):
     b_ok = el.v_b < energy
     partial = a_ok != b_ok
     if np.any(partial):
-        zt = _turning_point(band, el, energy)
+        if np.all(partial):
+            zt = _turning_point(band, el, energy)
+        else:                           # turning points only where there is one
+            zt = np.zeros_like(energy)
+            zt[partial] = _turning_point(band, el, energy[partial])
         lo = np.where(~a_ok & b_ok, zt, lo)
         hi = np.where(a_ok & ~b_ok, zt, hi)
     return lo, hi
@@ -822,63 +845,122 @@ def _solve_targets(fn, a, b, ga, gb, targets, tol, c0=None):
 # ---------------------------------------------------------------------------
 # Diagnostics per state
 # ---------------------------------------------------------------------------
-def _validity(band, els, reg: _Region, energy: float, spans: dict) -> float:
-    e1 = np.array([energy])
-    f_min = np.inf
-    f_far = 0.0
-    r_step = 0.0
-    tps = []
-    for b in (reg.left, reg.right):
-        if b.kind == "turning":
-            el = els[b.element]
-            zt = spans[b.element][1 if b.side > 0 else 0]
-            p = band.pieces[el.piece]
-            f = abs(_slope(p, min(max(zt, el.z_a + 1e-9), el.z_b - 1e-9), -b.side))
-            m = float(_piece_mass(band, p, np.array([zt]), e1)[0])
-            ell = (HBAR2_2M0_EV_NM2 / (m * f)) ** (1.0 / 3.0) if f > 0 else 0.0
-            tps.append((zt, ell))
+def _slopes(piece, z_nm: np.ndarray, side: int) -> np.ndarray:
+    """dV/dz [eV/nm] of a piece at many z, one-sided inside the piece (as :func:`_slope`)."""
+    z_nm = np.asarray(z_nm, dtype=float)
+    if piece.kind != "smooth":
+        return np.full_like(z_nm, float(piece.edge_slope_eV_per_nm))
+    h = 1e-5 * piece.thickness_nm
+    z0 = z_nm if side > 0 else z_nm - 2 * h
+    v = piece.potential(np.stack([z0, z0 + h, z0 + 2 * h]))
+    if side > 0:
+        return (-3 * v[0] + 4 * v[1] - v[2]) / (2 * h)
+    return (v[0] - 4 * v[1] + 3 * v[2]) / (2 * h)
+
+
+def _gradient_rows(f, z):
+    """d f / d z along the last axis with per-row abscissae (the formulas of numpy.gradient,
+    second order inside, first order at the ends)."""
+    dx = np.diff(z, axis=-1)
+    out = np.empty_like(f)
+    dx1, dx2 = dx[..., :-1], dx[..., 1:]
+    a = -dx2 / (dx1 * (dx1 + dx2))
+    b = (dx2 - dx1) / (dx1 * dx2)
+    c = dx1 / (dx2 * (dx1 + dx2))
+    out[..., 1:-1] = a * f[..., :-2] + b * f[..., 1:-1] + c * f[..., 2:]
+    out[..., 0] = (f[..., 1] - f[..., 0]) / dx[..., 0]
+    out[..., -1] = (f[..., -1] - f[..., -2]) / dx[..., -1]
+    return out
+
+
+def _validity_batch(band, els, picked, energies, all_spans) -> list:
+    """Validity figure (module docstring) of many states at once.
+
+    ``picked[i]`` is ``(regions, region)`` of state ``i`` at carrier energy
+    ``energies[i]`` [eV], ``all_spans[i]`` the allowed parts of its elements.
+    Work is grouped by element (all states whose region holds it) and
+    vectorised over states and the 64 sample points of each element.
+    """
+    ns = len(energies)
+    energies = np.asarray(energies, dtype=float)
+    if ns == 0:
+        return []
+    # turning points (real, and virtual ones of steps reached by a rising potential) and
+    # their Airy lengths: up to two per state, ell = 0 marks an unused slot
+    tp_z = np.zeros((ns, 2))
+    tp_l = np.zeros((ns, 2))
+    groups = {}                   # (slot, element, kind) -> state indices
+    for s, (_regs, reg) in enumerate(picked):
+        for slot, b in enumerate((reg.left, reg.right)):
+            groups.setdefault((slot, b.element, b.kind), []).append(s)
+    for (slot, ie, kind), sts in groups.items():
+        b = picked[sts[0]][1].left if slot == 0 else picked[sts[0]][1].right
+        side = b.side
+        el = els[ie]
+        p = band.pieces[el.piece]
+        idx = np.asarray(sts)
+        e = energies[idx]
+        if kind == "turning":
+            zt = np.array([all_spans[s][ie][1 if side > 0 else 0] for s in sts])
+            f = np.abs(_slopes(p, np.minimum(np.maximum(zt, el.z_a + 1e-9), el.z_b - 1e-9),
+                               -side))
+            m = _piece_mass(band, p, zt, e)
+            with np.errstate(divide="ignore"):
+                ell = np.where(f > 0, (HBAR2_2M0_EV_NM2 / (m * f)) ** (1.0 / 3.0), 0.0)
+            tp_z[idx, slot] = zt
+            tp_l[idx, slot] = ell
         else:
-            # a step reached by a potential rising towards it: its virtual turning
-            # point (Airy-matched phase) counts as a turning point here
-            el = els[b.element]
-            p = band.pieces[el.piece]
-            z_s = el.z_b if b.side > 0 else el.z_a
-            f = b.side * _slope(p, z_s, -b.side)
+            z_s = el.z_b if side > 0 else el.z_a
+            f = side * _slope(p, z_s, -side)
             if f > 0:
-                v_s = el.v_b if b.side > 0 else el.v_a
-                m = float(_piece_mass(band, p, np.array([z_s]), e1)[0])
-                ell = (HBAR2_2M0_EV_NM2 / (m * f)) ** (1.0 / 3.0)
-                tps.append((z_s + b.side * (energy - v_s) / f, ell))
+                v_s = el.v_b if side > 0 else el.v_a
+                m = _piece_mass(band, p, np.full_like(e, z_s), e)
+                tp_z[idx, slot] = z_s + side * (e - v_s) / f
+                tp_l[idx, slot] = (HBAR2_2M0_EV_NM2 / (m * f)) ** (1.0 / 3.0)
+            else:
+                tp_z[idx, slot] = 0.0
+                tp_l[idx, slot] = -1.0        # no turning point: never restricts "far"
+    f_min = np.full(ns, np.inf)
+    f_far = np.zeros(ns)
+    r_step = np.zeros(ns)
     t, _ = _gl_theta(64)
-    for i in reg.elements:
+    members = {}
+    for s, (_regs, reg) in enumerate(picked):
+        for i in reg.elements:
+            members.setdefault(i, []).append(s)
+    for i, sts in members.items():
         el = els[i]
         p = band.pieces[el.piece]
+        idx = np.asarray(sts)
+        e = energies[idx]
         if el.kind == "flat":
-            f_min = 0.0          # k constant: d(1/k)/dz = 0
+            f_min[idx] = 0.0      # k constant: d(1/k)/dz = 0
         else:
-            lo, hi = spans[i]
-            z = lo + (hi - lo) * t
-            k = _k(band, p, z, np.full_like(z, energy))
+            lo = np.array([all_spans[s][i][0] for s in sts])
+            hi = np.array([all_spans[s][i][1] for s in sts])
+            z = lo[:, None] + (hi - lo)[:, None] * t[None, :]
+            k = _k(band, p, z, np.broadcast_to(e[:, None], z.shape))
             with np.errstate(divide="ignore", invalid="ignore"):
-                f = np.abs(np.gradient(1.0 / k, z))
+                f = np.abs(_gradient_rows(1.0 / k, z))
             f = np.where(np.isfinite(f), f, np.inf)
-            f_min = min(f_min, float(np.min(f)))
-            far = np.ones_like(z, dtype=bool)
-            for zt, ell in tps:
-                far &= np.abs(z - zt) >= 2.0 * ell
-            if np.any(far):
-                f_far = max(f_far, float(np.max(f[far])))
+            f_min[idx] = np.minimum(f_min[idx], f.min(axis=1))
+            far = np.ones(z.shape, dtype=bool)
+            for slot in range(2):
+                far &= np.abs(z - tp_z[idx, slot][:, None]) >= 2.0 * tp_l[idx, slot][:, None]
+            f_far[idx] = np.maximum(f_far[idx], np.where(far, f, 0.0).max(axis=1))
         # reflection amplitude of an internal step at the left end of this element
-        if i != reg.elements[0] and els[i - 1].piece != el.piece:
-            za = np.array([el.z_a])
+        inner = [s for s in sts if picked[s][1].elements[0] != i]
+        if inner and els[i - 1].piece != el.piece:
+            jdx = np.asarray(inner)
+            ej = energies[jdx]
+            za = np.full_like(ej, el.z_a)
             pp = band.pieces[els[i - 1].piece]
-            g1 = float(_k(band, pp, za, e1)[0] / _piece_mass(band, pp, za, e1)[0])
-            g2 = float(_k(band, p, za, e1)[0] / _piece_mass(band, p, za, e1)[0])
-            if g1 + g2 > 0:
-                r_step = max(r_step, abs((g1 - g2) / (g1 + g2)))
-    if not np.isfinite(f_min):
-        f_min = np.inf
-    return float(max(f_min, f_far, r_step))
+            g1 = _k(band, pp, za, ej) / _piece_mass(band, pp, za, ej)
+            g2 = _k(band, p, za, ej) / _piece_mass(band, p, za, ej)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                r = np.where(g1 + g2 > 0, np.abs((g1 - g2) / (g1 + g2)), 0.0)
+            r_step[jdx] = np.maximum(r_step[jdx], r)
+    return np.maximum(np.maximum(f_min, f_far), r_step).tolist()
 
 
 def _barrier_factor(band, els, z_lo: float, z_hi: float, energy: float) -> float:
@@ -1002,12 +1084,14 @@ def solve_semiclassical(band: Band, *, tolerance_eV: float = 1e-7,
     for c, (regs, reg), spans in zip(cands, picked, all_spans):
         span = _region_span(band, els, reg, c.energy, spans)
         infos.append((regs, reg, c.spacing, span, spans))
+    # validity figures of all states at once (vectorised over states and sample points)
+    validities = _validity_batch(band, els, picked, [c.energy for c in cands], all_spans)
 
-    for idx, (c, (regs, reg, spacing, span, spans)) in enumerate(zip(cands, infos)):
+    for idx, (c, (regs, _reg, spacing, span, _spans)) in enumerate(zip(cands, infos)):
         msgs = [f"region {c.region} (z = {span[0]:.3f} to {span[1]:.3f} nm)"
                 + ("" if c.ill_defined else f", n = {c.n} in region")]
         bad = False
-        validity = _validity(band, els, reg, c.energy, spans)
+        validity = validities[idx]
         if validity > VALIDITY_THRESHOLD:
             msgs.append(f"semiclassical validity figure {validity:.2f} > {VALIDITY_THRESHOLD}: "
                         "estimate poor")
@@ -1280,14 +1364,26 @@ class _FlatPlan:
         ea_a, eb_a = np.asarray(ea, dtype=float), np.asarray(eb, dtype=float)
         grid = ea_a[None, :] + t[:, None] * (eb_a - ea_a)[None, :]
         grid[-1] = eb_a
-        col = np.ones((1, 1, nr))
         if self.nonparabolic:
-            # columns: materials (phase); then left/right well side, left/right barrier side
-            coef = (np.asarray(lsum).reshape(-1, 1, nr),
-                    np.asarray(vu).reshape(-1, 1, 1) * col, np.asarray(mu).reshape(-1, 1, 1) * col,
-                    np.asarray(gu).reshape(-1, 1, 1) * col,
-                    np.asarray(v_e).reshape(4, 1, nr), np.asarray(m_e).reshape(4, 1, nr),
-                    np.asarray(g_e).reshape(4, 1, nr))
+            # columns [materials, well sides (2), barrier sides (2)] as in the parabolic case
+            # below, with x = s (E - v) and the two-band mass factor
+            # f = max(1 + s x / Eg, 0.01) of each column: pi G = sum_u A_u sqrt(x_u f_u)+
+            # + sum_ends arctan2(a sqrt(x_w f_w)+, c f_w sqrt(x_b / f_b)+)
+            nu = len(used)
+            mw = np.asarray(m_e[:2])
+            mb = np.asarray(m_e[2:])
+            cv = np.concatenate([np.asarray(vu).reshape(nu, 1) * np.ones((1, nr)),
+                                 np.asarray(v_e[:2]), -np.asarray(v_e[2:])])
+            cs = np.ones((nu + 4, nr))
+            cs[nu + 2:] = -1.0
+            cg = np.concatenate([np.asarray(gu).reshape(nu, 1) * np.ones((1, nr)),
+                                 np.asarray(g_e[:2]), -np.asarray(g_e[2:])])
+            cc = np.concatenate([np.asarray(lsum).reshape(nu, nr)
+                                 * np.sqrt(np.asarray(mu) / HBAR2_2M0_EV_NM2).reshape(nu, 1)
+                                 * _INV_PI,
+                                 np.sqrt(mw / HBAR2_2M0_EV_NM2),
+                                 mw / np.sqrt(mb * HBAR2_2M0_EV_NM2)])
+            coef = tuple(x.reshape(-1, 1, nr) for x in (cv, cs, cc, cg))
         else:
             # pi G = sum_u A_u sqrt(E - v_u)+ + sum_ends arctan2(a sqrt(E - v_w)+, c sqrt(v_b - E)+):
             # one square root over the columns [materials, well sides, barrier sides] of
@@ -1325,20 +1421,27 @@ class _FlatPlan:
             for i in range(nu):
                 g += q[i]
             return g
-        # nonparabolic: masses m(E) per column; (E - inf) * 0 of a parabolic hard wall gives
-        # NaN, which fmax turns into the clip value (callers hold an errstate)
-        lsum, vu, mu, gu, ve, me, ge = coef
-        d = energy - vu
-        mass = mu * np.fmax(1.0 + d * gu, _MIN_MASS_FRACTION)
-        phi = (lsum * np.sqrt(np.fmax(d, 0.0) * mass / HBAR2_2M0_EV_NM2)).sum(axis=0)
-        dw = energy - ve[:2]
-        m_w = me[:2] * np.fmax(1.0 + dw * ge[:2], _MIN_MASS_FRACTION)
-        db = ve[2:] - energy
-        m_b = me[2:] * np.fmax(1.0 - db * ge[2:], _MIN_MASS_FRACTION)
-        k_s = np.sqrt(np.fmax(dw, 0.0) * m_w / HBAR2_2M0_EV_NM2)
-        q = m_w * np.sqrt(np.fmax(db, 0.0) / (m_b * HBAR2_2M0_EV_NM2))
-        a = np.arctan2(k_s, q)
-        return (phi + a[0] + a[1]) * _INV_PI
+        # nonparabolic: mass factor f = max(1 + s x / Eg, 0.01) per column (Band.mass rule).
+        # (E - inf) * 0 of a parabolic hard wall gives NaN in f, which fmax turns into the
+        # clip value; x / f stays +inf there (callers hold an errstate)
+        cv, cs, cc, cg = coef
+        x = energy * cs - cv
+        f = x * cg
+        f += 1.0
+        np.fmax(f, _MIN_MASS_FRACTION, out=f)
+        nw = nu + 2
+        np.multiply(x[:nw], f[:nw], out=x[:nw])
+        np.divide(x[nw:], f[nw:], out=x[nw:])
+        np.fmax(x, 0.0, out=x)
+        np.sqrt(x, out=x)
+        x *= cc
+        q = x[nw:] * f[nu:nw]            # m_w(E) / m_w of the well side
+        a = np.arctan2(x[nu:nw], q)
+        g = a[0] + a[1]
+        g *= _INV_PI
+        for i in range(nu):
+            g += x[i]
+        return g
 
 
 def _flat_plan(band: Band):
