@@ -292,6 +292,10 @@ def cmd_levels(args) -> int:
     from .optics import select_transitions
 
     stack = _load(args.stack)
+    if args.transition and args.band not in ("all", "conduction"):
+        raise QwellError(f"--transition needs the conduction band: transitions start from "
+                         f"electron states, but --band {args.band} solves only that band; "
+                         "use --band all")
     sols = _solutions(stack, args)
     chosen = {}
     for m, sol in sols.items():
@@ -441,10 +445,26 @@ def _register_optional():
             _EXTRA_COMMANDS.append(mod.register)
 
 
+_NEGATIVE_VALUE = __import__("re").compile(r"^-(\d|\.\d)")
+
+
+def _join_negative_values(argv):
+    """Let '--to -2nm' mean '--to=-2nm' (argparse would take '-2nm' for an option)."""
+    out = []
+    for tok in argv:
+        if (out and out[-1].startswith("--") and "=" not in out[-1]
+                and _NEGATIVE_VALUE.match(tok)):
+            out[-1] = f"{out[-1]}={tok}"
+        else:
+            out.append(tok)
+    return out
+
+
 def main(argv=None) -> int:
     _register_optional()
     parser = build_parser()
-    args = parser.parse_args(argv)
+    argv = sys.argv[1:] if argv is None else list(argv)
+    args = parser.parse_args(_join_negative_values(argv))
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_USAGE

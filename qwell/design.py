@@ -276,8 +276,13 @@ class Parameter:
                 raise ParameterError(f"{self.path} = {v:.6g} is invalid: with "
                                      + ", ".join(f"{k} = {self.composition[k]:.6g}" for k in same)
                                      + f" the sublattice fractions sum to {total:.6g} > 1")
-        if self.kind == "temperature" and not v > 0:
-            raise ParameterError(f"{self.path} = {v:.6g} K is invalid: a temperature must be > 0 K")
+        from .stack import MAX_FIELD_KV_PER_CM, MAX_TEMPERATURE_K
+        if self.kind == "temperature" and not 0 < v <= MAX_TEMPERATURE_K:
+            raise ParameterError(f"{self.path} = {v:.6g} K is invalid: a temperature must be > 0 K "
+                                 f"and at most {MAX_TEMPERATURE_K:g} K")
+        if self.kind == "field" and abs(v) > MAX_FIELD_KV_PER_CM:
+            raise ParameterError(f"{self.path} = {v:.6g} kV/cm is invalid: beyond "
+                                 f"±{MAX_FIELD_KV_PER_CM:g} kV/cm")
         return v
 
     @property
@@ -1583,7 +1588,7 @@ def _tolerance_items(stack, params, thickness_tol, composition_tol, extra):
         spec = thickness_tol.get(key, thickness_tol.get("*"))
         if spec is not None:
             try:
-                d = parse_parameter_value(p, spec, delta=True)
+                d = _half_width(p, spec)
             except UnitError as exc:
                 if key not in thickness_tol and p.monolayer_nm is None:
                     notes.append(f"{key}: no lattice constant, thickness tolerance {spec!r} "
@@ -1592,17 +1597,17 @@ def _tolerance_items(stack, params, thickness_tol, composition_tol, extra):
                 else:
                     raise ParameterError(f"{p.path} tolerance: {exc}") from None
             if d is not None:
-                items[p.path] = (p, abs(d), str(spec))
+                items[p.path] = (p, d, str(spec))
         for k in ("x", "y"):
             pc = params.get(f"{key}.{k}")
             if pc is None:
                 continue
             spec = composition_tol.get(key, composition_tol.get("*"))
             if spec is not None:
-                items[pc.path] = (pc, abs(parse_parameter_value(pc, spec, delta=True)), str(spec))
+                items[pc.path] = (pc, _half_width(pc, spec), str(spec))
     for path, spec in dict(extra or {}).items():
         p = get_parameter(stack, path)
-        items[p.path] = (p, abs(parse_parameter_value(p, spec, delta=True)), str(spec))
+        items[p.path] = (p, _half_width(p, spec), str(spec))
     out = []
     for p, d, spec in items.values():
         if d == 0:
@@ -1611,6 +1616,15 @@ def _tolerance_items(stack, params, thickness_tol, composition_tol, extra):
             raise ParameterError(f"{p.path}: tolerance {spec!r} is not finite")
         out.append((p, d, spec))
     return out, notes
+
+
+def _half_width(p: Parameter, spec) -> float:
+    """A tolerance as a half-width >= 0 in the parameter's unit; negative -> ParameterError."""
+    d = parse_parameter_value(p, spec, delta=True)
+    if d < 0:
+        raise ParameterError(f"{p.path}: tolerance {spec!r} is negative; expected a half-width "
+                             ">= 0 (the spread is ± that value)")
+    return d
 
 
 def _clip_to_valid(p: Parameter, v: float) -> float:

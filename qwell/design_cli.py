@@ -24,7 +24,10 @@ def _cli():
 def _fmt(v, spec=".6g", none="—"):
     if v is None or (isinstance(v, float) and not math.isfinite(v)):
         return none
-    return format(v, spec)
+    text = format(v, spec)
+    if text.startswith("-") and not any(ch in "123456789" for ch in text.split("e")[0]):
+        text = ("+" if "+" in spec else "") + text[1:]   # no '-0.000' for rounding noise
+    return text
 
 
 def _unit_text(unit):
@@ -171,7 +174,7 @@ def cmd_sweep(args) -> int:
                                   for lab in res.state_labels]
             for t in res.transitions:
                 row += [_fmt(res.wavelength_um[t][i], ".5f"),
-                        _fmt(res.sensitivity[t][p1.path][i], ".4g")]
+                        _fmt(res.sensitivity[t][p1.path][i], ".3f")]
             rows.append(row)
         print(f"{stack.name}: sweep of {p1.path} (state energies in eV)")
         print(_cli()._table(rows, heads, aligns))
@@ -231,7 +234,8 @@ def cmd_tolerance(args) -> int:
         return 0
     print(f"{stack.name}: {res.transition} at {res.nominal_wavelength_um:.5f} µm "
           f"({res.nominal_energy_eV:.6f} eV)")
-    rows = [[c.parameter, f"{c.value:.6g}{_unit_text(c.unit)}", f"±{c.delta:.4g} ({c.spec})",
+    rows = [[c.parameter, f"{c.value:.6g}{_unit_text(c.unit)}",
+             f"±{c.delta:.4g}{_unit_text(c.unit)} ({c.spec})",
              _fmt(c.wavelength_minus_um, ".5f"), _fmt(c.wavelength_plus_um, ".5f"),
              _fmt(c.contribution_nm, "+.3f")] for c in res.contributions]
     print(_cli()._table(rows, ["parameter", "nominal", "tolerance", "λ(-) µm", "λ(+) µm",
@@ -311,7 +315,8 @@ def register(subparsers) -> None:
                    help="a further parameter and its tolerance, e.g. field=2kV/cm")
     t.add_argument("--monte-carlo", type=int, default=0, metavar="N",
                    help="number of random designs (default 0: none)")
-    t.add_argument("--seed", type=int, default=None, help="random seed (reproducible samples)")
+    t.add_argument("--seed", type=int, default=1,
+                   help="random seed of the Monte Carlo samples (default 1, so runs repeat)")
     t.add_argument("--distribution", default="normal", choices=["normal", "uniform"],
                    help="normal: tolerance = 1 sigma (default); uniform: on ±tolerance")
     t.add_argument("--json", action="store_true")

@@ -75,6 +75,10 @@ def atomic_savefig(fig, path, protect=(), **kwargs) -> Path:
 
     path = _check_target(Path(path), protect)
     fmt = kwargs.pop("format", None) or (path.suffix.lstrip(".").lower() or "png")
+    supported = fig.canvas.get_supported_filetypes()
+    if fmt not in supported:
+        raise OutputError(f"{path}: cannot write a figure as '.{fmt}'; expected a file name "
+                          "ending in " + ", ".join(f".{k}" for k in sorted(supported)))
     buf = io.BytesIO()
     fig.savefig(buf, format=fmt, **kwargs)
     return atomic_write_bytes(path, buf.getvalue(), protect)

@@ -388,6 +388,9 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
                 lw.append(f"{m.name} is indirect (X gap {gx:.3f} eV below the Γ gap "
                           f"{m.band_gap_eV:.3f} eV): a single-Γ-valley model of this layer is unreliable")
                 break
+        if ml is not None and layer.thickness_nm < ml * (1 - 1e-9):
+            lw.append(f"thinner ({layer.thickness_nm:.3g} nm) than one monolayer ({ml:.4g} nm): "
+                      "an envelope-function model of it is not meaningful")
         for w in lw:
             warnings.append(f"layer {layer.label}: {w}")
         layer_profiles.append(LayerProfile(
@@ -458,6 +461,14 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
                    light_hole_edge_eV=cat["elh"], electron_mass=cat["me"],
                    heavy_hole_mass=cat["mhh"], light_hole_mass=cat["mlh"], gap_eV=cat["gap"],
                    warnings=tuple(warnings), sample_layer=np.concatenate(owner))
+    grouped: dict = {}
+    for w in warnings:
+        label, _, msg = w.partition(": ")
+        grouped.setdefault(msg, []).append(label.removeprefix("layer "))
+    merged = tuple((f"layer {labels[0]}: {msg}" if len(labels) == 1 else
+                    f"layers {', '.join(labels[:6])}{' …' if len(labels) > 6 else ''}: {msg}")
+                   for msg, labels in grouped.items())
+    prof = replace(prof, warnings=merged)
     extra = _offset_warnings(prof, families)
     if extra:
         prof = replace(prof, warnings=prof.warnings + tuple(extra))

@@ -83,6 +83,10 @@ __all__ = [
 MAX_FILE_BYTES = 4 * 1024 * 1024
 #: Most layers after the expansion of repeat blocks.
 MAX_LAYERS = 100_000
+#: Highest accepted stack temperature [K]: Varshni fits are made below ~1000 K.
+MAX_TEMPERATURE_K = 1000.0
+#: Largest accepted uniform field [kV/cm]; breakdown of III-V layers is a few hundred kV/cm.
+MAX_FIELD_KV_PER_CM = 2000.0
 #: Largest total thickness [nm] (100 um).
 MAX_TOTAL_THICKNESS_NM = 100_000.0
 #: Deepest nesting of repeat blocks (a repeat inside a repeat is fine).
@@ -1102,6 +1106,11 @@ class _Builder:
                 raise self.error(f"temperature {_short(top['temperature'])} is not above 0 K; "
                                  "expected a temperature > 0 K (e.g. '77 K')", top,
                                  "temperature", "temperature")
+            if t > MAX_TEMPERATURE_K:
+                raise self.error(f"temperature {_short(top['temperature'])} is above "
+                                 f"{MAX_TEMPERATURE_K:g} K, beyond the range of the gap's "
+                                 "temperature law; expected a device temperature (e.g. '300 K')",
+                                 top, "temperature", "temperature")
             self.temperature_K = t
 
         if "materials" in top:
@@ -1116,6 +1125,11 @@ class _Builder:
         if "field" in top:
             field_kV = self.finite(self.quantity(top, "field", "kV/cm", "field"), top, "field",
                                    "field", expected_words("kV/cm"))
+            if abs(field_kV) > MAX_FIELD_KV_PER_CM:
+                raise self.error(f"field {_short(top['field'])} is beyond "
+                                 f"±{MAX_FIELD_KV_PER_CM:g} kV/cm (far above the breakdown field "
+                                 "of III-V layers); expected a device field (e.g. '50 kV/cm')",
+                                 top, "field", "field")
         nonpar = self.boolean(top, "nonparabolicity", "nonparabolicity") \
             if "nonparabolicity" in top else True
         selfc = self.boolean(top, "self_consistent", "self_consistent") \

@@ -218,3 +218,39 @@ def test_self_consistent_refusal_shows_history(capsys, tmp_path):
     rc, out, err = run(capsys, "levels", str(f))
     assert rc == 2
     assert len(err.strip().splitlines()) == 1 and "residual history, meV:" in err
+
+
+@pytest.mark.parametrize("text, pattern", [
+    # Varshni fits hold below ~1000 K and III-V breakdown fields are a few hundred kV/cm
+    # (common practice, no source): beyond that the stack is refused.
+    ("temperature: 3000 K\nlayers:\n  - {material: GaAs, thickness: 5 nm}\n", r"bad\.yaml:1: temperature: .*above 1000 K"),
+    ("field: 1e6 kV/cm\nlayers:\n  - {material: GaAs, thickness: 5 nm}\n", r"bad\.yaml:1: field: .*beyond"),
+])
+def test_absurd_conditions_refused(capsys, tmp_path, text, pattern):
+    import re
+    f = tmp_path / "bad.yaml"
+    f.write_text(text)
+    rc, out, err = run(capsys, "levels", str(f))
+    assert rc == 2 and re.search(pattern, err.strip()), err
+
+
+def test_negative_option_values_and_bad_outputs(capsys, tmp_path):
+    lw = str(ROOT / "layers" / "lwir-detector.yaml")
+    # '--from -5kV/cm' is read as a value, not an option
+    rc, out, err = run(capsys, "sweep", lw, "--vary", "field", "--from", "-5kV/cm", "--to", "5kV/cm",
+                       "--points", "3")
+    assert rc == 0, err
+    rc, out, err = run(capsys, "tolerance", lw, "--transition", "e1-e2", "--composition", "-0.01")
+    assert rc == 2 and "is negative" in err
+    rc, out, err = run(capsys, "levels", lw, "--png", str(tmp_path / "x.txt"))
+    assert rc == 2 and "cannot write a figure as '.txt'" in err
+    assert not (tmp_path / "x.txt").exists()
+
+
+def test_sub_monolayer_layer_warns(capsys, tmp_path):
+    f = tmp_path / "thin.yaml"
+    f.write_text("layers:\n  - {material: Al0.30Ga0.70As, thickness: 10 nm}\n"
+                 "  - {material: GaAs, thickness: 0.1 nm, name: sliver}\n"
+                 "  - {material: Al0.30Ga0.70As, thickness: 10 nm}\n")
+    rc, out, err = run(capsys, "profile", str(f))
+    assert rc == 0 and "sliver: thinner (0.1 nm) than one monolayer" in out
