@@ -733,7 +733,8 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
             ls = ":" if weak else _STYLES[rank % len(_STYLES)]
             ax.axvline(pos[k], color=col, ls=ls, lw=0.9 if weak else 1.4, zorder=2)
             frac = (pos[k] - xmin) / span
-            if len(placed) < _MAX_LABELS and all(abs(frac - q) > _LABEL_GAP for q in placed):
+            if (not weak and len(placed) < _MAX_LABELS
+                    and all(abs(frac - q) > _LABEL_GAP for q in placed)):
                 ax.text(pos[k], 1.02, t.name, rotation=90, ha="center", va="bottom",
                         fontsize=9, color=col, transform=ax.get_xaxis_transform(), clip_on=False)
                 placed.append(frac)

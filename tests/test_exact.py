@@ -514,3 +514,18 @@ def test_tilted_double_barrier_pole_converges():
         errs.append(abs(p[0] - pole))
     ratios = np.array(errs[:-1]) / np.array(errs[1:])
     assert np.all((ratios > 3.5) & (ratios < 4.5))
+
+
+def test_no_minibands_under_a_field():
+    # Bloch's theorem needs V(z + d) = V(z) (F. Bloch, Z. Phys. 52, 555 (1929)); a uniform
+    # field breaks the periodicity, so no miniband is reported, with a note saying why.
+    from qwell.bands import Band, RepeatInfo
+    layers = [(10, 0.3, 0.067)] + [(4, 0.0, 0.067), (2, 0.3, 0.067)] * 4 + [(10, 0.3, 0.067)]
+    rep = RepeatInfo(z_start_nm=10.0, period_nm=6.0, count=4, first_layer=1, layers_per_period=2)
+    for field, expect in ((0.0, True), (10.0, False)):
+        b = band_from_layers(layers, field_kV_per_cm=field)
+        b = Band(name=b.name, pieces=b.pieces, carrier_sign=1, repeats=(rep,),
+                 layer_names=b.layer_names)
+        lev = solve_exact(b, wavefunctions=False)
+        assert bool(lev.minibands) is expect
+        assert expect or any("not periodic" in n for n in lev.notes)

@@ -705,6 +705,16 @@ def _deepest(band: Band):
     return v, name
 
 
+def _is_periodic(band: Band, repeat, tol_eV: float = 1e-9) -> bool:
+    """Whether V(z + d) = V(z) across the repeat block (period d)."""
+    if repeat.count < 2:
+        return False
+    z = repeat.z_start_nm + np.linspace(0.0, repeat.period_nm, 97)[1:-1]
+    v0 = band.potential(z)
+    v1 = band.potential(z + repeat.period_nm * (repeat.count - 1))
+    return bool(np.max(np.abs(v1 - v0)) <= tol_eV)
+
+
 def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | None = None,
                 grid_step_nm: float = 0.02, wavefunctions: bool = True,
                 quasi_bound: bool = True) -> Levels:
@@ -845,7 +855,12 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         notes.append("quasi-bound states (bound=False) can escape through the lower cladding")
     mbs = []
     for r in band.repeats:
-        mbs.extend(minibands(band, r))
+        if _is_periodic(band, r):
+            mbs.extend(minibands(band, r))
+        else:
+            notes.append(f"no minibands for the repeat block at {r.z_start_nm:.4g} nm: its "
+                         "potential is not periodic (a field or charge tilts it; Bloch's theorem "
+                         "does not apply, the states are Wannier–Stark-like)")
     return Levels(band=band.name, method="exact", states=tuple(out),
                   converged=all(s.converged for s in out), message=message, notes=tuple(notes),
                   minibands=tuple(mbs), tolerance_eV=tolerance_eV,
