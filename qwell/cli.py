@@ -206,8 +206,8 @@ def _solutions(stack, args):
     from .levels import solve_profile
     prof = _profile_of(stack, args)
     methods = ["exact", "semiclassical"] if args.method == "both" else [args.method]
-    sols = {m: solve_profile(prof, bands=args.band, method=m,
-                             transitions=(m == "exact")) for m in methods}
+    sols = {m: solve_profile(prof, bands=args.band, method=m, transitions=(m == "exact"),
+                             hole_intersubband=args.hole_intersubband) for m in methods}
     if args._sc is not None:
         sols = {m: replace(s, self_consistent=args._sc) for m, s in sols.items()}
     return sols
@@ -292,7 +292,7 @@ def cmd_levels(args) -> int:
     from .optics import select_transitions
 
     stack = _load(args.stack)
-    if args.transition and args.band not in ("all", "conduction"):
+    if args.transition and args.band not in ("all", "conduction") and not args.hole_intersubband:
         raise QwellError(f"--transition needs the conduction band: transitions start from "
                          f"electron states, but --band {args.band} solves only that band; "
                          "use --band all")
@@ -412,6 +412,8 @@ def build_parser() -> argparse.ArgumentParser:
     lv.add_argument("--transition", action="append", metavar="e1-e2",
                     help="show only this transition (repeatable)")
     lv.add_argument("--json", action="store_true")
+    lv.add_argument("--hole-intersubband", action="store_true",
+                    help="also list heavy- and light-hole intersubband pairs (hh1-hh2, lh1-lh2, ...)")
     lv.add_argument("--png", metavar="FILE", help="write the absorption spectrum plot")
     lv.add_argument("--linewidth", type=float, default=10.0, metavar="MEV",
                     help="spectrum line FWHM in meV (default 10)")

@@ -118,7 +118,8 @@ def _bands_for(which) -> tuple:
 
 def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
                   transitions: bool = True, tolerance_eV: float = 1e-7,
-                  wavefunctions: bool = True, quasi_bound: bool = True) -> Solution:
+                  wavefunctions: bool = True, quasi_bound: bool = True,
+                  hole_intersubband: bool = False) -> Solution:
     """Solve the bands of a profile and collect transitions.
 
     Parameters
@@ -137,6 +138,8 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
     quasi_bound : bool
         Also search for quasi-bound resonances (exact method); they lie above
         every bound state, so skipping them leaves the bound labels unchanged.
+    hole_intersubband : bool
+        Also list heavy-hole and light-hole intersubband pairs (hh1-hh2, ...).
     """
     if method not in METHODS:
         raise ParameterError(f"unknown method {method!r}; expected one of: " + ", ".join(METHODS))
@@ -153,17 +156,18 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
         levels[b] = solve(profile.bands[b], method, **opts)
     trans = ()
     if transitions and method == "exact":
-        trans = _transitions(profile, levels)
+        trans = _transitions(profile, levels, hole_intersubband)
     return Solution(stack=profile.stack, profile=profile, method=method, levels=levels,
                     transitions=trans, notes=tuple(notes))
 
 
-def _transitions(profile: Profile, levels: dict) -> tuple:
+def _transitions(profile: Profile, levels: dict, hole_intersubband: bool = False) -> tuple:
     from . import optics
 
     out = []
-    if "conduction" in levels and len(levels["conduction"]) >= 2:
-        out += optics.intersubband_transitions(levels["conduction"], profile.bands["conduction"])
+    for b in ("conduction",) + (("heavy_hole", "light_hole") if hole_intersubband else ()):
+        if b in levels and len(levels[b]) >= 2:
+            out += optics.intersubband_transitions(levels[b], profile.bands[b])
     if "conduction" in levels and len(levels["conduction"]):
         for hb in ("heavy_hole", "light_hole"):
             if hb in levels and len(levels[hb]):

@@ -254,3 +254,17 @@ def test_sub_monolayer_layer_warns(capsys, tmp_path):
                  "  - {material: Al0.30Ga0.70As, thickness: 10 nm}\n")
     rc, out, err = run(capsys, "profile", str(f))
     assert rc == 0 and "sliver: thinner (0.1 nm) than one monolayer" in out
+
+
+def test_hole_intersubband_on_request(capsys):
+    lw = str(ROOT / "layers" / "lwir-detector.yaml")
+    rc, out, _ = run(capsys, "levels", lw, "--json")
+    names = {t["from"] + "-" + t["to"] for t in json.loads(out)["transitions"]}
+    assert "hh1-hh2" not in names
+    rc, out, err = run(capsys, "levels", lw, "--json", "--hole-intersubband")
+    assert rc == 0, err
+    js = json.loads(out)
+    t = {x["from"] + "-" + x["to"]: x for x in js["transitions"]}["hh1-hh2"]
+    e = {s["label"]: s["energy_eV"] for s in js["states"]}
+    # a hole transition absorbs hbar*omega = E(hh1) - E(hh2) > 0 on the band-diagram scale
+    assert t["kind"] == "intersubband" and t["energy_eV"] == pytest.approx(e["hh1"] - e["hh2"], abs=1e-9)
