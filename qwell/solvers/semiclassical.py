@@ -319,6 +319,28 @@ def _structure(els, energy: float) -> list:
 # ---------------------------------------------------------------------------
 # Vectorised pieces of the quantisation function
 # ---------------------------------------------------------------------------
+def _illinois_update(a, fa, b, fb, c, fc, replaces_a, side):
+    """One vectorised Illinois (modified regula falsi) bracket update.
+
+    ``replaces_a`` marks where the new point ``c`` takes the place of ``a``
+    (elsewhere it replaces ``b``); the end kept twice in a row has its value
+    halved, which gives superlinear convergence.  ``side`` remembers which
+    end moved last (-1: a, +1: b).
+
+    References
+    ----------
+    .. [1] M. Dowell and P. Jarratt, "A modified regula falsi method for
+       computing the root of an equation", BIT 11, 168 (1971).
+    """
+    a_n = np.where(replaces_a, c, a)
+    fa_n = np.where(replaces_a, fc, fa)
+    b_n = np.where(replaces_a, b, c)
+    fb_n = np.where(replaces_a, fb, fc)
+    fb_n = np.where(replaces_a & (side < 0), 0.5 * fb_n, fb_n)
+    fa_n = np.where(~replaces_a & (side > 0), 0.5 * fa_n, fa_n)
+    return a_n, fa_n, b_n, fb_n, np.where(replaces_a, -1.0, 1.0)
+
+
 def _turning_point(band, el: _Element, energy: np.ndarray) -> np.ndarray:
     """Turning point in a monotone element for each energy (vectorised)."""
     p = band.pieces[el.piece]
@@ -365,14 +387,7 @@ def _turning_point(band, el: _Element, energy: np.ndarray) -> np.ndarray:
         c = np.where(np.isfinite(c), c, 0.5 * (a + b))
         fc = resid(c)
         same_a = np.sign(fc) == np.sign(fa)
-        a_n = np.where(same_a, c, a)
-        fa_n = np.where(same_a, fc, fa)
-        b_n = np.where(same_a, b, c)
-        fb_n = np.where(same_a, fb, fc)
-        fb_n = np.where(same_a & (side < 0), 0.5 * fb_n, fb_n)
-        fa_n = np.where(~same_a & (side > 0), 0.5 * fa_n, fa_n)
-        side = np.where(same_a, -1.0, 1.0)
-        a, fa, b, fb = a_n, fa_n, b_n, fb_n
+        a, fa, b, fb, side = _illinois_update(a, fa, b, fb, c, fc, same_a, side)
         if np.all((np.abs(b - a) < tol) | (fc == 0)):
             break
     return np.clip(c, el.z_a, el.z_b)
@@ -817,14 +832,7 @@ def _illinois(fn, a, b, fa, fb, tol):
         c_old = c
         fc = fn(c)
         left = fc < 0
-        a_n = np.where(left, c, a)
-        fa_n = np.where(left, fc, fa)
-        b_n = np.where(left, b, c)
-        fb_n = np.where(left, fb, fc)
-        fb_n = np.where(left & (side < 0), 0.5 * fb_n, fb_n)
-        fa_n = np.where(~left & (side > 0), 0.5 * fa_n, fa_n)
-        side = np.where(left, -1.0, 1.0)
-        a, fa, b, fb = a_n, fa_n, b_n, fb_n
+        a, fa, b, fb, side = _illinois_update(a, fa, b, fb, c, fc, left, side)
     with np.errstate(divide="ignore", invalid="ignore"):
         slope = (fb - fa) / (b - a)
     return a, b, slope
