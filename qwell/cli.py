@@ -170,6 +170,17 @@ def cmd_profile(args) -> int:
                  "—" if o["conduction_share"] is None else f"{100 * o['conduction_share']:.0f} %"]
                 for o in offsets]
         print(_table(rows, ["interface", "z nm", "ΔEc meV", "ΔEv meV", "Qc"], ["<", ">", ">", ">", ">"]))
+    strained = [lp for lp in prof.layers if abs(lp.strain_xx) > 1e-6]
+    if strained:
+        print("\nStrain (pseudomorphic on (001); shifts of the band edges from the unstrained ones)")
+        rows = [[lp.label, f"{100 * lp.strain_xx:+.3f}", f"{100 * lp.strain_zz:+.3f}",
+                 f"{1e3 * lp.strain_shift_conduction_eV:+.1f}",
+                 f"{1e3 * lp.strain_shift_heavy_hole_eV:+.1f}",
+                 f"{1e3 * lp.strain_shift_light_hole_eV:+.1f}",
+                 "—" if math.isinf(lp.critical_thickness_nm) else f"{lp.critical_thickness_nm:.3g}"]
+                for lp in strained]
+        print(_table(rows, ["layer", "eps_xx %", "eps_zz %", "δEc meV", "δEhh meV", "δElh meV",
+                            "h_c nm"], ["<", ">", ">", ">", ">", ">", ">"]))
     for w in prof.warnings:
         print(f"warning: {w}")
     return 0

@@ -60,6 +60,12 @@ class LayerProfile:
         Boundaries [nm].
     strain_xx, strain_zz : float
         Pseudomorphic strain (0 without substrate); for a grade, the mean.
+    strain_shift_conduction_eV : float
+        Hydrostatic shift of the conduction edge a_c tr(eps) [eV].
+    strain_shift_heavy_hole_eV, strain_shift_light_hole_eV : float
+        Hydrostatic + shear shifts of the heavy- and light-hole edges from the
+        unstrained valence edge (-P -/+ Q, light hole with spin–orbit
+        coupling) [eV]; for a grade, the means.
     critical_thickness_nm : float
         Matthews–Blakeslee critical thickness [nm] (inf if unstrained).
     monolayer_nm : float or None
@@ -75,6 +81,9 @@ class LayerProfile:
     end_nm: float
     strain_xx: float = 0.0
     strain_zz: float = 0.0
+    strain_shift_conduction_eV: float = 0.0
+    strain_shift_heavy_hole_eV: float = 0.0
+    strain_shift_light_hole_eV: float = 0.0
     critical_thickness_nm: float = math.inf
     monolayer_nm: float | None = None
     warnings: tuple = ()
@@ -87,6 +96,9 @@ class LayerProfile:
         return {"name": self.label, "material": self.material, "start_nm": self.start_nm,
                 "end_nm": self.end_nm, "thickness_nm": self.thickness_nm,
                 "strain_xx": self.strain_xx, "strain_zz": self.strain_zz,
+                "strain_shift_conduction_eV": self.strain_shift_conduction_eV,
+                "strain_shift_heavy_hole_eV": self.strain_shift_heavy_hole_eV,
+                "strain_shift_light_hole_eV": self.strain_shift_light_hole_eV,
                 "critical_thickness_nm": (None if math.isinf(self.critical_thickness_nm)
                                           else self.critical_thickness_nm),
                 "warnings": list(self.warnings)}
@@ -210,6 +222,9 @@ class _Edges:
     gap: float
     eps_xx: float
     eps_zz: float
+    d_ec: float = 0.0
+    d_hh: float = 0.0
+    d_lh: float = 0.0
 
 
 def _nan(v):
@@ -223,6 +238,7 @@ def _edges_of(mat, substrate_mat) -> _Edges:
     ec = _nan(mat.conduction_edge_eV)
     ev = _nan(mat.valence_edge_eV)
     eps_xx = eps_zz = 0.0
+    d_ec = d_hh = d_lh = 0.0
     ehh = elh = ev
     if (substrate_mat is not None and mat.lattice_constant_nm is not None
             and substrate_mat.lattice_constant_nm is not None
@@ -233,13 +249,14 @@ def _edges_of(mat, substrate_mat) -> _Edges:
             s = None
         if s is not None:
             eps_xx, eps_zz = s.eps_xx, s.eps_zz
+            d_ec, d_hh, d_lh = s.delta_conduction_eV, s.delta_heavy_hole_eV, s.delta_light_hole_eV
             ec = ec + s.delta_conduction_eV
             ehh = ev + s.delta_heavy_hole_eV
             elh = ev + s.delta_light_hole_eV
     top = np.nanmax([ehh, elh]) if not (math.isnan(ehh) and math.isnan(elh)) else math.nan
     gap = ec - top if not (math.isnan(ec) or math.isnan(top)) else _nan(mat.band_gap_eV)
     return _Edges(ec, ehh, elh, _nan(mat.electron_mass), _nan(mat.heavy_hole_mass),
-                  _nan(mat.light_hole_mass), gap, eps_xx, eps_zz)
+                  _nan(mat.light_hole_mass), gap, eps_xx, eps_zz, d_ec, d_hh, d_lh)
 
 
 class _LayerFunctions:
@@ -256,7 +273,8 @@ class _LayerFunctions:
             pts = [edges_at(float(ti)) for ti in t]
             z = z0 + t * (z1 - z0)
             self.splines = {}
-            for attr in ("ec", "ehh", "elh", "me", "mhh", "mlh", "gap", "eps_xx", "eps_zz"):
+            for attr in ("ec", "ehh", "elh", "me", "mhh", "mlh", "gap", "eps_xx", "eps_zz",
+                         "d_ec", "d_hh", "d_lh"):
                 vals = np.array([getattr(p, attr) for p in pts])
                 if np.all(np.isfinite(vals)):
                     self.splines[attr] = CubicSpline(z, vals)
@@ -396,7 +414,10 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
         layer_profiles.append(LayerProfile(
             index=layer.index, label=layer.label, name=layer.name, material=display,
             start_nm=z0, end_nm=z1, strain_xx=float(lf.mean("eps_xx")),
-            strain_zz=float(lf.mean("eps_zz")), critical_thickness_nm=hc,
+            strain_zz=float(lf.mean("eps_zz")),
+            strain_shift_conduction_eV=float(lf.mean("d_ec")),
+            strain_shift_heavy_hole_eV=float(lf.mean("d_hh")),
+            strain_shift_light_hole_eV=float(lf.mean("d_lh")), critical_thickness_nm=hc,
             monolayer_nm=ml, warnings=tuple(lw)))
         z = z1
 

@@ -107,6 +107,12 @@ layers:
     # eps_xx = (a_sub - a)/a: Chuang, Physics of Optoelectronic Devices (1995), ch. 4
     assert lay.strain_xx == pytest.approx(s.eps_xx)
     assert lay.strain_xx == pytest.approx(-0.014, abs=0.001)   # common practice: ~ -1.4 %
+    assert lay.strain_zz == pytest.approx(s.eps_zz)
+    assert lay.strain_shift_conduction_eV == pytest.approx(s.delta_conduction_eV)
+    assert lay.strain_shift_heavy_hole_eV == pytest.approx(s.delta_heavy_hole_eV)
+    assert lay.strain_shift_light_hole_eV == pytest.approx(s.delta_light_hole_eV)
+    assert prof.to_json()["layers"][1]["strain_shift_conduction_eV"] == pytest.approx(
+        s.delta_conduction_eV)
     cb = prof.bands["conduction"]
     assert cb.potential([23.0])[0] == pytest.approx(mat.conduction_edge_eV + s.delta_conduction_eV)
     hh = prof.bands["heavy_hole"]
