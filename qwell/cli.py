@@ -273,6 +273,18 @@ def _print_transitions(trans, show_all=False) -> None:
         _hidden_note(len(band) - len(shown), "interband", "|<e|h>|² < 0.001")
 
 
+def _add_wavefunctions(out: dict, sol) -> None:
+    """Put each state's grid, envelope and layer probabilities into its JSON entry."""
+    by_label = {s.label: s for s in sol.states}
+    for js in out["states"]:
+        s = by_label.get(js["label"])
+        if s is None or s.psi is None:
+            continue
+        js["z_nm"] = [round(float(v), 6) for v in s.z_nm]
+        js["psi"] = [float(f"{v:.6g}") for v in s.psi]
+        js["layer_probability"] = [float(p) for p in s.layer_probability]
+
+
 def _spectrum_lines(solution, chosen, args):
     """Lines of the spectrum plot and a short description of the choice.
 
@@ -314,6 +326,7 @@ def cmd_levels(args) -> int:
         if args.transition:
             trans = select_transitions(trans, args.transition)
         chosen[m] = trans
+    spec = None
     if args.png:
         from .optics import plot_spectrum, spectrum
         exact = sols.get("exact")
@@ -331,6 +344,12 @@ def cmd_levels(args) -> int:
             if sol.self_consistent is not None:
                 from .levels import depolarised_lines
                 out["depolarisation"] = depolarised_lines(sol)
+            if args.wavefunctions:
+                _add_wavefunctions(out, sol)
+            if spec is not None:
+                out["spectrum"] = {"energy_eV": spec.energy_eV, "wavelength_um": spec.wavelength_um,
+                                   "absorption": spec.absorption, "linewidth_meV": spec.linewidth_meV,
+                                   "shape": spec.shape, "lines": [t.name for t in spec.lines]}
         else:
             out = {"stack": stack.name, "temperature_K": stack.temperature_K, "method": "both",
                    "methods": {}, "comparison": compare_methods(sols["exact"], sols["semiclassical"])}
@@ -423,6 +442,9 @@ def build_parser() -> argparse.ArgumentParser:
     lv.add_argument("--transition", action="append", metavar="e1-e2",
                     help="show only this transition (repeatable)")
     lv.add_argument("--json", action="store_true")
+    lv.add_argument("--wavefunctions", action="store_true",
+                    help="with --json: include each state's z grid, envelope (nm^-1/2) and "
+                         "probability per layer")
     lv.add_argument("--hole-intersubband", action="store_true",
                     help="also list heavy- and light-hole intersubband pairs (hh1-hh2, lh1-lh2, ...)")
     lv.add_argument("--png", metavar="FILE", help="write the absorption spectrum plot")

@@ -268,3 +268,17 @@ def test_hole_intersubband_on_request(capsys):
     e = {s["label"]: s["energy_eV"] for s in js["states"]}
     # a hole transition absorbs hbar*omega = E(hh1) - E(hh2) > 0 on the band-diagram scale
     assert t["kind"] == "intersubband" and t["energy_eV"] == pytest.approx(e["hh1"] - e["hh2"], abs=1e-9)
+
+
+def test_levels_json_wavefunctions_and_spectrum(capsys, tmp_path):
+    rc, out, err = run(capsys, "levels", str(ROOT / "layers" / "pump-laser-well.yaml"), "--json",
+                       "--wavefunctions", "--png", str(tmp_path / "s.png"))
+    assert rc == 0, err
+    js = json.loads(out)
+    for s in js["states"]:
+        z, psi = np.array(s["z_nm"]), np.array(s["psi"])
+        # Born's rule: int |psi|^2 dz = 1 (the tails beyond the grid hold < 1e-4 here)
+        assert np.trapezoid(psi ** 2, z) == pytest.approx(1.0, abs=1e-4)
+        assert sum(s["layer_probability"]) == pytest.approx(1.0, abs=1e-9)
+    spec = js["spectrum"]
+    assert len(spec["energy_eV"]) == len(spec["absorption"]) and max(spec["absorption"]) == pytest.approx(1.0)
