@@ -1273,6 +1273,32 @@ def _sensitivity_grid(lam, values, axis):
         return np.gradient(lam, values, axis=axis, edge_order=2 if n >= 3 else 1)
 
 
+def _jump_notes(p, values, state_energy, transition_energy, factor: float = 8.0) -> list:
+    """Flag steps where a labelled state's energy jumps instead of moving smoothly.
+
+    States are labelled by energy order among those found at each point; when
+    a resonance appears or leaves (strong field, a state crossing the barrier
+    edge) the label passes to another state and the curve jumps.  A step is
+    flagged when it is ``factor`` times the median step of that curve (and
+    above 1 meV).  Values across a flagged step belong to different states.
+    """
+    x = np.asarray(values, dtype=float)
+    out = []
+    series = list(state_energy.items()) + list(transition_energy.items())
+    for name, e in series:
+        e = np.asarray(e, dtype=float)
+        d = np.abs(np.diff(e))
+        ok = np.isfinite(d)
+        if ok.sum() < 3:
+            continue
+        med = float(np.median(d[ok]))
+        for i in np.nonzero(ok & (d > max(factor * med, 1e-3)))[0][:3]:
+            out.append(f"{name} jumps by {1e3 * d[i]:.3g} meV between {p.path} = {x[i]:.6g} and "
+                       f"{x[i + 1]:.6g}: the label passes to another state there (a resonance "
+                       "appears or leaves); values across it are not one state")
+    return out
+
+
 def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | None = None,
           values2=None, bands=None, sensitivity: str = "grid", jobs=None, dask=None,
           dask_timeout_s=None, progress=None) -> SweepResult:
@@ -1385,6 +1411,8 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
         for msg in pt.notes:
             if msg not in notes:
                 notes.append(msg)
+    if len(ps) == 1:
+        notes += _jump_notes(ps[0], vals[0], st_e, en)
     method = sensitivity
     if sensitivity == "grid" and any(s < 2 for s in shape):
         method = "grid (undefined along an axis with one point)"

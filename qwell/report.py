@@ -1187,7 +1187,9 @@ def state_blocks(data: ReportData) -> list:
         "relative to the exact confinement energy above the band's lowest edge. Exact: "
         "transfer-matrix solution of the BenDaniel–Duke effective-mass equation [BenDaniel & Duke, "
         "Phys. Rev. 152, 683 (1966)]; semiclassical: WKB quantisation with turning-point, hard-wall "
-        "and step phases [Berry & Mount, Rep. Prog. Phys. 35, 315 (1972)].", size=8, color="0.25"))
+        "and step phases [Berry & Mount, Rep. Prog. Phys. 35, 315 (1972)]. 'validity' is the "
+        "estimator's own figure of merit (largest |d(1/k)/dz| away from turning points, or step "
+        "reflection; 0 where the phase rule is exact, above 0.25 it warns).", size=8, color="0.25"))
     mb = [m for lev in data.exact.levels.values() for m in lev.minibands]
     if mb:
         blocks.append(Table(["band", "miniband", "bottom (eV)", "top (eV)", "width (meV)",

@@ -628,3 +628,15 @@ def test_cli_unreachable_dask(capsys):
     err = _one_line_error(capsys)
     assert "cannot reach the Dask scheduler" in err and "2 s" in err
     assert elapsed < 2 + 8  # stated timeout plus import and start-up time
+
+
+def test_sweep_flags_a_label_that_changes_state():
+    # Under a growing field the detector well's e2 turns into a broad resonance that is no longer
+    # listed, so the label 'e2' passes to the next resonance and e1-e2 jumps (~40 meV in one
+    # step, against a few meV of smooth Stark shift): the sweep must say so (common practice,
+    # no source: a labelled curve is only one state where it is continuous).
+    st = load_stack(LWIR)
+    res = design.sweep(st, "field", np.linspace(0.0, 20.0, 5), ["e1-e2"], jobs=1)
+    assert any("e1-e2 jumps" in n for n in res.notes)
+    smooth = design.sweep(st, "well.thickness", np.linspace(5.0, 7.0, 9), ["e1-e2"], jobs=1)
+    assert not any("jumps" in n for n in smooth.notes)
