@@ -1057,6 +1057,14 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
     evals[0] += 1
     _emit([final], stacklevel=2)
     e = final.transition_energy(transition)
+    if not abs(e - e_target) <= max(1e-6 * abs(e_target), 1e-7):
+        # brentq closed in on a discontinuity, not a root: the label changed state there
+        raise ParameterError(
+            f"target {lam_t:.5g} um falls on a jump of the {transition} curve near "
+            f"{p.describe(value)} ({HC_EV_UM / e:.5g} um there): the label passes to another "
+            "state at that point (a resonance appears or leaves), so no design in "
+            f"{_fmt_range(a, b, p.unit)} hits the target; see 'qwell sweep' over {p.path}")
+    notes += _jump_notes(p, grid, {}, {transition: energies})
     options = []
     if p.kind == "thickness" and p.monolayer_nm:
         q = value / p.monolayer_nm

@@ -640,3 +640,12 @@ def test_sweep_flags_a_label_that_changes_state():
     assert any("e1-e2 jumps" in n for n in res.notes)
     smooth = design.sweep(st, "well.thickness", np.linspace(5.0, 7.0, 9), ["e1-e2"], jobs=1)
     assert not any("jumps" in n for n in smooth.notes)
+
+
+def test_size_refuses_a_target_on_a_label_jump():
+    # A sign change of (E - E_target) across a discontinuity is not a root (intermediate value
+    # theorem needs continuity; common practice, no source): sizing the detector well's e1-e2
+    # to 7.5 um by field lands on the step where the label e2 passes to another resonance.
+    st = load_stack(LWIR)
+    with pytest.raises(ParameterError, match="falls on a jump of the e1-e2 curve"):
+        design.size(st, "field", "7.5 um", "e1-e2", bounds=(0.0, 20.0))
