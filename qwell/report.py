@@ -954,10 +954,10 @@ def diagram_blocks(data: ReportData) -> list:
     else:
         blocks.append(Paragraph("No transition to review: the stack has fewer than two states "
                                 "connected by an optical transition."))
-    n_warn = len(data.profile.warnings) + len(data.warnings)
+    n_warn = len(design_cautions(data))
     if n_warn:
-        blocks.append(Paragraph(f"{n_warn} warning(s) for this design: see the cautions page.",
-                                color="0.25"))
+        blocks.append(Paragraph(f"{n_warn} design-specific caution(s) beyond the general ones: "
+                                "see the cautions page ('For this design').", color="0.25"))
     return blocks
 
 
@@ -1341,11 +1341,8 @@ def sensitivity_blocks(data: ReportData) -> list:
     return blocks
 
 
-def caution_blocks(data: ReportData) -> list:
-    """Page 7: cautions (the fixed :data:`CAUTIONS` and this design's warnings)."""
-    blocks = [Heading("Cautions")]
-    for c in CAUTIONS:
-        blocks.append(Paragraph(c, size=9.5, bullet="•"))
+def design_cautions(data: ReportData) -> list:
+    """The cautions specific to this design (listed under 'For this design')."""
     own = list(data.profile.warnings)
     unconv = [s.label for s in data.exact.states if not s.converged]
     if unconv:
@@ -1364,6 +1361,15 @@ def caution_blocks(data: ReportData) -> list:
             own.append(f"semiclassical estimate flagged unreliable for {n_semi} state(s) "
                        "(tunnel-coupled regions); use the exact energies")
         own += other
+    return own
+
+
+def caution_blocks(data: ReportData) -> list:
+    """Page 7: cautions (the fixed :data:`CAUTIONS` and this design's warnings)."""
+    blocks = [Heading("Cautions")]
+    for c in CAUTIONS:
+        blocks.append(Paragraph(c, size=9.5, bullet="•"))
+    own = design_cautions(data)
     if own:
         blocks.append(Heading("For this design", 11.0))
         for w in own:

@@ -1127,7 +1127,7 @@ def solve_semiclassical(band: Band, *, tolerance_eV: float = 1e-7,
                 t = T * np.sqrt(spacing * spacing2) / (2.0 * np.pi)
                 de = abs(c.energy - c2.energy)
                 if t > MIXING_LIMIT * de:
-                    msgs.append(f"near-resonant with {band.prefix}{jdx + 1} in region {nb} "
+                    msgs.append(f"coupled to {band.prefix}{jdx + 1} in region {nb} "
                                 f"(|dE| = {de * 1e3:.3g} meV, tunnel coupling ~{t * 1e3:.2g} meV):"
                                 " estimate unreliable")
                     bad = True
@@ -1650,7 +1650,7 @@ def _solve_flat(band: Band, plan: _FlatPlan, tol: float, max_states) -> Levels:
                 t = T * math.sqrt(spacing * c2[6]) / (2.0 * math.pi)
                 de = abs(energy - c2[0])
                 if t > MIXING_LIMIT * de:
-                    msgs.append(f"near-resonant with {prefix}{jdx + 1} in region {nb} "
+                    msgs.append(f"coupled to {prefix}{jdx + 1} in region {nb} "
                                 f"(|dE| = {de * 1e3:.3g} meV, tunnel coupling ~{t * 1e3:.2g} meV):"
                                 " estimate unreliable")
                     bad = True
