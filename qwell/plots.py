@@ -44,7 +44,7 @@ def shade_layers(ax, profile, *, label=True, y_text=None):
         for lp in profile.layers:
             width = lp.end_nm - lp.start_nm
             span = profile.total_thickness_nm
-            if width / span < 0.035:
+            if width / span < 0.02:
                 continue
             ax.text(0.5 * (lp.start_nm + lp.end_nm), yt, lp.label, ha="center", va="top",
                     fontsize=7, rotation=90 if width / span < 0.09 else 0, color="0.25")
