@@ -1049,16 +1049,7 @@ def solve_semiclassical(band: Band, *, tolerance_eV: float = 1e-7,
     limit = min(els[0].v_a, els[-1].v_b)      # = band.confinement_limit_eV
     finite_v = [v for e in els for v in (e.v_a, e.v_b) if np.isfinite(v)]
     v_min = min(finite_v)
-    notes = []
-    want = max_states
-    if np.isinf(limit):
-        if want is None:
-            want = 10
-            notes.append("both claddings are hard walls: only the lowest 10 states are listed "
-                         "(use max_states)")
-        e_top = max(finite_v) + 1.0
-    else:
-        e_top = limit
+    want, e_top, notes = _energy_window(limit, max(finite_v), max_states)
     crit_all = sorted(set(v for v in finite_v))
 
     while True:
@@ -1574,19 +1565,25 @@ def _flat_roots_inner(plan, grid, grid_coef, coef, nu, tol, ulp):
     return ga, (row, target, lo_out.tolist(), hi_out.tolist(), sl_out.tolist(), done.tolist())
 
 
+def _energy_window(limit: float, v_max: float, max_states):
+    """(states wanted, top of the search window [eV], notes) for a band.
+
+    With two hard-wall claddings there is no confinement limit: the lowest 10
+    states are listed unless ``max_states`` says otherwise, searched up to
+    1 eV above the highest finite potential.
+    """
+    if not math.isinf(limit):
+        return max_states, limit, []
+    if max_states is not None:
+        return max_states, v_max + 1.0, []
+    return 10, v_max + 1.0, ["both claddings are hard walls: only the lowest 10 states are listed "
+                             "(use max_states)"]
+
+
 def _solve_flat(band: Band, plan: _FlatPlan, tol: float, max_states) -> Levels:
     """solve_semiclassical for an all-flat band (closed-form G, see _FlatPlan)."""
     limit = plan.limit
-    notes = []
-    want = max_states
-    if math.isinf(limit):
-        if want is None:
-            want = 10
-            notes.append("both claddings are hard walls: only the lowest 10 states are listed "
-                         "(use max_states)")
-        e_top = plan.v_max + 1.0
-    else:
-        e_top = limit
+    want, e_top, notes = _energy_window(limit, plan.v_max, max_states)
     while True:
         cands, drops = _flat_scan(plan, plan.pack(e_top), tol)
         if not math.isinf(limit) or len(cands) >= want:
