@@ -1105,23 +1105,12 @@ def solve_semiclassical(band: Band, *, tolerance_eV: float = 1e-7,
             nspan = _region_span(band, els, regs[nb], c.energy)
             lo, hi = (nspan[1], span[0]) if nb < c.region else (span[1], nspan[0])
             T = _barrier_factor(band, els, lo, hi, c.energy)
-            if T > TUNNEL_FACTOR_LIMIT:
-                msgs.append(f"barrier to region {nb} not opaque (tunnelling factor {T:.2g}): "
-                            "regions coupled, estimate unreliable")
+            others = [(jdx, c2.energy, info[2], info[3])
+                      for jdx, (c2, info) in enumerate(zip(cands, infos)) if jdx != idx]
+            found = _coupling_messages(band.prefix, nb, T, spacing, c.energy, nspan, others)
+            if found:
+                msgs += found
                 bad = True
-            # levels of the neighbour region close in energy
-            for jdx, (c2, (_r2, _g2, spacing2, span2, _s2)) in enumerate(zip(cands, infos)):
-                if jdx == idx:
-                    continue
-                if span2[1] <= nspan[0] or span2[0] >= nspan[1]:
-                    continue
-                t = T * np.sqrt(spacing * spacing2) / (2.0 * np.pi)
-                de = abs(c.energy - c2.energy)
-                if t > MIXING_LIMIT * de:
-                    msgs.append(f"coupled to {band.prefix}{jdx + 1} in region {nb} "
-                                f"(|dE| = {de * 1e3:.3g} meV, tunnel coupling ~{t * 1e3:.2g} meV):"
-                                " estimate unreliable")
-                    bad = True
         label = f"{band.prefix}{idx + 1}"
         conv = c.converged and c.width <= tolerance_eV * (1 + 1e-9)
         all_converged = all_converged and conv
@@ -1565,6 +1554,31 @@ def _flat_roots_inner(plan, grid, grid_coef, coef, nu, tol, ulp):
     return ga, (row, target, lo_out.tolist(), hi_out.tolist(), sl_out.tolist(), done.tolist())
 
 
+def _coupling_messages(prefix, nb, T, spacing, energy, nspan, others) -> list:
+    """Why a state's estimate is unreliable because of region ``nb`` (empty: it is not).
+
+    ``T`` is the barrier's tunnelling factor exp(-int kappa dz); ``others``
+    holds (index, energy, level spacing, allowed span) of the other
+    candidates.  A level of the neighbour region is coupled when the
+    Landau–Lifshitz splitting estimate T sqrt(s1 s2)/(2 pi) exceeds
+    MIXING_LIMIT times the energy difference.
+    """
+    msgs = []
+    if T > TUNNEL_FACTOR_LIMIT:
+        msgs.append(f"barrier to region {nb} not opaque (tunnelling factor {T:.2g}): "
+                    "regions coupled, estimate unreliable")
+    for jdx, e2, spacing2, span2 in others:
+        if span2[1] <= nspan[0] or span2[0] >= nspan[1]:
+            continue
+        t = T * math.sqrt(spacing * spacing2) / (2.0 * math.pi)
+        de = abs(energy - e2)
+        if t > MIXING_LIMIT * de:
+            msgs.append(f"coupled to {prefix}{jdx + 1} in region {nb} "
+                        f"(|dE| = {de * 1e3:.3g} meV, tunnel coupling ~{t * 1e3:.2g} meV):"
+                        " estimate unreliable")
+    return msgs
+
+
 def _energy_window(limit: float, v_max: float, max_states):
     """(states wanted, top of the search window [eV], notes) for a band.
 
@@ -1635,22 +1649,12 @@ def _solve_flat(band: Band, plan: _FlatPlan, tol: float, max_states) -> Levels:
                     break
                 total += plan.k(jb, energy, -1.0) * plan.thick[jb]
             T = math.exp(-total)
-            if T > TUNNEL_FACTOR_LIMIT:
-                msgs.append(f"barrier to region {nb} not opaque (tunnelling factor {T:.2g}): "
-                            "regions coupled, estimate unreliable")
+            others = [(jdx, c2[0], c2[6], info[2])
+                      for jdx, (c2, info) in enumerate(zip(cands, infos)) if jdx != idx]
+            found = _coupling_messages(prefix, nb, T, spacing, energy, nspan, others)
+            if found:
+                msgs += found
                 bad = True
-            for jdx, (c2, (_r2, _g2, span2)) in enumerate(zip(cands, infos)):
-                if jdx == idx:
-                    continue
-                if span2[1] <= nspan[0] or span2[0] >= nspan[1]:
-                    continue
-                t = T * math.sqrt(spacing * c2[6]) / (2.0 * math.pi)
-                de = abs(energy - c2[0])
-                if t > MIXING_LIMIT * de:
-                    msgs.append(f"coupled to {prefix}{jdx + 1} in region {nb} "
-                                f"(|dE| = {de * 1e3:.3g} meV, tunnel coupling ~{t * 1e3:.2g} meV):"
-                                " estimate unreliable")
-                    bad = True
         label = f"{prefix}{idx + 1}"
         conv = converged and width <= tol * (1 + 1e-9)
         all_converged = all_converged and conv
