@@ -1186,6 +1186,39 @@ def _plain_copy(value, _depth: int = 0):
 
 
 # -- public entry points ---------------------------------------------------------
+def layer_fields(stack: Stack, entry: Mapping, path: str = "layer") -> dict:
+    """Check one written (non-repeat) layer entry as the loader does and build its fields.
+
+    The entry is validated in the context of ``stack`` (its temperature and
+    user materials) by the same code that loads a file, so a caller that
+    changes one layer of :attr:`Stack.raw` can rebuild only that layer.
+
+    Parameters
+    ----------
+    stack : Stack
+    entry : Mapping
+        A layer mapping as written, e.g. ``{'material': 'GaAs', 'thickness': '5 nm'}``.
+    path : str
+        Key path used in error messages (e.g. ``'layers[2]'``).
+
+    Returns
+    -------
+    dict
+        Keyword arguments of :class:`Layer` without its position (``index``,
+        ``label``, ``repeat_block``, ``period``); ``line`` is None.
+
+    Raises
+    ------
+    StackError
+        Whatever the loader would refuse in this entry.
+    """
+    builder = _Builder(entry, {}, stack.path)
+    builder.temperature_K = stack.temperature_K
+    builder.user_materials = dict(stack.user_materials)
+    builder.user_keys = dict(_materials_api().USER_KEYS)
+    return builder.parse_layer(entry, path, {})
+
+
 def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
     """Build a :class:`Stack` from an already parsed mapping (no line numbers).
 
