@@ -1,0 +1,53 @@
+"""Design workflows: parameters by path, sizing, sweeps, growth tolerances and sensitivities.
+
+One topic per module:
+
+* :mod:`qwell.stack_edit` (re-exported here): design parameters by path
+  (``well.thickness``, ``barrier.x``, ``field``, ``temperature``) and the one
+  writer of them, :func:`apply_parameters`;
+* :mod:`qwell.formula` (re-exported): :func:`format_formula`, writing alloy
+  formulas from compositions;
+* :mod:`.evaluate`: :class:`DesignPoint`, :func:`design_point` and
+  :func:`evaluate_many`, the one evaluation engine (locally or on Dask);
+* :mod:`.sizing`: :func:`size` (a parameter value for a target wavelength);
+* :mod:`.sweep`: :func:`sweep` (1-D and 2-D grids);
+* :mod:`.tolerance`: :func:`tolerance` (worst case, corners, RSS, Monte
+  Carlo).
+
+Wavelength sensitivities are given in engineering units: nm of wavelength
+per monolayer (thickness; per nm when the layer has no lattice constant), per
+0.01 of composition, per kV/cm and per K.
+"""
+
+from __future__ import annotations
+
+from ..formula import format_formula
+from ..stack_edit import KINDS, Parameter, apply_parameters, get_parameter, parameters
+from .evaluate import DesignPoint, bands_for_transitions, design_point, evaluate_many
+from .sizing import MonolayerOption, SizeResult, size
+from .sweep import SweepResult, sweep
+from .tolerance import (Contribution, MonteCarloSummary, ToleranceResult, parse_parameter_value,
+                        tolerance)
+
+__all__ = [
+    "Parameter",
+    "DesignPoint",
+    "SizeResult",
+    "MonolayerOption",
+    "SweepResult",
+    "Contribution",
+    "MonteCarloSummary",
+    "ToleranceResult",
+    "parameters",
+    "get_parameter",
+    "apply_parameters",
+    "format_formula",
+    "design_point",
+    "evaluate_many",
+    "bands_for_transitions",
+    "size",
+    "sweep",
+    "tolerance",
+    "parse_parameter_value",
+    "KINDS",
+]

@@ -1,0 +1,299 @@
+"""The one evaluation engine of the design workflows: a design -> its states and transitions.
+
+Every evaluation of a design goes through :func:`design_point`: the
+parameters are written into the stack with
+:func:`qwell.stack_edit.apply_parameters` (a copy of :attr:`Stack.raw`,
+validated again by the loader's code) and the result is solved with the exact
+method.  :func:`evaluate_many` runs many designs serially, on local worker
+processes or on a Dask cluster; sizing, sweeps, tolerances, sensitivities and
+Monte Carlo runs all use it, so a sweep point is the single-design solve at
+that value, bit for bit.
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+import re
+import warnings
+from dataclasses import dataclass, field
+from functools import partial
+from typing import Mapping
+
+import numpy as np
+
+from .. import parallel
+from ..bands import BAND_NAMES
+from ..errors import ParameterError, QwellError, QwellWarning
+from ..levels import solve_profile, stack_profile
+from ..stack import stack_from_mapping
+from ..stack_edit import Parameter, apply_parameters
+
+__all__ = ["DesignPoint", "design_point", "evaluate_many", "bands_for_transitions"]
+
+#: Exact-solver energy tolerance of a design evaluation [eV] (that of levels.solve_profile).
+DEFAULT_TOLERANCE_EV = 1e-7
+
+_BAND_OF_PREFIX = {"e": "conduction", "hh": "heavy_hole", "lh": "light_hole"}
+LABEL_RE = re.compile(r"^(e|hh|lh)(\d+)$")
+
+
+@dataclass(frozen=True)
+class DesignPoint:
+    """States and transitions of one design (exact solver).
+
+    Attributes
+    ----------
+    values : tuple of (path, value)
+        The parameters applied (internal units).
+    states : tuple of (label, energy_eV, bound)
+        Every state of the solved bands; band-diagram energies [eV].
+    transitions : tuple of (name, energy_eV, wavelength_um)
+        Every transition of the solution.
+    notes : tuple of str
+        Warnings raised while solving (re-emitted by the caller).
+    warning_categories : tuple
+        The qwell warning class of each note (None for other warnings).
+    error : str or None
+        Why the design could not be built or solved, when the evaluation was
+        asked to record errors instead of raising them (then ``states`` and
+        ``transitions`` are empty).
+    """
+
+    values: tuple
+    states: tuple
+    transitions: tuple
+    notes: tuple = ()
+    warning_categories: tuple = field(default=(), repr=False)
+    error: str | None = None
+
+    def state_energy(self, label: str) -> float:
+        """Energy of a state [eV], NaN if the design has no such state."""
+        for lab, e, _ in self.states:
+            if lab == label:
+                return e
+        return math.nan
+
+    def transition_energy(self, name: str) -> float:
+        """Transition energy [eV], NaN if absent."""
+        for n, e, _ in self.transitions:
+            if n == name:
+                return e
+        return math.nan
+
+    def wavelength(self, name: str) -> float:
+        """Transition wavelength [um], NaN if absent."""
+        for n, _, lam in self.transitions:
+            if n == name:
+                return lam
+        return math.nan
+
+    @property
+    def transition_names(self) -> tuple:
+        return tuple(t[0] for t in self.transitions)
+
+
+def bands_for_transitions(transitions, extra=()) -> tuple:
+    """Bands to solve for these transition names (conduction always included).
+
+    Raises
+    ------
+    ParameterError
+        A name not of the form ``e1-e2`` / ``e1-hh1`` / ``e1-lh1``.
+    """
+    need = {"conduction"}
+    for name in transitions or ():
+        parts = str(name).split("-")
+        if len(parts) != 2 or not all(LABEL_RE.match(p) for p in parts):
+            raise ParameterError(f"transition {name!r}: expected two state labels such as "
+                                 "e1-e2, e1-hh1 or e1-lh1")
+        for p in parts:
+            need.add(_BAND_OF_PREFIX[LABEL_RE.match(p).group(1)])
+    for b in extra or ():
+        if b not in BAND_NAMES:
+            raise ParameterError(f"unknown band {b!r}; expected one of: " + ", ".join(BAND_NAMES))
+        need.add(b)
+    return tuple(b for b in BAND_NAMES if b in need)
+
+
+def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV):
+    """Solve one design; with ``needed`` state labels, skip the resonance search when
+    every needed state is truly bound (quasi-bound states lie above all bound ones,
+    so the bound labels do not change) and fall back to the full solve otherwise."""
+    prof = stack_profile(stack)
+    sol = None
+    if needed:
+        sol = solve_profile(prof, bands=bands, method="exact", transitions=True,
+                            wavefunctions=wavefunctions, quasi_bound=False,
+                            tolerance_eV=tolerance_eV)
+        have = {s.label for s in sol.states}
+        if not set(needed) <= have:
+            sol = None
+    if sol is None:
+        sol = solve_profile(prof, bands=bands, method="exact", transitions=True,
+                            wavefunctions=wavefunctions, tolerance_eV=tolerance_eV)
+    states = tuple((s.label, float(s.energy_eV), bool(s.bound)) for s in sol.states)
+    trans = tuple((t.name, float(t.energy_eV), float(t.wavelength_um)) for t in sol.transitions)
+    return states, trans
+
+
+def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("conduction",),
+                 wavefunctions: bool = False, needed=None,
+                 tolerance_eV: float = DEFAULT_TOLERANCE_EV,
+                 record_errors: bool = False) -> DesignPoint:
+    """Solve one design: ``stack`` with ``values`` applied (see :func:`apply_parameters`).
+
+    This is the single evaluation used by every workflow here.  The stack is
+    always rebuilt from its mapping (also for no values), so a point computed
+    on a worker process from the same mapping is identical.
+
+    Parameters
+    ----------
+    stack : Stack
+    values : Mapping[str, float], optional
+        Parameter path -> value in internal units.
+    bands : sequence of str
+        Bands to solve (exact method); transitions are those of the solution.
+    wavefunctions : bool
+        Compute wavefunctions (and with them dipoles); energies do not depend
+        on it.
+    needed : sequence of str, optional
+        State labels the caller needs (e.g. ``("e1", "hh1")``); when all are
+        bound, quasi-bound resonances are not searched (faster; the other
+        results are unchanged).
+    tolerance_eV : float
+        Energy tolerance of each state [eV].
+    record_errors : bool
+        Return a point with :attr:`DesignPoint.error` set instead of raising
+        when the design cannot be built or solved (a :class:`QwellError`).
+
+    Examples
+    --------
+    >>> from qwell.stack import load_stack
+    >>> point = design_point(load_stack("layers/lwir-detector.yaml"), {"well.thickness": 5.5})
+    >>> round(point.wavelength("e1-e2"), 2)  # doctest: +SKIP
+    """
+    values = dict(values or {})
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            s = apply_parameters(stack, values)
+            states, trans = _solve_design(s, tuple(bands), wavefunctions,
+                                          tuple(needed) if needed else None, tolerance_eV)
+            error = None
+        except QwellError as exc:
+            if not record_errors:
+                raise
+            states, trans, error = (), (), str(exc)
+    notes, cats = [], []
+    for w in caught:
+        msg = str(w.message)
+        if msg not in notes:
+            notes.append(msg)
+            cats.append(w.category if issubclass(w.category, QwellWarning) else None)
+    return DesignPoint(values=tuple(values.items()), states=states, transitions=trans,
+                       notes=tuple(notes), warning_categories=tuple(cats), error=error)
+
+
+_BASE_CACHE: dict = {}
+
+
+def _eval_chunk(payload, items):
+    """Worker: evaluate a chunk of parameter dicts on the stack rebuilt from its mapping."""
+    raw, file, options = payload
+    key = (id(raw), file)
+    base = _BASE_CACHE.get(key)
+    if base is None or base[0] is not raw:
+        _BASE_CACHE.clear()
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            _BASE_CACHE[key] = (raw, stack_from_mapping(raw, file=file))
+        base = _BASE_CACHE[key]
+    stack = base[1]
+    return [design_point(stack, values, **dict(options)) for values in items]
+
+
+def emit_warnings(points, stacklevel=3):
+    """Re-emit the qwell warnings recorded in ``points``, once each."""
+    seen = set()
+    for p in points:
+        for msg, cat in zip(p.notes, p.warning_categories):
+            if cat is not None and msg not in seen:
+                seen.add(msg)
+                warnings.warn(msg, cat, stacklevel=stacklevel)
+
+
+def evaluate_many(stack, value_sets, *, bands=("conduction",), wavefunctions: bool = False,
+                  jobs=None, dask=None, dask_timeout_s: float | None = None,
+                  progress: bool | None = None, label: str = "", needed=None,
+                  tolerance_eV: float = DEFAULT_TOLERANCE_EV,
+                  record_errors: bool = False) -> list:
+    """:func:`design_point` for many parameter sets, in parallel where it pays.
+
+    Parameters
+    ----------
+    value_sets : sequence of Mapping
+        Parameter dicts (internal units).
+    bands, wavefunctions, needed, tolerance_eV, record_errors
+        See :func:`design_point`.
+    jobs, dask, dask_timeout_s, progress
+        See :func:`qwell.parallel.map_chunked`.
+
+    Returns
+    -------
+    list of DesignPoint
+        In input order; identical whether run serially, on local processes
+        or on a Dask cluster.  qwell warnings raised while solving are
+        re-emitted once each.
+    """
+    raw = copy.deepcopy(dict(stack.raw))
+    options = (("bands", tuple(bands)), ("wavefunctions", bool(wavefunctions)),
+               ("needed", tuple(needed) if needed else None),
+               ("tolerance_eV", float(tolerance_eV)), ("record_errors", bool(record_errors)))
+    fn = partial(_eval_chunk, (raw, stack.path, options))
+    kw = {}
+    if dask_timeout_s is not None:
+        kw["dask_timeout_s"] = dask_timeout_s
+    points = parallel.map_chunked(fn, [dict(v) for v in value_sets], jobs=jobs, dask=dask,
+                                  progress=progress, label=label, **kw)
+    emit_warnings(points)
+    return points
+
+
+# ---------------------------------------------------------------------------
+# helpers shared by the workflows
+# ---------------------------------------------------------------------------
+def check_transitions(point: DesignPoint, names, where: str):
+    """Raise ParameterError naming the available transitions if one of ``names`` is missing."""
+    have = point.transition_names
+    for n in names:
+        if n not in have:
+            raise ParameterError(f"transition {n!r} does not exist at {where}; available there: "
+                                 + (", ".join(have) or "none"))
+
+
+def jump_notes(p: Parameter, values, state_energy, transition_energy,
+               factor: float = 8.0) -> list:
+    """Flag steps where a labelled state's energy jumps instead of moving smoothly.
+
+    States are labelled by energy order among those found at each point; when
+    a resonance appears or leaves (strong field, a state crossing the barrier
+    edge) the label passes to another state and the curve jumps.  A step is
+    flagged when it is ``factor`` times the median step of that curve (and
+    above 1 meV).  Values across a flagged step belong to different states.
+    """
+    x = np.asarray(values, dtype=float)
+    out = []
+    series = list(state_energy.items()) + list(transition_energy.items())
+    for name, e in series:
+        e = np.asarray(e, dtype=float)
+        d = np.abs(np.diff(e))
+        ok = np.isfinite(d)
+        if ok.sum() < 3:
+            continue
+        med = float(np.median(d[ok]))
+        for i in np.nonzero(ok & (d > max(factor * med, 1e-3)))[0][:3]:
+            out.append(f"{name} jumps by {1e3 * d[i]:.3g} meV between {p.path} = {x[i]:.6g} and "
+                       f"{x[i + 1]:.6g}: the label passes to another state there (a resonance "
+                       "appears or leaves); values across it are not one state")
+    return out

@@ -1,0 +1,400 @@
+"""Growth tolerances: one-at-a-time shifts, worst case, corners and Monte Carlo.
+
+Each parameter is moved by ± its tolerance alone; :func:`tolerance` sums the
+wavelength shifts of one transition into a linear worst case, builds the two
+corner designs and the root-sum-square, and optionally runs a Monte Carlo
+over all parameters together.  Every design goes through
+:func:`qwell.design.evaluate.evaluate_many`.
+
+Wavelength sensitivities are given in engineering units: nm of wavelength
+per monolayer (thickness; per nm when the layer has no lattice constant), per
+0.01 of composition, per kV/cm and per K.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Mapping
+
+import numpy as np
+
+from ..errors import ParameterError, UnitError
+from ..stack_edit import Parameter, get_parameter, parameters
+from ..units import parse_quantity, thickness_nm, to_float
+from .evaluate import (bands_for_transitions, check_transitions, design_point, emit_warnings,
+                       evaluate_many)
+
+__all__ = ["Contribution", "MonteCarloSummary", "ToleranceResult", "parse_parameter_value",
+           "tolerance"]
+
+
+@dataclass(frozen=True)
+class Contribution:
+    """One parameter's share of the wavelength spread (one at a time, ±delta).
+
+    Attributes
+    ----------
+    parameter : str
+    unit : str
+    value : float
+        Nominal value.
+    delta : float
+        Tolerance in ``unit`` (±).
+    spec : str
+        The tolerance as given, e.g. ``'1 ML'``.
+    wavelength_plus_um, wavelength_minus_um : float
+        Wavelength at value + delta and value - delta [um].
+    contribution_nm : float
+        ``(λ+ - λ-)/2`` [nm], the signed linear contribution.
+    """
+
+    parameter: str
+    unit: str
+    value: float
+    delta: float
+    spec: str
+    wavelength_plus_um: float
+    wavelength_minus_um: float
+    contribution_nm: float
+
+
+@dataclass(frozen=True)
+class MonteCarloSummary:
+    """Statistics of the wavelength over random designs.
+
+    Attributes
+    ----------
+    samples : int
+        Designs drawn.
+    valid : int
+        Designs in which the transition exists (the statistics use these).
+    distribution : {'normal', 'uniform'}
+        'normal': each parameter Gaussian with the tolerance as 1 sigma;
+        'uniform': uniform on [-tolerance, +tolerance].
+    seed : int or None
+    mean_um, std_nm : float
+        Mean wavelength [um] and its standard deviation (ddof=1) [nm].
+    percentiles_um : Mapping[int, float]
+        5th, 50th and 95th percentiles [um].
+    clipped : int
+        Samples where a value was clipped to its valid range.
+    """
+
+    samples: int
+    valid: int
+    distribution: str
+    seed: int | None
+    mean_um: float
+    std_nm: float
+    percentiles_um: Mapping
+    clipped: int = 0
+
+
+@dataclass(frozen=True)
+class ToleranceResult:
+    """Result of :func:`tolerance`.
+
+    Attributes
+    ----------
+    transition : str
+    nominal_energy_eV, nominal_wavelength_um : float
+    contributions : tuple of Contribution
+    worst_case_nm : float
+        Sum of |contribution| [nm] (linear worst case).
+    corner_min_um, corner_max_um : float
+        Wavelengths of the actual corner designs: every parameter at the end
+        of its range that lowers (raises) the wavelength [um].
+    rss_nm : float
+        Root-sum-square of the contributions [nm].
+    monte_carlo : MonteCarloSummary or None
+    notes : tuple of str
+    """
+
+    transition: str
+    nominal_energy_eV: float
+    nominal_wavelength_um: float
+    contributions: tuple
+    worst_case_nm: float
+    corner_min_um: float
+    corner_max_um: float
+    rss_nm: float
+    monte_carlo: MonteCarloSummary | None = None
+    notes: tuple = ()
+
+    def to_json(self) -> dict:
+        def f(v):
+            return None if v is None or not math.isfinite(v) else float(v)
+        mc = None
+        if self.monte_carlo is not None:
+            m = self.monte_carlo
+            mc = {"samples": m.samples, "valid": m.valid, "distribution": m.distribution,
+                  "sigma": ("tolerance = 1 sigma" if m.distribution == "normal"
+                            else "uniform on ±tolerance"),
+                  "seed": m.seed, "mean_um": f(m.mean_um), "std_nm": f(m.std_nm),
+                  "percentiles_um": {str(k): f(v) for k, v in m.percentiles_um.items()},
+                  "clipped": m.clipped}
+        return {
+            "transition": self.transition,
+            "nominal": {"energy_eV": f(self.nominal_energy_eV),
+                        "wavelength_um": f(self.nominal_wavelength_um)},
+            "contributions": [{"parameter": c.parameter, "unit": c.unit, "value": c.value,
+                               "delta": c.delta, "spec": c.spec,
+                               "wavelength_plus_um": f(c.wavelength_plus_um),
+                               "wavelength_minus_um": f(c.wavelength_minus_um),
+                               "contribution_nm": f(c.contribution_nm)}
+                              for c in self.contributions],
+            "worst_case": {"sum_nm": f(self.worst_case_nm), "corner_min_um": f(self.corner_min_um),
+                           "corner_max_um": f(self.corner_max_um)},
+            "rss_nm": f(self.rss_nm),
+            "monte_carlo": mc,
+            "notes": list(self.notes),
+        }
+
+
+def parse_parameter_value(p: Parameter, value, *, delta: bool = False) -> float:
+    """A value (or tolerance) for ``p`` from text with units, a number or a Quantity.
+
+    Thickness: a length or monolayers (``'1 ML'`` uses the layer's a/2), or
+    with ``delta=True`` a percentage of the thickness (``'2 %'``); numbers
+    are nm.  Composition: a plain number (``'0.01'``).  Field: kV/cm;
+    temperature: K (numbers are taken in these units only for composition).
+
+    Raises
+    ------
+    UnitError, ParameterError
+    """
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return float(value)
+    text = value.strip() if isinstance(value, str) else value
+    if p.kind == "thickness":
+        if delta and isinstance(text, str) and text.endswith("%"):
+            try:
+                return float(text[:-1]) / 100.0 * p.value
+            except ValueError:
+                raise UnitError(f"{value!r}: expected a percentage such as '2 %'") from None
+        return thickness_nm(text, p.monolayer_nm)
+    if p.kind in ("x", "y"):
+        try:
+            return float(text)
+        except (TypeError, ValueError):
+            pass
+        try:
+            q = parse_quantity(text)
+            return float(q.to("dimensionless").magnitude)
+        except Exception:
+            raise UnitError(f"{value!r}: expected a composition fraction such as 0.3") from None
+    if p.kind == "field":
+        return to_float(text, "kV/cm")
+    return to_float(text, "K")
+
+
+def _tolerance_items(stack, params, thickness_tol, composition_tol, extra):
+    """[(Parameter, delta, spec text)] and notes."""
+    notes = []
+    items: dict = {}
+    layer_keys = [p.layer for p in params.values() if p.kind == "thickness"]
+
+    def check_keys(mapping, what):
+        for k in mapping:
+            if k != "*" and k not in layer_keys:
+                raise ParameterError(f"{what} tolerance for unknown layer {k!r}; layers: "
+                                     + ", ".join(layer_keys))
+
+    if thickness_tol is None:
+        thickness_tol = {}
+    elif not isinstance(thickness_tol, Mapping):
+        thickness_tol = {"*": thickness_tol}
+    if composition_tol is None:
+        composition_tol = {}
+    elif not isinstance(composition_tol, Mapping):
+        composition_tol = {"*": composition_tol}
+    check_keys(thickness_tol, "thickness")
+    check_keys(composition_tol, "composition")
+    for key in layer_keys:
+        p = params[f"{key}.thickness"]
+        spec = thickness_tol.get(key, thickness_tol.get("*"))
+        if spec is not None:
+            try:
+                d = _half_width(p, spec)
+            except UnitError as exc:
+                if key not in thickness_tol and p.monolayer_nm is None:
+                    notes.append(f"{key}: no lattice constant, thickness tolerance {spec!r} "
+                                 "skipped")
+                    d = None
+                else:
+                    raise ParameterError(f"{p.path} tolerance: {exc}") from None
+            if d is not None:
+                items[p.path] = (p, d, str(spec))
+        for k in ("x", "y"):
+            pc = params.get(f"{key}.{k}")
+            if pc is None:
+                continue
+            spec = composition_tol.get(key, composition_tol.get("*"))
+            if spec is not None:
+                items[pc.path] = (pc, _half_width(pc, spec), str(spec))
+    for path, spec in dict(extra or {}).items():
+        p = get_parameter(stack, path)
+        items[p.path] = (p, _half_width(p, spec), str(spec))
+    out = []
+    for p, d, spec in items.values():
+        if d == 0:
+            continue
+        if not math.isfinite(d):
+            raise ParameterError(f"{p.path}: tolerance {spec!r} is not finite")
+        out.append((p, d, spec))
+    return out, notes
+
+
+def _half_width(p: Parameter, spec) -> float:
+    """A tolerance as a half-width >= 0 in the parameter's unit; negative -> ParameterError."""
+    d = parse_parameter_value(p, spec, delta=True)
+    if d < 0:
+        raise ParameterError(f"{p.path}: tolerance {spec!r} is negative; expected a half-width "
+                             ">= 0 (the spread is ± that value)")
+    return d
+
+
+def _clip_to_valid(p: Parameter, v: float) -> float:
+    lo, hi = p.limits
+    if p.kind in ("thickness", "temperature"):
+        lo = 1e-6 * max(p.value, 1.0)
+    if p.kind in ("x", "y"):
+        hi = p.composition_max
+    return min(max(v, lo), hi)
+
+
+def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_tol=0.01,
+              extra=None, *, monte_carlo: int = 0, seed=None, distribution: str = "normal",
+              bands=None, jobs=None, dask=None, dask_timeout_s=None,
+              progress=None) -> ToleranceResult:
+    """Wavelength spread of ``transition`` from growth tolerances.
+
+    Each parameter is moved by ±tolerance one at a time (signed contribution
+    ``(λ+ - λ-)/2``); all together give the linear worst case (sum of
+    |contributions|), the two actual corner designs, and the root-sum-square.
+    A repeated layer is varied in all its periods together (a systematic
+    growth error).  With ``monte_carlo=N`` every parameter is drawn
+    independently (Gaussian with the tolerance as 1 sigma, or uniform on
+    ±tolerance) and the wavelength statistics are reported; values crossing
+    their valid range (thickness <= 0, composition outside [0, 1]) are
+    clipped and counted.
+
+    Parameters
+    ----------
+    transition : str
+    thickness_tol : str, float or Mapping, optional
+        Layer name (or ``'*'`` for every layer) -> tolerance: ``'1 ML'``,
+        ``'0.3 nm'``, ``'2 %'`` or a number in nm.  Default ``{'*': '1 ML'}``.
+        Layers without a lattice constant skip a monolayer tolerance given
+        through ``'*'`` (noted).
+    composition_tol : float or Mapping
+        Absolute tolerance of every composition fraction (x and y), or
+        layer -> tolerance.  Layers without a composition are skipped.
+    extra : Mapping, optional
+        Further parameters: path -> tolerance (e.g. ``{'field': '2 kV/cm'}``).
+    monte_carlo : int
+        Number of random designs (0: none).
+    seed : int, optional
+        Seed of :func:`numpy.random.default_rng` (reproducible samples).
+    distribution : {'normal', 'uniform'}
+
+    Raises
+    ------
+    ParameterError
+        Transition missing in the nominal design, unknown layers or paths,
+        a ±tolerance design outside the valid range (named).
+    """
+    if thickness_tol is None:
+        thickness_tol = {"*": "1 ML"}
+    if distribution not in ("normal", "uniform"):
+        raise ParameterError(f"distribution {distribution!r}: expected 'normal' or 'uniform'")
+    n_mc = int(monte_carlo or 0)
+    if n_mc < 0:
+        raise ParameterError(f"monte_carlo = {monte_carlo!r}: expected a count >= 0")
+    bands = bands_for_transitions([transition], bands)
+    params = parameters(stack)
+    nominal = design_point(stack, {}, bands=bands)
+    check_transitions(nominal, [transition], "the nominal design")
+    emit_warnings([nominal], stacklevel=2)
+    items, notes = _tolerance_items(stack, params, thickness_tol, composition_tol, extra)
+    lam0 = nominal.wavelength(transition)
+
+    sets = []
+    for p, d, _ in items:
+        for s in (+1, -1):
+            v = p.value + s * d
+            try:
+                p.check(v)
+            except ParameterError as exc:
+                raise ParameterError(f"tolerance ±{d:.6g} {p.unit} on {p.path} "
+                                     f"(nominal {p.value:.6g}) leaves the valid range: {exc}"
+                                     ) from None
+            sets.append({p.path: v})
+    needed = tuple(transition.split("-"))
+    pm = evaluate_many(stack, sets, bands=bands, jobs=jobs, dask=dask,
+                       dask_timeout_s=dask_timeout_s, progress=progress, label="tolerance",
+                       needed=needed)
+    contributions = []
+    for k, (p, d, spec) in enumerate(items):
+        lp, lm = pm[2 * k].wavelength(transition), pm[2 * k + 1].wavelength(transition)
+        if not (math.isfinite(lp) and math.isfinite(lm)):
+            notes.append(f"{p.path} ±{d:.4g}: {transition} does not exist at one end")
+        contributions.append(Contribution(parameter=p.path, unit=p.unit, value=p.value, delta=d,
+                                          spec=spec, wavelength_plus_um=lp,
+                                          wavelength_minus_um=lm,
+                                          contribution_nm=0.5 * (lp - lm) * 1e3))
+    c = np.array([x.contribution_nm for x in contributions])
+    worst = float(np.sum(np.abs(c))) if c.size else 0.0
+    rss = float(np.sqrt(np.sum(c ** 2))) if c.size else 0.0
+    up, down = {}, {}
+    for (p, d, _), ci in zip(items, c):
+        s = 1.0 if not (ci < 0) else -1.0
+        if ci == 0 or not math.isfinite(ci):
+            continue
+        up[p.path] = p.value + s * d
+        down[p.path] = p.value - s * d
+    corners = evaluate_many(stack, [down, up], bands=bands, jobs=1, needed=needed)
+    corner_min, corner_max = corners[0].wavelength(transition), corners[1].wavelength(transition)
+
+    mc = None
+    if n_mc:
+        rng = np.random.default_rng(seed)
+        shape = (n_mc, len(items))
+        z = rng.standard_normal(shape) if distribution == "normal" else rng.uniform(-1, 1, shape)
+        clipped = 0
+        sample_sets = []
+        for i in range(n_mc):
+            d = {}
+            hit = False
+            for k, (p, dk, _) in enumerate(items):
+                v = p.value + dk * z[i, k]
+                cv = _clip_to_valid(p, v)
+                hit = hit or cv != v
+                d[p.path] = cv
+            clipped += hit
+            sample_sets.append(d)
+        pts = evaluate_many(stack, sample_sets, bands=bands, jobs=jobs, dask=dask,
+                            dask_timeout_s=dask_timeout_s, progress=progress,
+                            label="Monte Carlo", needed=needed)
+        lam = np.array([pt.wavelength(transition) for pt in pts])
+        ok = lam[np.isfinite(lam)]
+        if ok.size < lam.size:
+            notes.append(f"Monte Carlo: {transition} missing in {lam.size - ok.size} of "
+                         f"{lam.size} designs (left out of the statistics)")
+        if clipped:
+            notes.append(f"Monte Carlo: {clipped} of {n_mc} designs had a value clipped to its "
+                         "valid range")
+        pct = np.percentile(ok, [5, 50, 95]) if ok.size else [math.nan] * 3
+        mc = MonteCarloSummary(samples=n_mc, valid=int(ok.size), distribution=distribution,
+                               seed=seed, mean_um=float(np.mean(ok)) if ok.size else math.nan,
+                               std_nm=float(np.std(ok, ddof=1)) * 1e3 if ok.size > 1 else math.nan,
+                               percentiles_um={5: float(pct[0]), 50: float(pct[1]),
+                                               95: float(pct[2])},
+                               clipped=int(clipped))
+    return ToleranceResult(transition=transition,
+                           nominal_energy_eV=nominal.transition_energy(transition),
+                           nominal_wavelength_um=lam0, contributions=tuple(contributions),
+                           worst_case_nm=worst, corner_min_um=corner_min, corner_max_um=corner_max,
+                           rss_nm=rss, monte_carlo=mc, notes=tuple(notes))
+
