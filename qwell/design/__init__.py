@@ -10,9 +10,9 @@ One topic per module:
 * :mod:`.evaluate`: :class:`DesignPoint`, :func:`design_point` and
   :func:`evaluate_many`, the one evaluation engine (locally or on Dask);
 * :mod:`.sizing`: :func:`size` (a parameter value for a target wavelength);
-* :mod:`.sweep`: :func:`sweep` (1-D and 2-D grids);
-* :mod:`.tolerance`: :func:`tolerance` (worst case, corners, RSS, Monte
-  Carlo).
+* :mod:`.sweeps`: :func:`sweep` (1-D and 2-D grids);
+* :mod:`.tolerances`: :func:`tolerance` (worst case, corners, RSS, Monte
+  Carlo) and :func:`sensitivities` (± shifts of several transitions).
 
 Wavelength sensitivities are given in engineering units: nm of wavelength
 per monolayer (thickness; per nm when the layer has no lattice constant), per
@@ -25,9 +25,9 @@ from ..formula import format_formula
 from ..stack_edit import KINDS, Parameter, apply_parameters, get_parameter, parameters
 from .evaluate import DesignPoint, bands_for_transitions, design_point, evaluate_many
 from .sizing import MonolayerOption, SizeResult, size
-from .sweep import SweepResult, sweep
-from .tolerance import (Contribution, MonteCarloSummary, ToleranceResult, parse_parameter_value,
-                        tolerance)
+from .sweeps import SweepResult, sweep
+from .tolerances import (Contribution, MonteCarloSummary, Sensitivity, SensitivityResult,
+                        ToleranceResult, parse_parameter_value, sensitivities, tolerance)
 
 __all__ = [
     "Parameter",
@@ -38,6 +38,8 @@ __all__ = [
     "Contribution",
     "MonteCarloSummary",
     "ToleranceResult",
+    "Sensitivity",
+    "SensitivityResult",
     "parameters",
     "get_parameter",
     "apply_parameters",
@@ -48,6 +50,7 @@ __all__ = [
     "size",
     "sweep",
     "tolerance",
+    "sensitivities",
     "parse_parameter_value",
     "KINDS",
 ]

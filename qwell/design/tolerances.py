@@ -1,10 +1,11 @@
-"""Growth tolerances: one-at-a-time shifts, worst case, corners and Monte Carlo.
+"""Growth tolerances: one-at-a-time shifts, worst case, corners, Monte Carlo, sensitivities.
 
 Each parameter is moved by ± its tolerance alone; :func:`tolerance` sums the
 wavelength shifts of one transition into a linear worst case, builds the two
 corner designs and the root-sum-square, and optionally runs a Monte Carlo
-over all parameters together.  Every design goes through
-:func:`qwell.design.evaluate.evaluate_many`.
+over all parameters together.  :func:`sensitivities` gives the ± shifts of
+several transitions at once (the report's sensitivity page).  Every design
+goes through :func:`qwell.design.evaluate.evaluate_many`.
 
 Wavelength sensitivities are given in engineering units: nm of wavelength
 per monolayer (thickness; per nm when the layer has no lattice constant), per
@@ -14,7 +15,7 @@ per monolayer (thickness; per nm when the layer has no lattice constant), per
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Mapping
 
 import numpy as np
@@ -22,11 +23,11 @@ import numpy as np
 from ..errors import ParameterError, UnitError
 from ..stack_edit import Parameter, get_parameter, parameters
 from ..units import parse_quantity, thickness_nm, to_float
-from .evaluate import (bands_for_transitions, check_transitions, design_point, emit_warnings,
-                       evaluate_many)
+from .evaluate import (DEFAULT_TOLERANCE_EV, DesignPoint, bands_for_transitions,
+                       check_transitions, design_point, emit_warnings, evaluate_many)
 
-__all__ = ["Contribution", "MonteCarloSummary", "ToleranceResult", "parse_parameter_value",
-           "tolerance"]
+__all__ = ["Contribution", "MonteCarloSummary", "ToleranceResult", "Sensitivity",
+           "SensitivityResult", "parse_parameter_value", "tolerance", "sensitivities"]
 
 
 @dataclass(frozen=True)
@@ -398,3 +399,221 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
                            worst_case_nm=worst, corner_min_um=corner_min, corner_max_um=corner_max,
                            rss_nm=rss, monte_carlo=mc, notes=tuple(notes))
 
+
+# ---------------------------------------------------------------------------
+# one-at-a-time sensitivities of several transitions (the report's sensitivity page)
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Sensitivity:
+    """Wavelength shift of one transition when one parameter moves by ± its step.
+
+    Attributes
+    ----------
+    transition : str
+        E.g. ``'e1-e2'``.
+    parameter : str
+        Parameter path, e.g. ``'well.thickness'``.
+    layer : str or None
+        Written layer name (or ``L<n>`` label); None for field or temperature.
+    kind : {'thickness', 'x', 'y', 'field', 'temperature'}
+    family : str or None
+        Alloy family of a composition parameter (``'AlGaAs'``).
+    step : float
+        The step (±) in the parameter's unit (nm, fraction, kV/cm, K).
+    spec : str
+        The step as given, e.g. ``'1 ML'`` or ``'0.01'``.
+    wavelength_minus_um, wavelength_plus_um : float
+        Wavelength at value - step and value + step [um]; NaN where that
+        side lies outside the valid range, failed to build or solve, or the
+        transition does not exist there.
+    minus_nm, plus_nm : float
+        ``1e3 (λ_side - λ_nominal)`` [nm]; NaN as above.
+    per_step_nm : float
+        ``(plus_nm - minus_nm) / 2`` with both sides, ``plus_nm`` or
+        ``-minus_nm`` with one (one-sided), NaN with none [nm per step].
+    note : str
+        Empty, or why a side is missing / the value is one-sided.
+    """
+
+    transition: str
+    parameter: str
+    layer: str | None
+    kind: str
+    family: str | None
+    step: float
+    spec: str
+    wavelength_minus_um: float
+    wavelength_plus_um: float
+    minus_nm: float
+    plus_nm: float
+    per_step_nm: float
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class SensitivityResult:
+    """Result of :func:`sensitivities`.
+
+    Attributes
+    ----------
+    transitions : tuple of str
+    nominal : DesignPoint
+        The unchanged design.
+    nominal_wavelength_um, nominal_energy_eV : Mapping[str, float]
+        Transition -> wavelength [um] / photon energy [eV] of the nominal design.
+    parameters : tuple of Parameter
+        The parameters varied, in stack order.
+    steps : Mapping[str, float]
+        Parameter path -> step (±) in its unit.
+    rows : tuple of Sensitivity
+        Grouped by transition (in the order given), then parameter.
+    notes : tuple of str
+        Parameters skipped, sides that failed to build or solve.
+    """
+
+    transitions: tuple
+    nominal: DesignPoint = field(repr=False)
+    nominal_wavelength_um: Mapping
+    nominal_energy_eV: Mapping
+    parameters: tuple
+    steps: Mapping
+    rows: tuple
+    notes: tuple = ()
+
+    def rows_for(self, transition: str) -> tuple:
+        """The rows of one transition, in parameter order."""
+        return tuple(r for r in self.rows if r.transition == transition)
+
+
+_SIDE = {-1: "−", +1: "+"}
+
+
+def sensitivities(stack, transitions=("e1-e2",), thickness_tol="1 ML", composition_tol=0.01,
+                  extra=None, *, bands=None, tolerance_eV: float = DEFAULT_TOLERANCE_EV,
+                  jobs=None, dask=None, dask_timeout_s=None,
+                  progress=None) -> SensitivityResult:
+    """Wavelength shifts of several transitions, each parameter moved alone by ± its step.
+
+    Every layer thickness (by ``thickness_tol``, default one monolayer) and
+    every composition fraction (by ``composition_tol``, default 0.01) is moved
+    down and up alone; a named layer inside a repeat block changes in every
+    period.  All shifted designs go through one :func:`evaluate_many` call and
+    each gives every requested transition, so N parameters cost 2N solves
+    whatever the number of transitions.  The wavelength is that of the exact
+    solver's transition, ``λ = hc / |E_f - E_i|``.
+
+    Parameters
+    ----------
+    stack : Stack
+    transitions : str or sequence of str
+        E.g. ``('e1-e2', 'e1-hh1')``; each must exist in the nominal design.
+    thickness_tol, composition_tol, extra
+        Steps as in :func:`tolerance` (``'1 ML'``, ``'0.3 nm'``, ``'2 %'``, a
+        number in nm, or layer (``'*'`` for all) -> step; a composition
+        fraction or layer -> fraction; ``extra`` path -> step, e.g.
+        ``{'field': '1 kV/cm'}``).  None or 0: not varied.
+    bands : sequence of str, optional
+        Extra bands to solve (those of the transitions are always solved).
+    tolerance_eV : float
+        Energy tolerance of the exact solver [eV].
+    jobs, dask, dask_timeout_s, progress
+        Parallel execution (see :func:`qwell.parallel.map_chunked`).
+
+    Returns
+    -------
+    SensitivityResult
+        A side outside the valid range is skipped (the row is one-sided); a
+        side that cannot be built or solved is NaN and noted, not raised.
+        Layers without a lattice constant skip a monolayer step given through
+        ``'*'`` (noted).  Quasi-bound resonances are searched only when a
+        needed state is not truly bound (bound energies are the same either
+        way).
+
+    Raises
+    ------
+    ParameterError
+        No transition, a transition missing in the nominal design (the
+        message lists the available ones), unknown layers or paths, a
+        negative step.
+
+    Examples
+    --------
+    >>> from qwell.stack import load_stack
+    >>> res = sensitivities(load_stack("layers/pump-laser-well.yaml"), ("e1-hh1", "e1-lh1"))
+    >>> [r.parameter for r in res.rows_for("e1-hh1")]
+    ['lower_guide.thickness', 'well.thickness', 'well.x', 'upper_guide.thickness']
+    >>> round(res.rows_for("e1-hh1")[1].per_step_nm, 2)  # nm per monolayer of the well
+    1.81
+    """
+    names = [transitions] if isinstance(transitions, str) else list(transitions or ())
+    if not names:
+        raise ParameterError("no transition given; expected names such as e1-e2 or e1-hh1")
+    bands = bands_for_transitions(names, bands)
+    needed = tuple(dict.fromkeys(lab for n in names for lab in n.split("-")))
+    params = parameters(stack)
+    nominal = design_point(stack, {}, bands=bands, needed=needed, tolerance_eV=tolerance_eV)
+    check_transitions(nominal, names, "the nominal design")
+    emit_warnings([nominal], stacklevel=2)
+    items, notes = _tolerance_items(stack, params, thickness_tol, composition_tol, extra)
+    unnamed = [layer.label for layer in stack.layers
+               if layer.name is None and layer.repeat_block is not None]
+    if unnamed:
+        notes.append("unnamed layers inside a repeat block have no parameter path and were not "
+                     "varied: " + ", ".join(unnamed[:8]) + (" …" if len(unnamed) > 8 else ""))
+
+    sets, where = [], {}
+    for k, (p, d, _) in enumerate(items):
+        for s in (-1, +1):
+            v = p.value + s * d
+            try:
+                p.check(v)
+            except ParameterError:
+                continue
+            where[(k, s)] = len(sets)
+            sets.append({p.path: v})
+    points = evaluate_many(stack, sets, bands=bands, jobs=jobs, dask=dask,
+                           dask_timeout_s=dask_timeout_s, progress=progress,
+                           label="sensitivity", needed=needed, tolerance_eV=tolerance_eV,
+                           record_errors=True)
+    for (k, s), i in where.items():
+        if points[i].error is not None:
+            p, _, spec = items[k]
+            notes.append(f"{p.path} {_SIDE[s]}{spec}: {points[i].error}")
+
+    lam0 = {n: nominal.wavelength(n) for n in names}
+    rows = []
+    for n in names:
+        for k, (p, d, spec) in enumerate(items):
+            lam, shift, why = {}, {}, []
+            for s in (-1, +1):
+                i = where.get((k, s))
+                lam[s] = math.nan if i is None else points[i].wavelength(n)
+                shift[s] = 1e3 * (lam[s] - lam0[n])
+                if i is None:
+                    why.append(f"{_SIDE[s]}step outside the valid range")
+                elif points[i].error is not None:
+                    why.append(f"{_SIDE[s]}step failed ({points[i].error})")
+                elif not math.isfinite(lam[s]):
+                    why.append(f"{_SIDE[s]}step: {n} not found (a state left the well)")
+            mi, pl = shift[-1], shift[+1]
+            if math.isfinite(mi) and math.isfinite(pl):
+                per = 0.5 * (pl - mi)
+            elif math.isfinite(pl):
+                per = pl
+                why.append("one-sided (+ step only)")
+            elif math.isfinite(mi):
+                per = -mi
+                why.append("one-sided (− step only)")
+            else:
+                per = math.nan
+            rows.append(Sensitivity(transition=n, parameter=p.path, layer=p.layer, kind=p.kind,
+                                    family=p.family, step=d, spec=spec,
+                                    wavelength_minus_um=lam[-1], wavelength_plus_um=lam[+1],
+                                    minus_nm=mi, plus_nm=pl, per_step_nm=per,
+                                    note="; ".join(why)))
+    return SensitivityResult(transitions=tuple(names), nominal=nominal,
+                             nominal_wavelength_um=lam0,
+                             nominal_energy_eV={n: nominal.transition_energy(n) for n in names},
+                             parameters=tuple(p for p, _, _ in items),
+                             steps={p.path: d for p, d, _ in items}, rows=tuple(rows),
+                             notes=tuple(dict.fromkeys(notes)))
