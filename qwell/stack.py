@@ -404,8 +404,19 @@ def _to_float_str(text: str, unit: str) -> float:
     return to_float(text, unit)
 
 
+# '<decimal> nm' / '<decimal> ML' (no minus, no leading zeros): read without pint, which gives
+# the same float for exactly these forms (checked on random values) at a fraction of the cost.
+_PLAIN_THICKNESS_RE = re.compile(
+    r"^[ \t]*(\+?(?:(?:0|[1-9]\d*)(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?)[ \t]*(nm|ML)[ \t]*$")
+
+
 @lru_cache(maxsize=8192)
 def _thickness_str(text: str, monolayer_nm: float | None) -> float:
+    m = _PLAIN_THICKNESS_RE.match(text)
+    if m and m.group(2) == "nm":
+        return float(m.group(1))
+    if m and monolayer_nm is not None:
+        return float(m.group(1)) * monolayer_nm
     return _thickness_nm(text, monolayer_nm)
 
 
