@@ -30,6 +30,7 @@ from qwell.errors import ParameterError
 from qwell.levels import solve_stack
 from qwell.materials import parse_formula
 from qwell.stack import load_stack, stack_from_mapping, stack_from_text
+from qwell.units import thickness_nm
 
 ROOT = Path(__file__).resolve().parents[1]
 LWIR = ROOT / "layers" / "lwir-detector.yaml"
@@ -216,6 +217,18 @@ def test_applied_stack_is_the_loaded_edited_mapping(source, values):
         assert a == stack_from_mapping(a.raw, file=stack.path)
         for path, x in vals.items():
             assert design.get_parameter(a, path).value == pytest.approx(x, abs=1e-12)
+
+
+@settings(max_examples=200, deadline=None)
+@given(v=st.floats(1e-3, 1e4))
+def test_written_thickness_reads_back_as_pint_reads_it(v):
+    # apply_parameters writes '<repr> nm'; the loader must read it as the same float that
+    # pint (the units library, qwell.units.thickness_nm) reads from that text.
+    stack = box_stack()
+    new = design.apply_parameters(stack, {"well.thickness": v})
+    text = new.raw["layers"][1]["thickness"]
+    assert text == f"{v!r} nm"
+    assert new.layer("well")[0].thickness_nm == thickness_nm(text, None) == v
 
 
 def test_monolayer_thickness_follows_composition():
