@@ -49,7 +49,7 @@ class ReportResult:
     png_path: Path
     pages: int
     elapsed_s: float
-    warnings: tuple = ()
+    warnings: tuple[str, ...] = ()
 
 
 

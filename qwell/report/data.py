@@ -20,8 +20,11 @@ from dataclasses import dataclass
 from .. import design
 from ..constants import HC_EV_UM
 from ..errors import QwellError, QwellWarning
-from ..levels import compare_methods, prepare_profile, solve_profile
-from ..optics import select_transitions
+from ..levels import Solution, compare_methods, prepare_profile, solve_profile
+from ..optics import Transition, select_transitions
+from ..profile import Profile
+from ..selfconsistent import SelfConsistentResult
+from ..stack import Stack
 
 __all__ = [
     "REPORT_TOLERANCE_EV",
@@ -98,18 +101,18 @@ class ReportData:
         The Schrödinger–Poisson result when the stack is solved self-consistently.
     """
 
-    stack: object
-    profile: object
-    exact: object
-    semiclassical: object
-    chosen: tuple
-    comparison: list
-    sensitivity: tuple
-    sensitivity_notes: tuple
-    warnings: tuple
+    stack: Stack
+    profile: Profile
+    exact: Solution
+    semiclassical: Solution
+    chosen: tuple[Transition, ...]
+    comparison: list[dict]
+    sensitivity: tuple[SensitivityRow, ...]
+    sensitivity_notes: tuple[str, ...]
+    warnings: tuple[str, ...]
     created_utc: _dt.datetime
     tolerance_eV: float = REPORT_TOLERANCE_EV
-    charge: object = None
+    charge: SelfConsistentResult | None = None
 
 
 def default_transitions(solution) -> tuple:
