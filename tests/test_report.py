@@ -558,3 +558,52 @@ def test_stack_without_bound_states_still_reports(tmp_path):
     assert "No transition to review" in text
     assert "no well at all" in text
     assert res.png_path.is_file()
+
+
+# ---------------------------------------------------------------------------
+# the sensitivity page through the design engine
+# ---------------------------------------------------------------------------
+def test_composition_next_to_the_end_of_its_range_is_one_sided(tmp_path):
+    # x = 0.005 - 0.01 leaves [0, 1]: only the + side exists (property of the
+    # construction, common practice, no source)
+    src = tmp_path / "edge.yaml"
+    src.write_text("name: composition at the edge\ntemperature: 300 K\nlayers:\n"
+                   "  - {material: Al0.30Ga0.70As, thickness: 15 nm, name: lower}\n"
+                   "  - {material: Al0.005Ga0.995As, thickness: 6 nm, name: well}\n"
+                   "  - {material: Al0.30Ga0.70As, thickness: 15 nm, name: upper}\n")
+    stack = load_stack(src)
+    data = rp.collect_report_data(stack, transitions=["e1-e2"], sensitivity=False)
+    rows, _ = rp.sensitivity_rows(stack, data.chosen, jobs=1)
+    by = {(r.layer, r.parameter): r for r in rows}
+    r = by[("well", "x (AlGaAs)")]
+    assert r.minus_nm is None and r.plus_nm is not None
+    assert r.per_unit_nm == r.plus_nm and r.note == "one-sided (+ step only)"
+    # more Al in the well raises e1 and e2 unequally; the line must move
+    assert r.plus_nm != 0.0
+    both = by[("lower", "x (AlGaAs)")]
+    assert both.minus_nm is not None and both.plus_nm is not None
+
+
+def test_a_design_the_engine_refuses_becomes_a_note(well_report, monkeypatch):
+    # the engine refusing one design (here: forced) must not lose the others
+    from qwell import design
+
+    data = well_report["data"]
+    real = design.evaluate_many
+    thinner = data.stack.layers[1].thickness_nm - 1e-6
+
+    def refusing(stack, value_sets, **kw):
+        if any(v.get("well.thickness", 1e9) < thinner for v in value_sets):
+            raise ParameterError("well.thickness: refused for this test")
+        return real(stack, value_sets, **kw)
+
+    monkeypatch.setattr(design, "evaluate_many", refusing)
+    rows, notes = rp.sensitivity_rows(data.stack, data.chosen, jobs=1)
+    by = {(r.layer, r.parameter): r for r in rows}
+    ref = {(r.layer, r.parameter): r for r in data.sensitivity}
+    r = by[("well", "thickness")]
+    assert r.minus_nm is None and r.plus_nm == ref[("well", "thickness")].plus_nm
+    assert any("refused for this test" in n for n in notes)
+    for k, other in by.items():
+        if k != ("well", "thickness"):
+            assert (other.minus_nm, other.plus_nm) == (ref[k].minus_nm, ref[k].plus_nm)
