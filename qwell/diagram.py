@@ -28,12 +28,14 @@ greyscale print), no decoration.  Internal units: z in nm, energies in eV.
 
 from __future__ import annotations
 
+import io
 import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from .bands import band_of_label
+from .fileio import atomic_write_bytes
 from .plots import BAND_STYLE, shade_layers
 
 __all__ = [
@@ -292,6 +294,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     -------
     DiagramInfo
     """
+    # matplotlib is heavy: imported when a diagram is drawn, not with qwell.diagram
     from matplotlib.lines import Line2D
     from matplotlib.patches import ConnectionPatch
 
@@ -665,6 +668,7 @@ def band_diagram_figure(profile, levels, *, transitions=(), title=None, show_hol
     (matplotlib.figure.Figure, DiagramInfo)
         The caller closes the figure (``matplotlib.pyplot.close``).
     """
+    # matplotlib is heavy: imported when a figure is made (Agg: no screen needed)
     import matplotlib
 
     matplotlib.use("Agg")
@@ -678,9 +682,7 @@ def band_diagram_figure(profile, levels, *, transitions=(), title=None, show_hol
 
 def band_diagram_png(profile, levels, *, transitions=(), title=None, show_holes=None) -> bytes:
     """PNG bytes (1200 x 750 pixels) of the band diagram."""
-    import io
-
-    import matplotlib.pyplot as plt
+    import matplotlib.pyplot as plt  # heavy: imported on first use
 
     fig, _ = band_diagram_figure(profile, levels, transitions=transitions, title=title,
                                  show_holes=show_holes)
@@ -694,7 +696,5 @@ def band_diagram_png(profile, levels, *, transitions=(), title=None, show_holes=
 
 def save_band_diagram(profile, levels, path, *, transitions=(), title=None, protect=()):
     """Write the band diagram to ``path`` (PNG) atomically; returns the path."""
-    from .fileio import atomic_write_bytes
-
     data = band_diagram_png(profile, levels, transitions=transitions, title=title)
     return atomic_write_bytes(path, data, protect=protect)

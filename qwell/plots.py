@@ -24,6 +24,7 @@ BAND_STYLE = {
 
 def new_figure(width_in=8.0, height_in=5.0):
     """A matplotlib figure on the Agg backend (no screen needed)."""
+    # matplotlib is heavy: imported when a figure is made, not with qwell.plots
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
@@ -64,7 +65,7 @@ def plot_profile(profile, path, *, protect=(), title=None, charge=None):
         Draw its electron (and hole) density on a second axis and mark the
         Fermi level.
     """
-    import matplotlib.pyplot as plt
+    import matplotlib.pyplot as plt  # heavy: imported on first use
 
     fig, ax = new_figure()
     z = profile.z_nm

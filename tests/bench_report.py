@@ -4,6 +4,10 @@ Run as ``python tests/bench_report.py``.  Target: under 10 s on the
 development machine for the whole ``build_report`` (both solvers, the
 sensitivity page with ±1 ML and ±0.01 changes of every layer, the PDF and
 the PNG).  The stack is an invented coupled-well scenario.
+
+The sensitivity page is timed on its own twice, through the design engine
+serially (``jobs=1``, the reference) and with its default parallelism; the
+ratio is printed.
 """
 
 from __future__ import annotations
@@ -54,6 +58,12 @@ def main() -> int:
             t = time.perf_counter()
             res = report.build_report(stack, out_dir=tmp)
             t_total = time.perf_counter() - t
+            t = time.perf_counter()
+            report.sensitivity_rows(stack, data.chosen, jobs=1)
+            t_serial = time.perf_counter() - t
+            t = time.perf_counter()
+            report.sensitivity_rows(stack, data.chosen)
+            t_parallel = time.perf_counter() - t
     print(f"stack: {len(stack.layers)} layers, {len(data.exact.states)} exact states, "
           f"{len(data.exact.transitions)} transitions, {len(data.sensitivity)} sensitivity rows, "
           f"{pages} pages")
@@ -62,6 +72,9 @@ def main() -> int:
     print(f"PDF rendering (in memory)      {t_pdf:7.2f} s")
     print(f"build_report (everything)      {t_total:7.2f} s   (target < 10 s; "
           f"ReportResult.elapsed_s = {res.elapsed_s:.2f} s)")
+    print(f"{'sensitivity, serial':30s} {t_serial:7.2f} s   (reference)")
+    print(f"{'sensitivity, default jobs':30s} {t_parallel:7.2f} s   "
+          f"({t_serial / t_parallel:.2f}x faster than serial)")
     if caught:
         print(f"({len(caught)} warning(s) while solving; listed in the report)")
     return 0

@@ -32,6 +32,8 @@ from scipy.optimize import brentq
 
 from qwell import __version__
 from qwell import report as rp
+from qwell.report import build as report_build
+from qwell.report import layout
 from qwell.cli import main
 from qwell.diagram import (
     DIAGRAM_DPI,
@@ -348,17 +350,17 @@ def test_layout_keeps_text_on_the_page_and_fonts_readable(well_report, laser_rep
                 if it.kind != "text":
                     continue
                 assert it.size >= 7.0
-                w = rp._text_width(it.text, it.size, it.bold)
+                w = layout.text_width(it.text, it.size, it.bold)
                 x0 = it.x if it.ha == "left" else it.x - w
-                assert x0 >= rp._MARGIN_L - 0.5
-                assert x0 + w <= rp.PAGE_W_PT - rp._MARGIN_R + 0.5, it.text
-                assert rp._BODY_BOTTOM - 1.0 <= it.y <= rp.PAGE_H_PT - rp._MARGIN_T + 0.5
+                assert x0 >= layout.MARGIN_L - 0.5
+                assert x0 + w <= layout.PAGE_W_PT - layout.MARGIN_R + 0.5, it.text
+                assert layout.BODY_BOTTOM - 1.0 <= it.y <= layout.PAGE_H_PT - layout.MARGIN_T + 0.5
 
 
 def test_long_tables_flow_over_pages_with_header_repeated():
     rows = [[f"r{i}", f"{i:.3f}"] for i in range(200)]
-    flow = rp._Flow()
-    rp.Table(["name", "value"], rows, ["l", "r"], title="Long").place(flow)
+    flow = layout.Flow()
+    layout.Table(["name", "value"], rows, ["l", "r"], title="Long").place(flow)
     assert len(flow.pages) >= 3
     for page in flow.pages:
         texts = [it.text for it in page if it.kind == "text"]
@@ -372,7 +374,7 @@ def test_long_tables_flow_over_pages_with_header_repeated():
 # atomic output and errors
 # ---------------------------------------------------------------------------
 def test_failed_rename_leaves_no_file(well_report, tmp_path, monkeypatch):
-    monkeypatch.setattr(rp, "collect_report_data", lambda *a, **k: well_report["data"])
+    monkeypatch.setattr(report_build, "collect_report_data", lambda *a, **k: well_report["data"])
 
     def boom(*a, **k):
         raise OSError(28, "No space left on device")
@@ -387,7 +389,7 @@ def test_failed_rename_leaves_no_file(well_report, tmp_path, monkeypatch):
 def test_failure_writing_the_png_removes_the_new_pdf(well_report, tmp_path, monkeypatch):
     import qwell.fileio as fileio
 
-    monkeypatch.setattr(rp, "collect_report_data", lambda *a, **k: well_report["data"])
+    monkeypatch.setattr(report_build, "collect_report_data", lambda *a, **k: well_report["data"])
     real = fileio.atomic_write_bytes
 
     def second_fails(path, data, protect=()):
@@ -395,19 +397,19 @@ def test_failure_writing_the_png_removes_the_new_pdf(well_report, tmp_path, monk
             raise OSError(5, "Input/output error")
         return real(path, data, protect)
 
-    monkeypatch.setattr(fileio, "atomic_write_bytes", second_fails)
+    monkeypatch.setattr(report_build, "atomic_write_bytes", second_fails)
     with pytest.raises(QwellError, match="Input/output error"):
         rp.build_report(well_report["stack"], out_dir=tmp_path)
     assert list(tmp_path.iterdir()) == []
 
 
 def test_failure_while_rendering_writes_nothing(well_report, tmp_path, monkeypatch):
-    monkeypatch.setattr(rp, "collect_report_data", lambda *a, **k: well_report["data"])
+    monkeypatch.setattr(report_build, "collect_report_data", lambda *a, **k: well_report["data"])
 
     def boom(data):
         raise RuntimeError("renderer broke")
 
-    monkeypatch.setattr(rp, "render_pdf", boom)
+    monkeypatch.setattr(report_build, "render_pdf", boom)
     with pytest.raises(RuntimeError, match="renderer broke"):
         rp.build_report(well_report["stack"], out_dir=tmp_path)
     assert list(tmp_path.iterdir()) == []
@@ -445,7 +447,7 @@ def test_unwritable_folder_is_a_one_line_error(well_report, tmp_path):
 
 def test_cli_default_folder_is_created_and_paths_printed(well_report, tmp_path, monkeypatch,
                                                          capsys):
-    monkeypatch.setattr(rp, "collect_report_data", lambda *a, **k: well_report["data"])
+    monkeypatch.setattr(report_build, "collect_report_data", lambda *a, **k: well_report["data"])
     monkeypatch.chdir(tmp_path)
     rc = main(["report", str(well_report["src"])])
     out = capsys.readouterr().out
@@ -508,36 +510,6 @@ def test_wavefunction_amplitude_below_level_spacing():
     assert amp >= 0.035                      # but visible (floor: 3.5 % of the span)
 
 
-def test_formula_shift_round_trips_through_the_materials_parser():
-    from qwell.materials import parse_formula
-
-    (pname, tok, partner), = rp.composition_parameters("Al0.30Ga0.70As")
-    assert pname == "x(Al)"
-    up = rp.shifted_formula("Al0.30Ga0.70As", tok, partner, 0.01)
-    assert up == "Al0.31Ga0.69As"
-    fam, comp = parse_formula(up)
-    assert fam == "AlGaAs" and comp["x"] == pytest.approx(0.31)
-    assert rp.shifted_formula("Al1.00Ga0.00As", tok, partner, 0.01) is None
-    assert rp.composition_parameters("GaAs") == []
-    assert len(rp.composition_parameters("In0.73Ga0.27As0.59P0.41")) == 2
-
-
-def test_mapping_edit_path_matches_the_design_path(well_report):
-    # consistency of the two ways of changing the stack (both re-solve with the exact solver)
-    pytest.importorskip("qwell.design")
-    data = well_report["data"]
-    a, _ = rp.sensitivity_rows(data.stack, data.chosen, solution=data.exact, use_design=True)
-    b, _ = rp.sensitivity_rows(data.stack, data.chosen, solution=data.exact, use_design=False)
-    lam = data.chosen[0].wavelength_um
-    tol = lam ** 2 / HC_UM * 4e-7 * 1e3 * 1.5
-    ta = {(r.layer, r.parameter): r for r in a}
-    tb = {(r.layer, r.parameter): r for r in b}
-    assert set(ta) == set(tb)
-    for k in ta:
-        assert ta[k].plus_nm == pytest.approx(tb[k].plus_nm, abs=tol)
-        assert ta[k].minus_nm == pytest.approx(tb[k].minus_nm, abs=tol)
-
-
 def test_render_is_readable_pdf_in_memory(well_report):
     data_bytes, n = rp.render_pdf(well_report["data"])
     reader = pypdf.PdfReader(io.BytesIO(data_bytes))
@@ -551,7 +523,7 @@ def test_validity_warnings_are_summarised_once(well_report, tmp_path, monkeypatc
     from qwell.errors import ValidityWarning
 
     data = dataclasses.replace(well_report["data"], warnings=("e1: estimate unreliable",))
-    monkeypatch.setattr(rp, "collect_report_data", lambda *a, **k: data)
+    monkeypatch.setattr(report_build, "collect_report_data", lambda *a, **k: data)
     with pytest.warns(ValidityWarning, match="1 validity warning"):
         res = rp.build_report(well_report["stack"], out_dir=tmp_path)
     assert res.warnings == ("e1: estimate unreliable",)
@@ -586,3 +558,52 @@ def test_stack_without_bound_states_still_reports(tmp_path):
     assert "No transition to review" in text
     assert "no well at all" in text
     assert res.png_path.is_file()
+
+
+# ---------------------------------------------------------------------------
+# the sensitivity page through the design engine
+# ---------------------------------------------------------------------------
+def test_composition_next_to_the_end_of_its_range_is_one_sided(tmp_path):
+    # x = 0.005 - 0.01 leaves [0, 1]: only the + side exists (property of the
+    # construction, common practice, no source)
+    src = tmp_path / "edge.yaml"
+    src.write_text("name: composition at the edge\ntemperature: 300 K\nlayers:\n"
+                   "  - {material: Al0.30Ga0.70As, thickness: 15 nm, name: lower}\n"
+                   "  - {material: Al0.005Ga0.995As, thickness: 6 nm, name: well}\n"
+                   "  - {material: Al0.30Ga0.70As, thickness: 15 nm, name: upper}\n")
+    stack = load_stack(src)
+    data = rp.collect_report_data(stack, transitions=["e1-e2"], sensitivity=False)
+    rows, _ = rp.sensitivity_rows(stack, data.chosen, jobs=1)
+    by = {(r.layer, r.parameter): r for r in rows}
+    r = by[("well", "x (AlGaAs)")]
+    assert r.minus_nm is None and r.plus_nm is not None
+    assert r.per_unit_nm == r.plus_nm and r.note == "one-sided (+ step only)"
+    # more Al in the well raises e1 and e2 unequally; the line must move
+    assert r.plus_nm != 0.0
+    both = by[("lower", "x (AlGaAs)")]
+    assert both.minus_nm is not None and both.plus_nm is not None
+
+
+def test_a_design_the_engine_refuses_becomes_a_note(well_report, monkeypatch):
+    # the engine refusing one design (here: forced) must not lose the others
+    from qwell import design
+
+    data = well_report["data"]
+    real = design.evaluate_many
+    thinner = data.stack.layers[1].thickness_nm - 1e-6
+
+    def refusing(stack, value_sets, **kw):
+        if any(v.get("well.thickness", 1e9) < thinner for v in value_sets):
+            raise ParameterError("well.thickness: refused for this test")
+        return real(stack, value_sets, **kw)
+
+    monkeypatch.setattr(design, "evaluate_many", refusing)
+    rows, notes = rp.sensitivity_rows(data.stack, data.chosen, jobs=1)
+    by = {(r.layer, r.parameter): r for r in rows}
+    ref = {(r.layer, r.parameter): r for r in data.sensitivity}
+    r = by[("well", "thickness")]
+    assert r.minus_nm is None and r.plus_nm == ref[("well", "thickness")].plus_nm
+    assert any("refused for this test" in n for n in notes)
+    for k, other in by.items():
+        if k != ("well", "thickness"):
+            assert (other.minus_nm, other.plus_nm) == (ref[k].minus_nm, ref[k].plus_nm)

@@ -1,0 +1,146 @@
+"""Writing a design-review report: the PDF and the PNG band diagram of one stack.
+
+:func:`build_report` collects the data (:mod:`qwell.report.data`), renders
+the pages (:mod:`qwell.report.pages`) and the band diagram
+(:mod:`qwell.diagram`) in memory and writes both files atomically
+(:mod:`qwell.fileio`): a failure leaves no half-written file and the input
+is never overwritten.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import time
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..diagram import band_diagram_png
+from ..errors import QwellError, ValidityWarning
+from ..fileio import atomic_write_bytes
+from ..stack import load_stack
+from .data import collect_report_data
+from .pages import render_pdf
+
+__all__ = ["DEFAULT_OUT_DIR", "ReportResult", "build_report"]
+
+#: Default output folder of ``qwell report`` (relative to the current directory).
+DEFAULT_OUT_DIR = "reports"
+
+
+@dataclass(frozen=True)
+class ReportResult:
+    """What :func:`build_report` wrote.
+
+    Attributes
+    ----------
+    pdf_path, png_path : pathlib.Path
+        The report and the band diagram.
+    pages : int
+        Number of PDF pages.
+    elapsed_s : float
+        Wall time of the whole build [s].
+    warnings : tuple of str
+        Validity warnings raised while solving (also listed in the PDF).
+    """
+
+    pdf_path: Path
+    png_path: Path
+    pages: int
+    elapsed_s: float
+    warnings: tuple[str, ...] = ()
+
+
+
+def _stem(stack) -> str:
+    if stack.path:
+        return Path(stack.path).stem
+    s = re.sub(r"[^A-Za-z0-9_.-]+", "-", str(stack.name)).strip("-.")
+    return s or "stack"
+
+
+def _output_dir(out_dir, create: bool | None) -> Path:
+    d = Path(out_dir)
+    if create is None:
+        create = d == Path(DEFAULT_OUT_DIR)
+    if d.exists():
+        if not d.is_dir():
+            raise QwellError(f"output folder {d} is not a folder; expected a directory")
+        return d
+    if not create:
+        raise QwellError(f"output folder {d} does not exist; create it or leave out -o to "
+                         f"write to {DEFAULT_OUT_DIR}/")
+    try:
+        d.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise QwellError(f"cannot create output folder {d} ({exc.strerror or exc})") from None
+    return d
+
+
+def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
+                 create_out_dir: bool | None = None) -> ReportResult:
+    """Write the design-review PDF and the band-diagram PNG of a stack.
+
+    Parameters
+    ----------
+    stack : qwell.stack.Stack or path
+        The stack (a path is loaded with :func:`qwell.stack.load_stack`).
+    transitions : sequence of str, optional
+        Transitions to review, e.g. ``['e1-e2']``; default
+        :func:`default_transitions`.
+    out_dir : str or Path
+        Output folder (default ``reports`` in the current directory).
+    create_out_dir : bool, optional
+        Create a missing folder; default: only for the default folder (a
+        user-given folder must exist).
+
+    Returns
+    -------
+    ReportResult
+
+    Raises
+    ------
+    QwellError
+        Missing or unwritable output folder, or bad input (one-line message).
+
+    Validity warnings raised while solving are listed in the report and, in
+    summary, re-issued as one :class:`~qwell.errors.ValidityWarning`.
+    """
+    t0 = time.perf_counter()
+    if isinstance(stack, (str, os.PathLike)):
+        stack = load_stack(stack)
+    d = _output_dir(out_dir, create_out_dir)
+    if not os.access(d, os.W_OK | os.X_OK):
+        raise QwellError(f"output folder {d} is not writable")
+    data = collect_report_data(stack, transitions=transitions)
+    pdf_bytes, pages = render_pdf(data)
+    title = f"{stack.name}  (T = {stack.temperature_K:g} K)"
+    png_bytes = band_diagram_png(data.profile, data.exact.levels, transitions=data.chosen,
+                                 title=title)
+    stem = _stem(stack)
+    pdf_path, png_path = d / f"{stem}.pdf", d / f"{stem}.png"
+    protect = [stack.path] if stack.path else []
+    pdf_existed = pdf_path.exists()
+    try:
+        atomic_write_bytes(pdf_path, pdf_bytes, protect=protect)
+        try:
+            atomic_write_bytes(png_path, png_bytes, protect=protect)
+        except BaseException:
+            if not pdf_existed:
+                try:
+                    pdf_path.unlink()
+                except OSError:
+                    pass
+            raise
+    except QwellError:
+        raise
+    except OSError as exc:
+        raise QwellError(f"cannot write the report into {d} "
+                         f"({exc.strerror or type(exc).__name__})") from None
+    if data.warnings:
+        warnings.warn(f"{len(data.warnings)} validity warning(s) while solving {stack.name!r}; "
+                      f"they are listed on the cautions page of {pdf_path}", ValidityWarning,
+                      stacklevel=2)
+    return ReportResult(pdf_path=pdf_path, png_path=png_path, pages=pages,
+                        elapsed_s=time.perf_counter() - t0, warnings=data.warnings)

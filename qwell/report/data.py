@@ -1,0 +1,338 @@
+"""What a design-review report says: the solutions, the reviewed transitions, the sensitivities.
+
+:func:`collect_report_data` solves a stack with both methods, picks the
+transitions to review (:func:`default_transitions` unless named) and asks the
+design engine (:mod:`qwell.design`) how each reviewed wavelength moves when
+one layer parameter changes (:func:`sensitivity_rows`).  The result,
+:class:`ReportData`, is everything the pages (:mod:`qwell.report.pages`)
+show; nothing here draws or writes.
+
+Units inside: eV, nm, m0, K, kV/cm (see :mod:`qwell.units`).
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+import warnings
+from dataclasses import dataclass
+
+from .. import design
+from ..constants import HC_EV_UM
+from ..errors import QwellError, QwellWarning
+from ..levels import Solution, compare_methods, prepare_profile, solve_profile
+from ..optics import Transition, select_transitions
+from ..profile import Profile
+from ..selfconsistent import SelfConsistentResult
+from ..stack import Stack
+
+__all__ = [
+    "REPORT_TOLERANCE_EV",
+    "ReportData",
+    "SensitivityRow",
+    "collect_report_data",
+    "default_transitions",
+    "sensitivity_rows",
+]
+
+#: Energy tolerance of the solvers in the report [eV] (the exact solver's default, which the
+#: design engine uses for the sensitivity page).
+REPORT_TOLERANCE_EV = 1e-7
+
+
+@dataclass(frozen=True)
+class SensitivityRow:
+    """Change of one transition's wavelength when one layer parameter changes.
+
+    Attributes
+    ----------
+    transition : str
+        e.g. 'e1-e2'.
+    layer : str
+        Layer label, with '(×N)' when a named layer of a repeat block changes
+        in all N periods.
+    parameter : str
+        'thickness', or the composition path's key with its alloy family,
+        e.g. 'x (AlGaAs)' (see :mod:`qwell.design`).
+    step : float
+        Size of the change [nm for thickness, 1 for composition].
+    step_text : str
+        The change as shown, e.g. '1 ML = 0.2827 nm'.
+    minus_nm, plus_nm : float or None
+        Wavelength change [nm] for -step and +step; None when that side was
+        not computed (composition at the end of [0, 1]) or the transition
+        does not exist there (see ``note``).
+    per_unit_nm : float or None
+        Central (or one-sided) difference in nm per step.
+    note : str
+    """
+
+    transition: str
+    layer: str
+    parameter: str
+    step: float
+    step_text: str
+    minus_nm: float | None
+    plus_nm: float | None
+    per_unit_nm: float | None
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class ReportData:
+    """Everything the pages show (computed once by :func:`collect_report_data`).
+
+    Attributes
+    ----------
+    stack : qwell.stack.Stack
+    profile : qwell.profile.Profile
+    exact, semiclassical : qwell.levels.Solution
+    chosen : tuple of qwell.optics.Transition
+        Transitions reviewed (arrows, sensitivity).
+    comparison : list of dict
+        :func:`qwell.levels.compare_methods` rows.
+    sensitivity : tuple of SensitivityRow
+    sensitivity_notes : tuple of str
+    warnings : tuple of str
+        Distinct warning messages raised while solving.
+    created_utc : datetime.datetime
+    tolerance_eV : float
+    charge : qwell.selfconsistent.SelfConsistentResult or None
+        The Schrödinger–Poisson result when the stack is solved self-consistently.
+    """
+
+    stack: Stack
+    profile: Profile
+    exact: Solution
+    semiclassical: Solution
+    chosen: tuple[Transition, ...]
+    comparison: list[dict]
+    sensitivity: tuple[SensitivityRow, ...]
+    sensitivity_notes: tuple[str, ...]
+    warnings: tuple[str, ...]
+    created_utc: _dt.datetime
+    tolerance_eV: float = REPORT_TOLERANCE_EV
+    charge: SelfConsistentResult | None = None
+
+
+def default_transitions(solution) -> tuple:
+    """Transitions reviewed when the user names none.
+
+    The strongest intersubband line from the ground state (flagged
+    ``strongest`` by :mod:`qwell.optics`) and the fundamental interband line
+    ``e1-hh1``, when they exist.
+    """
+    out = []
+    inter = [t for t in solution.transitions if t.kind == "intersubband" and t.strongest]
+    if inter:
+        out.append(inter[0])
+    for name in ("e1-hh1",):
+        for t in solution.transitions:
+            if t.name == name:
+                out.append(t)
+                break
+    return tuple(out)
+
+
+# ---------------------------------------------------------------------------
+# sensitivity to growth errors (through the design engine)
+# ---------------------------------------------------------------------------
+def _sensitivity_plan(stack, composition_step):
+    """[(layer label, parameter text, step, step text, [(sign, {path: value})])] and notes.
+
+    One entry per layer parameter of :func:`qwell.design.parameters`:
+    thickness ±1 ML (a/2 of the layer's material), composition ±``composition_step``;
+    a side whose value :meth:`qwell.design.Parameter.check` refuses is left out.
+    """
+    plan, notes = [], []
+    params = design.parameters(stack)
+    for path, p in params.items():
+        if p.layer is None:
+            continue
+        copies = sum(1 for L in stack.layers if L.name == p.layer)
+        label = p.layer + (f" (×{copies})" if copies > 1 else "")
+        if p.kind == "thickness":
+            if not p.monolayer_nm:
+                notes.append(f"{p.layer}: no lattice constant, so no monolayer step; "
+                             "thickness sensitivity not computed")
+                continue
+            step, text, pname = p.monolayer_nm, f"1 ML = {p.monolayer_nm:.4f} nm", "thickness"
+        elif p.kind in ("x", "y"):
+            step, text = composition_step, f"±{composition_step:g}"
+            pname = f"{p.kind} ({p.family})" if p.family else p.kind
+        else:
+            continue
+        sides = []
+        for sgn in (-1, 1):
+            v = p.value + sgn * step
+            try:
+                p.check(v)
+            except QwellError:
+                continue
+            sides.append((sgn, {path: v}))
+        plan.append((label, pname, step, text, sides))
+    named = {p.layer for p in params.values() if p.layer is not None}
+    missing = [L.label for L in stack.layers
+               if L.name is None and L.repeat_block is not None and L.label not in named]
+    if missing:
+        notes.append("unnamed layers inside a repeat block have no parameter path and were not "
+                     "varied: " + ", ".join(missing[:8]) + (" …" if len(missing) > 8 else ""))
+    return plan, notes
+
+
+def _evaluate(stack, value_sets, bands, needed, jobs):
+    """:func:`qwell.design.evaluate_many` over ``value_sets``; a set whose stack is refused
+    gives the error message instead of a :class:`~qwell.design.DesignPoint`."""
+    try:
+        return design.evaluate_many(stack, value_sets, bands=bands, needed=needed, jobs=jobs,
+                                    label="report sensitivity")
+    except QwellError:
+        pass
+    out = []   # some design is refused: find which, one at a time
+    for values in value_sets:
+        try:
+            out.extend(design.evaluate_many(stack, [values], bands=bands, needed=needed,
+                                            jobs=1))
+        except QwellError as exc:
+            out.append(str(exc))
+    return out
+
+
+def _wavelength_um(point, transition) -> float | None:
+    """λ = hc/|E_f - E_i| [µm] from the design's state energies; None if a state is missing."""
+    a, b = point.state_energy(transition.initial), point.state_energy(transition.final)
+    if not (math.isfinite(a) and math.isfinite(b)) or a == b:
+        return None
+    return HC_EV_UM / abs(b - a)
+
+
+def sensitivity_rows(stack, chosen, *, composition_step: float = 0.01, jobs=None):
+    """Wavelength change of each chosen transition per layer thickness (±1 ML) and composition.
+
+    Every layer parameter of :func:`qwell.design.parameters` (the paths of
+    ``qwell tolerance``) is changed alone and the designs are solved by the
+    design engine, :func:`qwell.design.evaluate_many` (exact solver,
+    tolerance :data:`REPORT_TOLERANCE_EV`, in parallel where it pays).  A
+    named layer inside a repeat changes in every period.  Wavelengths come
+    from the state energies, ``λ = hc/|E_f - E_i|``.  Thickness steps are one
+    monolayer (a/2 of the layer's material); layers without a lattice
+    constant, and compositions of graded layers and user materials, are
+    skipped (with a note); a composition at the end of [0, 1] is changed on
+    one side only.
+
+    Parameters
+    ----------
+    stack : qwell.stack.Stack
+    chosen : sequence of qwell.optics.Transition
+    composition_step : float
+        Composition change (fraction).
+    jobs : int, optional
+        Worker processes (see :func:`qwell.parallel.map_chunked`).
+
+    Returns
+    -------
+    (tuple of SensitivityRow, tuple of str)
+        Rows (grouped by transition) and notes.
+    """
+    chosen = tuple(chosen)
+    if not chosen:
+        return (), ("no transition chosen: no sensitivity computed",)
+    plan, notes = _sensitivity_plan(stack, composition_step)
+    names = [t.name for t in chosen]
+    bands = design.bands_for_transitions(names)
+    needed = tuple(dict.fromkeys(lab for t in chosen for lab in (t.initial, t.final)))
+    keys = [(j, sgn) for j, (*_, sides) in enumerate(plan) for sgn, _ in sides]
+    sets = [{}] + [values for *_, sides in plan for _, values in sides]
+    points = _evaluate(stack, sets, bands, needed, jobs)
+    base, results = points[0], dict(zip(keys, points[1:]))
+    for (j, sgn), r in results.items():
+        if isinstance(r, str):
+            label, pname, _step, text, _sides = plan[j]
+            notes.append(f"{label} {pname} {'+' if sgn > 0 else '−'}{text.lstrip('±')}: {r}")
+
+    rows = []
+    for t in chosen:
+        lam0 = None if isinstance(base, str) else _wavelength_um(base, t)
+        for j, (label, pname, step, text, _sides) in enumerate(plan):
+            shift = {}
+            note = ""
+            for sgn in (-1, 1):
+                r = results.get((j, sgn))
+                if r is None or isinstance(r, str):
+                    shift[sgn] = None
+                    continue
+                lam = _wavelength_um(r, t)
+                if lam is None or lam0 is None:
+                    shift[sgn] = None
+                    side = "+" if sgn > 0 else "−"
+                    note = (note + "; " if note else "") + f"{side}step: {t.name} not found " \
+                        "(a state left the well)"
+                else:
+                    d = 1e3 * (lam - lam0)
+                    shift[sgn] = 0.0 if abs(d) < 5e-4 else d
+            mi, pl = shift.get(-1), shift.get(1)
+            if mi is not None and pl is not None:
+                per = 0.5 * (pl - mi)
+            elif pl is not None:
+                per = pl
+                note = note or "one-sided (+ step only)"
+            elif mi is not None:
+                per = -mi
+                note = note or "one-sided (− step only)"
+            else:
+                per = None
+            rows.append(SensitivityRow(transition=t.name, layer=label, parameter=pname,
+                                       step=step, step_text=text, minus_nm=mi, plus_nm=pl,
+                                       per_unit_nm=per, note=note))
+    return tuple(rows), tuple(dict.fromkeys(notes))
+
+
+# ---------------------------------------------------------------------------
+# everything the report shows
+# ---------------------------------------------------------------------------
+def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT_TOLERANCE_EV,
+                        sensitivity: bool = True) -> ReportData:
+    """Solve ``stack`` with both methods and gather what the report shows.
+
+    Parameters
+    ----------
+    stack : qwell.stack.Stack
+    transitions : sequence of str, optional
+        Transition names to review ('e1-e2', 'e1-hh1'); default
+        :func:`default_transitions`.  Unknown names raise ParameterError
+        listing the available ones.
+    tolerance_eV : float
+        Energy tolerance of both solvers [eV] (the sensitivity page uses the
+        design engine's, :data:`REPORT_TOLERANCE_EV`).
+    sensitivity : bool
+        Compute the sensitivity page (the costly part).
+
+    Warnings raised while solving are captured, listed in the report and
+    returned in :attr:`ReportData.warnings` (not re-raised here).
+    """
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", QwellWarning)
+        prof, sc = prepare_profile(stack)
+        exact = solve_profile(prof, method="exact", transitions=True, tolerance_eV=tolerance_eV)
+        semi = solve_profile(prof, method="semiclassical", transitions=False,
+                             tolerance_eV=tolerance_eV)
+        if transitions:
+            chosen = select_transitions(exact.transitions, list(transitions))
+        else:
+            chosen = default_transitions(exact)
+        comparison = compare_methods(exact, semi)
+        if sensitivity:
+            sens, sens_notes = sensitivity_rows(stack, chosen)
+        else:
+            sens, sens_notes = (), ("sensitivity not computed",)
+    msgs = []
+    for w in caught:
+        if issubclass(w.category, QwellWarning):
+            msgs.append(str(w.message))
+        else:  # not ours: pass it on unchanged
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    return ReportData(stack=stack, profile=prof, exact=exact, semiclassical=semi, charge=sc,
+                      chosen=tuple(chosen), comparison=comparison, sensitivity=tuple(sens),
+                      sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
+                      created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
+                      tolerance_eV=tolerance_eV)

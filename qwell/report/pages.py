@@ -1,0 +1,572 @@
+"""Page content of the design-review report: what each page shows, as layout blocks.
+
+One function per page turns :class:`~qwell.report.data.ReportData` into
+blocks of :mod:`qwell.report.layout`: (1) :func:`diagram_blocks` band
+diagram, (2) :func:`stack_blocks` stack table and settings, (3)
+:func:`material_blocks` material parameters with numbered citations, (4)
+:func:`state_blocks` states, exact and semiclassical side by side, (5)
+:func:`transition_blocks` transitions with strengths, (6)
+:func:`sensitivity_blocks` wavelength sensitivity to each layer's thickness
+(±1 ML) and composition (±0.01) and the absorption spectrum, (7)
+:func:`caution_blocks` cautions.  :func:`report_pages` flows them onto
+pages, :func:`footer_lines` is the reproducibility footer of every page and
+:func:`render_pdf` typesets the whole report in memory.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+
+from .. import __version__
+from ..diagram import draw_band_diagram, spread_positions
+from ..errors import QwellError
+from ..materials import citation, get_material, parse_formula
+from ..optics import EXCITON_NOTE, spectrum
+from .data import ReportData
+from .layout import FigureBlock, Flow, Heading, Item, PageBreak, Paragraph, Table, typeset_pdf
+
+__all__ = [
+    "CAUTIONS",
+    "caution_blocks",
+    "design_cautions",
+    "diagram_blocks",
+    "footer_lines",
+    "material_blocks",
+    "render_pdf",
+    "report_pages",
+    "sensitivity_blocks",
+    "stack_blocks",
+    "state_blocks",
+    "transition_blocks",
+]
+
+#: Cautions printed on the last page of every report (the README carries the same text).
+CAUTIONS = [
+    "Results are design estimates from an effective-mass (envelope-function) model; "
+    "confirm every wavelength, energy and strength by measurement before relying on it.",
+    "Material parameter tables have their own uncertainty (tens of meV in band offsets and "
+    "gaps, several per cent in masses); the sources are listed on the parameters page.",
+    "A device built from this design may emit invisible infrared laser radiation: follow "
+    "IEC 60825-1 and your local laser-safety rules.",
+    "III–V wafers and growth sources contain arsenic, phosphorus or antimony compounds: "
+    "handle them per local regulations and your site's safety officer.",
+    "Defer to local codes and licensed practice.",
+]
+
+
+_SIGMA = "·"
+
+
+# ---------------------------------------------------------------------------
+# formatting helpers
+# ---------------------------------------------------------------------------
+def _f(v, spec: str, none: str = "—") -> str:
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return none
+    return format(v, spec)
+
+
+def _composition_text(material: str) -> str:
+    try:
+        _family, comp = parse_formula(material)
+    except QwellError:
+        return "—"
+    if not comp:
+        return "binary"
+    return ", ".join(f"{k} = {v:g}" for k, v in comp.items())
+
+
+def _doping_text(d) -> str:
+    if d is None:
+        return ""
+    parts = []
+    if d.donors_cm3:
+        parts.append(f"n {d.donors_cm3:.3g} cm⁻³")
+    if d.acceptors_cm3:
+        parts.append(f"p {d.acceptors_cm3:.3g} cm⁻³")
+    if d.sheet_cm2:
+        parts.append(f"n sheet {d.sheet_cm2:.3g} cm⁻²")
+    if d.sheet_acceptors_cm2:
+        parts.append(f"p sheet {d.sheet_acceptors_cm2:.3g} cm⁻²")
+    return ", ".join(parts)
+
+
+def _solver_text(data: ReportData) -> str:
+    np_on = "on (two-band)" if data.stack.nonparabolicity else "off"
+    return (f"solver: exact transfer-matrix, tolerance {data.tolerance_eV:g} eV; "
+            f"semiclassical WKB for comparison; nonparabolicity {np_on}")
+
+
+def footer_lines(data: ReportData, page: int | None = None, pages: int | None = None) -> list[str]:
+    """Reproducibility footer: version, UTC time, input SHA-256, temperature, solver settings."""
+    st = data.stack
+    sha = st.sha256 or "n/a (stack not read from a file)"
+    src = Path(st.path).name if st.path else "(in memory)"
+    when = data.created_utc.strftime("%Y-%m-%d %H:%M:%S UTC")
+    line1 = f"qwell {__version__} {_SIGMA} {when} {_SIGMA} T = {st.temperature_K:g} K"
+    if page is not None:
+        line1 += f" {_SIGMA} page {page} of {pages}"
+    line2 = f"input {src} {_SIGMA} SHA-256 {sha}"
+    return [line1, line2, _solver_text(data)]
+
+
+# ---------------------------------------------------------------------------
+# pages
+# ---------------------------------------------------------------------------
+def _transition_energy_text(t) -> str:
+    return f"{t.energy_eV:.6f}"
+
+
+def diagram_blocks(data: ReportData) -> list:
+    """Page 1: title, band diagram, the chosen transitions."""
+    st = data.stack
+    bits = [f"T = {st.temperature_K:g} K"]
+    if st.substrate:
+        bits.append(f"substrate {st.substrate}")
+    if st.field_kV_per_cm:
+        bits.append(f"field {st.field_kV_per_cm:g} kV/cm")
+    blocks = [Heading(f"Design review: {st.name}", 15.0),
+              Paragraph(("file " + str(st.path) + "  " if st.path else "") + ", ".join(bits),
+                        color="0.25")]
+
+    def draw(fig, rect):
+        draw_band_diagram(fig, data.profile, data.exact.levels, transitions=data.chosen, rect=rect)
+
+    blocks.append(FigureBlock(470.0, draw))
+    if data.chosen:
+        rows = [[t.name, t.kind, _transition_energy_text(t), f"{t.wavelength_um:.5f}",
+                 f"{t.wavenumber_cm1:.2f}"] for t in data.chosen]
+        blocks.append(Table(["transition", "kind", "energy (eV)", "λ (µm)", "wavenumber (cm⁻¹)"],
+                            rows, ["l", "l", "r", "r", "r"], title="Transitions reviewed"))
+    else:
+        blocks.append(Paragraph("No transition to review: the stack has fewer than two states "
+                                "connected by an optical transition."))
+    n_warn = len(design_cautions(data))
+    if n_warn:
+        blocks.append(Paragraph(f"{n_warn} design-specific caution(s) beyond the general ones: "
+                                "see the cautions page ('For this design').", color="0.25"))
+    return blocks
+
+
+def _charge_summary(sc) -> str:
+    """One line on a Schrödinger–Poisson result for the settings table."""
+    ef = sc.fermi_level_eV
+    occ = ", ".join(f"{k} {v:.3g} cm⁻²" for k, v in sc.sheet_densities_cm2.items() if v > 1e6)
+    return (f"yes: {sc.iterations} iterations, residual {sc.residual_meV:.2g} meV, Fermi level "
+            + ("undefined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV")
+            + (f"; sheet densities {occ}" if occ else ""))
+
+
+def stack_blocks(data: ReportData) -> list:
+    """Page 2: layer table and stack settings."""
+    st, prof = data.stack, data.profile
+    any_doping = any(L.doping is not None for L in st.layers)
+    headers = ["#", "layer", "material", "composition", "thickness\n(nm)", "ML",
+               "strain\nε_xx (%)", "h_c\n(nm)", "warnings"]
+    aligns = ["r", "l", "l", "l", "r", "r", "r", "r", "l"]
+    if any_doping:
+        headers.insert(8, "doping")
+        aligns.insert(8, "l")
+    rows = []
+    for L, lp in zip(st.layers, prof.layers):
+        ml = "—" if not lp.monolayer_nm else f"{lp.thickness_nm / lp.monolayer_nm:.2f}"
+        comp = "graded" if L.grade is not None else (
+            "user-defined" if L.material in (st.user_materials or {}) else _composition_text(L.material))
+        hc = lp.critical_thickness_nm
+        warn = []
+        if math.isfinite(hc) and lp.thickness_nm > hc:
+            warn.append("exceeds critical thickness")
+        warn += [w for w in lp.warnings if not w.startswith("thicker")]
+        if L.overrides:
+            warn.append("overrides: " + ", ".join(sorted(L.overrides)))
+        row = [str(L.index + 1), lp.label, lp.material, comp, f"{lp.thickness_nm:.4f}", ml,
+               f"{100 * lp.strain_xx:+.3f}", "—" if not math.isfinite(hc) else f"{hc:.4g}",
+               "; ".join(warn)]
+        if any_doping:
+            row.insert(8, _doping_text(L.doping))
+        rows.append(row)
+    wrap = (2, len(headers) - 1) + ((8,) if any_doping else ())
+    blocks = [Heading("Layer stack"),
+              Table(headers, rows, aligns, wrap=wrap, title="Layers in growth order"),
+              Paragraph("ML: thickness in monolayers of the layer's material (a/2 on (001)). "
+                        "Strain: pseudomorphic in-plane strain to the substrate (negative = "
+                        "compressive). h_c: Matthews–Blakeslee critical thickness.",
+                        size=8, color="0.25")]
+    settings = [
+        ["name", st.name],
+        ["file", str(st.path) if st.path else "(in memory)"],
+        ["SHA-256 of the file", st.sha256 or "n/a"],
+        ["temperature", f"{st.temperature_K:g} K"],
+        ["substrate", st.substrate or "none (layers unstrained)"],
+        ["field", f"{st.field_kV_per_cm:g} kV/cm"],
+        ["nonparabolicity", "on (two-band, conduction band)" if st.nonparabolicity else "off"],
+        ["self-consistent", _charge_summary(data.charge) if data.charge is not None else "no"],
+        ["total thickness", f"{st.total_thickness_nm:.4f} nm"],
+        ["layers", f"{len(st.layers)} (after expanding {len(st.repeats)} repeat block(s))"
+         if st.repeats else str(len(st.layers))],
+    ]
+    blocks.append(Table(["setting", "value"], settings, ["l", "l"], wrap=(1,),
+                        title="Stack settings", zebra=False))
+    return blocks
+
+
+_PARAM_ROWS = [
+    ("lattice_constant_nm", "lattice constant", "nm", ".6f"),
+    ("band_gap_eV", "Γ gap", "eV", ".4f"),
+    ("band_gap_X_eV", "X gap", "eV", ".4f"),
+    ("band_gap_L_eV", "L gap", "eV", ".4f"),
+    ("valence_edge_eV", "valence edge (VBO)", "eV", ".4f"),
+    ("conduction_edge_eV", "conduction edge", "eV", ".4f"),
+    ("spin_orbit_eV", "spin–orbit Δ", "eV", ".4f"),
+    ("electron_mass", "electron mass", "m0", ".4f"),
+    ("heavy_hole_mass", "heavy-hole mass [001]", "m0", ".4f"),
+    ("light_hole_mass", "light-hole mass [001]", "m0", ".4f"),
+    ("gamma1", "Luttinger γ1", "", ".3f"),
+    ("gamma2", "Luttinger γ2", "", ".3f"),
+    ("gamma3", "Luttinger γ3", "", ".3f"),
+    ("kane_energy_eV", "Kane energy Ep", "eV", ".3f"),
+    ("kane_F", "Kane F", "", ".3f"),
+    ("ac_eV", "deformation a_c", "eV", ".3f"),
+    ("av_eV", "deformation a_v", "eV", ".3f"),
+    ("b_eV", "deformation b", "eV", ".3f"),
+    ("c11_GPa", "C11", "GPa", ".1f"),
+    ("c12_GPa", "C12", "GPa", ".1f"),
+    ("dielectric_constant", "static dielectric constant", "", ".2f"),
+]
+
+
+def _distinct_materials(data: ReportData):
+    """[(label, Material)] for every distinct material (grade ends included)."""
+    st = data.stack
+    out = {}
+    for L in st.layers:
+        try:
+            if L.grade is None:
+                m = st.material_of(L)
+                key = L.material + ("" if not L.overrides else
+                                    " (" + ", ".join(f"{k}={v:g}" for k, v in
+                                                     sorted(L.overrides.items())) + ")")
+                out.setdefault(key, m)
+            else:
+                for name in (L.grade.start, L.grade.end):
+                    out.setdefault(name, get_material(name, st.temperature_K, st.user_materials))
+        except QwellError:
+            continue
+    if st.substrate and st.substrate not in out:
+        try:
+            out[st.substrate + " (substrate)"] = get_material(st.substrate, st.temperature_K,
+                                                              st.user_materials)
+        except QwellError:
+            pass
+    return list(out.items())
+
+
+def _citations_of(mat, field_name):
+    """Full citation strings of one parameter of one material."""
+    key = mat.sources.get(field_name)
+    out = []
+    for k in str(key).split("+") if key else ():
+        k = k.strip()
+        if k == "user":
+            out.append("user-defined value in the stack file (no published source)")
+            continue
+        try:
+            out.append(citation(k))
+        except QwellError:   # a key missing from the sources table: show the key itself
+            out.append(k)
+    return out
+
+
+def material_blocks(data: ReportData) -> list:
+    """Page 3: parameters of each distinct material with numbered citations."""
+    mats = _distinct_materials(data)
+    blocks = [Heading(f"Material parameters at {data.stack.temperature_K:g} K")]
+    if not mats:
+        blocks.append(Paragraph("No material parameters could be listed."))
+        return blocks
+    cites: list[str] = []
+
+    def num(c):
+        if c not in cites:
+            cites.append(c)
+        return cites.index(c) + 1
+
+    group = 3
+    for g0 in range(0, len(mats), group):
+        part = mats[g0:g0 + group]
+        rows = []
+        for key, label, unit, spec in _PARAM_ROWS:
+            vals = []
+            any_val = False
+            for _, m in part:
+                v = m.parameters().get(key)
+                if v is None:
+                    vals.append("—")
+                    continue
+                any_val = True
+                refs = ",".join(str(num(c)) for c in _citations_of(m, key))
+                vals.append(f"{format(v, spec)} [{refs}]" if refs else format(v, spec))
+            if any_val:
+                rows.append([label, unit] + vals)
+        blocks.append(Table(["parameter", "unit"] + [k for k, _ in part], rows,
+                            ["l", "l"] + ["r"] * len(part), wrap=tuple(range(2, 2 + len(part))),
+                            title="Parameters used" if g0 == 0 else ""))
+    blocks.append(Paragraph("Numbers in brackets refer to the sources below. Alloy values are "
+                            "interpolated from the binaries as the first source describes; band "
+                            "edges are unstrained (strain shifts appear in the band diagram).",
+                            size=8, color="0.25"))
+    blocks.append(Heading("Sources", 11.0))
+    for i, c in enumerate(cites, 1):
+        blocks.append(Paragraph(c, size=8, bullet=f"[{i}]"))
+    return blocks
+
+
+def state_blocks(data: ReportData) -> list:
+    """Page 4: states, exact and semiclassical side by side."""
+    blocks = [Heading("Subband states: exact and semiclassical")]
+    semi_states = {}
+    for lev in data.semiclassical.levels.values():
+        for s in lev.states:
+            semi_states[s.label] = s
+    exact_states = {s.label: s for s in data.exact.states}
+    rows = []
+    for r in data.comparison:
+        s = exact_states.get(r["label"])
+        w = semi_states.get(r["label"])
+        status = ""
+        if s is not None:
+            status = "bound" if s.bound else "quasi-bound"
+            if s.lifetime_s is not None:
+                status += f", τ = {s.lifetime_s:.3g} s"
+            if not s.converged:
+                status += f", NOT converged (±{s.tolerance_eV:.2g} eV)"
+        wkb = ""
+        if w is not None and w.message and "unreliable" in w.message:
+            wkb = "unreliable: coupled"
+        elif w is not None and w.validity is not None:
+            wkb = f"validity {w.validity:.2g}"
+        rows.append([r["band"].replace("_", " "), r["label"], _f(r["exact_eV"], ".6f"),
+                     _f(r["semiclassical_eV"], ".6f"), _f(r["difference_meV"], "+.3f"),
+                     _f(r["difference_percent"], "+.2f"), status, wkb])
+    if rows:
+        blocks.append(Table(["band", "state", "exact\n(eV)", "semiclassical\n(eV)", "diff\n(meV)",
+                             "diff\n(%)", "status (exact)", "semiclassical note"], rows,
+                            ["l", "l", "r", "r", "r", "r", "l", "l"], wrap=(6, 7)))
+    else:
+        blocks.append(Paragraph("No bound state in any band."))
+    blocks.append(Paragraph(
+        "Energies on the band-diagram scale (the profile's absolute scale). diff = semiclassical − "
+        "exact on the carrier scale (positive: the estimate lies too high in its band); diff % "
+        "relative to the exact confinement energy above the band's lowest edge. Exact: "
+        "transfer-matrix solution of the BenDaniel–Duke effective-mass equation [BenDaniel & Duke, "
+        "Phys. Rev. 152, 683 (1966)]; semiclassical: WKB quantisation with turning-point, hard-wall "
+        "and step phases [Berry & Mount, Rep. Prog. Phys. 35, 315 (1972)]. 'validity' is the "
+        "estimator's own figure of merit (largest |d(1/k)/dz| away from turning points, or step "
+        "reflection; 0 where the phase rule is exact, above 0.25 it warns).", size=8, color="0.25"))
+    mb = [m for lev in data.exact.levels.values() for m in lev.minibands]
+    if mb:
+        blocks.append(Table(["band", "miniband", "bottom (eV)", "top (eV)", "width (meV)",
+                             "period (nm)"],
+                            [[m.band.replace("_", " "), str(m.index), f"{m.bottom_eV:.6f}",
+                              f"{m.top_eV:.6f}", f"{1e3 * m.width_eV:.3f}", f"{m.period_nm:.3f}"]
+                             for m in mb], ["l", "r", "r", "r", "r", "r"],
+                            title="Minibands (Bloch's theorem on one period)"))
+    notes = []
+    for method, sol in (("exact", data.exact), ("semiclassical", data.semiclassical)):
+        for lev in sol.levels.values():
+            if lev.message and (method == "exact" or "unreliable" in lev.message):
+                notes.append(f"{method}, {lev.band.replace('_', ' ')}: {lev.message}")
+            if method == "exact":
+                notes += [f"exact, {lev.band.replace('_', ' ')}: {n}" for n in lev.notes]
+        notes += [f"{method}: {n}" for n in sol.notes]
+    semi_notes = [f"semiclassical, {lev.band.replace('_', ' ')}: {n}"
+                  for lev in data.semiclassical.levels.values() for n in lev.notes]
+    shown = 4
+    if notes or semi_notes:
+        blocks.append(Heading("Solver notes", 11.0))
+        for n in notes:
+            blocks.append(Paragraph(n, size=8, bullet="•"))
+        for n in semi_notes[:shown]:
+            blocks.append(Paragraph(n, size=8, bullet="•"))
+        if len(semi_notes) > shown:
+            blocks.append(Paragraph(f"… and {len(semi_notes) - shown} more semiclassical notes "
+                                    "of the same kind (see the column 'semiclassical note'); "
+                                    "the exact energies are the ones to use.",
+                                    size=8, bullet="•"))
+    return blocks
+
+
+def transition_blocks(data: ReportData) -> list:
+    """Page 5: transitions with energies, wavelengths and strengths."""
+    blocks = [Heading("Optical transitions")]
+    trans = data.exact.transitions
+    chosen = {t.name for t in data.chosen}
+    inter = [t for t in trans if t.kind == "intersubband"]
+    band = [t for t in trans if t.kind == "interband"]
+    if inter:
+        rows = [[("» " if t.name in chosen else "") + t.name, f"{t.energy_eV:.6f}",
+                 f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}", f"{t.frequency_THz:.3f}",
+                 _f(t.dipole_nm, ".4f"), _f(t.oscillator_strength, ".4f")] for t in inter]
+        blocks.append(Table(["transition", "energy\n(eV)", "λ\n(µm)", "wavenumber\n(cm⁻¹)",
+                             "frequency\n(THz)", "dipole\n|⟨i|z|j⟩| (nm)", "oscillator\nstrength f"],
+                            rows, ["l"] + ["r"] * 6,
+                            title="Intersubband (strongest first)"))
+    if band:
+        rows = [[("» " if t.name in chosen else "") + t.name, f"{t.energy_eV:.6f}",
+                 f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}", _f(t.overlap, ".4f"),
+                 _f(t.te, ".4f"), _f(t.tm, ".4f"), "yes" if t.strongest else ""] for t in band]
+        blocks.append(Table(["transition", "energy\n(eV)", "λ\n(µm)", "wavenumber\n(cm⁻¹)",
+                             "overlap\n|⟨e|h⟩|²", "TE", "TM", "Δn = 0"], rows,
+                            ["l"] + ["r"] * 6 + ["l"], title="Interband (strongest first)"))
+    if not trans:
+        blocks.append(Paragraph("No transition: fewer than two states connected optically."))
+    blocks.append(Paragraph(
+        "» marks the transitions reviewed in this report. Oscillator strength from the velocity "
+        "matrix element with the energy-dependent mass [Sirtori, Capasso, Faist, Scandolo, Phys. "
+        "Rev. B 50, 8663 (1994)], normalised so that the Thomas–Reiche–Kuhn sum rule holds for a "
+        "parabolic band. Interband TE/TM strengths: hole momentum-matrix factor × overlap, in "
+        "units of the bulk |P|² [Chuang, Physics of Optoelectronic Devices, Wiley (1995), ch. 9].",
+        size=8, color="0.25"))
+    if band:
+        blocks.append(Paragraph("Interband: " + EXCITON_NOTE + ".", size=8, color="0.25"))
+    return blocks
+
+
+def _spectrum_draw(data: ReportData):
+    """Draw function for the absorption spectra (one panel per transition kind)."""
+    trans = data.exact.transitions
+    kinds = [k for k in ("intersubband", "interband") if any(t.kind == k for t in trans)]
+    chosen = {t.name for t in data.chosen}
+
+    def draw(fig, rect):
+        left, bottom, width, height = rect
+        n = len(kinds)
+        gap = 0.06 * height
+        ph = (height - gap * (n - 1)) / max(n, 1)
+        styles = ("--", ":", "-.", (0, (5, 1, 1, 1)))
+        for i, kind in enumerate(kinds):
+            lines = [t for t in trans if t.kind == kind]
+            spec = spectrum(lines, linewidth_meV=10.0)
+            b = bottom + (n - 1 - i) * (ph + gap)
+            ax = fig.add_axes((left + 0.1 * width, b + 0.22 * ph, 0.86 * width, 0.68 * ph))
+            ax.plot(spec.wavelength_um, spec.absorption, color="black", lw=1.3)
+            ax.set_xlim(float(np.min(spec.wavelength_um)), float(np.max(spec.wavelength_um)))
+            ax.set_ylim(0, 1.25)
+            ax.set_xlabel("wavelength (µm)", fontsize=8)
+            ax.set_ylabel("absorption (peak = 1)", fontsize=8)
+            ax.tick_params(labelsize=8)
+            what = ("intersubband, weight f" if kind == "intersubband"
+                    else "interband, TE weight; excitons not included")
+            ax.set_title(f"{what}; Lorentzian lines, FWHM 10 meV", fontsize=8)
+            k = 0
+            marks = []
+            for t in lines:
+                if t.name not in chosen:
+                    continue
+                ax.axvline(t.wavelength_um, color="#0072B2", ls=styles[k % len(styles)], lw=1.0)
+                marks.append((t.wavelength_um, t.name))
+                k += 1
+            if marks:
+                xs = np.array([m[0] for m in marks])
+                lo, hi = ax.get_xlim()
+                ax_w_pt = 0.86 * width * fig.get_figwidth() * 72.0
+                gap_data = 60.0 / ax_w_pt * (hi - lo)
+                pos = spread_positions(xs, gap_data, lo + 0.5 * gap_data, hi - 0.5 * gap_data)
+                for (_x, name), px in zip(marks, pos):
+                    ax.text(px, 1.12, name, ha="center", va="center", fontsize=8,
+                            color="#0072B2", parse_math=False)
+    return draw, len(kinds)
+
+
+def sensitivity_blocks(data: ReportData) -> list:
+    """Page 6: wavelength sensitivity table and the absorption spectrum."""
+    blocks = [Heading("Sensitivity to growth errors")]
+    if data.sensitivity:
+        by_t = {}
+        for r in data.sensitivity:
+            by_t.setdefault(r.transition, []).append(r)
+        lam0 = {t.name: t.wavelength_um for t in data.chosen}
+        for name, rows in by_t.items():
+            trs = [[r.layer, r.parameter, r.step_text, _f(r.minus_nm, "+.2f", "—"),
+                    _f(r.plus_nm, "+.2f", "—"), r.note] for r in rows]
+            blocks.append(Table(["layer", "parameter", "step", "Δλ for\n−step (nm)",
+                                 "Δλ for\n+step (nm)", "note"], trs,
+                                ["l", "l", "l", "r", "r", "l"], wrap=(5,),
+                                title=f"{name}: λ = {lam0.get(name, float('nan')):.5f} µm"))
+        blocks.append(Paragraph(
+            "Each layer parameter is changed alone: the thickness by one monolayer (a/2 of the "
+            "layer's material), the composition by ±0.01 (x, y as in the alloy family's formula, "
+            "e.g. Al(x)Ga(1−x)As, the paths of qwell.design); the changed stack is solved again "
+            "with the exact solver. A layer named inside a repeat changes in every period "
+            "(×N).", size=8, color="0.25"))
+    else:
+        blocks.append(Paragraph("No sensitivity table."))
+    for n in data.sensitivity_notes:
+        blocks.append(Paragraph(n, size=8, bullet="•", color="0.25"))
+    draw, n = _spectrum_draw(data)
+    if n:
+        blocks.append(Heading("Absorption spectrum", 11.0, keep=190.0 * n))
+        blocks.append(FigureBlock(190.0 * n, draw))
+    return blocks
+
+
+def design_cautions(data: ReportData) -> list:
+    """The cautions specific to this design (listed under 'For this design')."""
+    own = list(data.profile.warnings)
+    unconv = [s.label for s in data.exact.states if not s.converged]
+    if unconv:
+        own.append("states not converged to the tolerance: " + ", ".join(unconv))
+    if data.charge is not None:
+        own.append("states, transitions and sensitivities use the self-consistent "
+                   "(Schrödinger–Poisson) potential of the doping; donors are taken as fully "
+                   "ionised unless a donor level is given")
+    if any(t.kind == "interband" for t in data.exact.transitions):
+        own.append(EXCITON_NOTE)
+    if data.warnings:
+        n_semi = sum(1 for w in data.warnings if "unreliable" in w)
+        other = [w for w in data.warnings if "unreliable" not in w]
+        if n_semi:
+            own.append(f"semiclassical estimate flagged unreliable for {n_semi} state(s) "
+                       "(tunnel-coupled regions); use the exact energies")
+        own += other
+    return own
+
+
+def caution_blocks(data: ReportData) -> list:
+    """Page 7: cautions (the fixed :data:`CAUTIONS` and this design's warnings)."""
+    blocks = [Heading("Cautions")]
+    for c in CAUTIONS:
+        blocks.append(Paragraph(c, size=9.5, bullet="•"))
+    own = design_cautions(data)
+    if own:
+        blocks.append(Heading("For this design", 11.0))
+        for w in own:
+            blocks.append(Paragraph(w, size=9, bullet="•"))
+    return blocks
+
+
+def report_pages(data: ReportData) -> list[list[Item]]:
+    """Lay out all sections (each starts on a new page); returns the pages' items."""
+    flow = Flow()
+    sections = [diagram_blocks, stack_blocks, material_blocks, state_blocks, transition_blocks,
+                sensitivity_blocks, caution_blocks]
+    for k, sec in enumerate(sections):
+        if k:
+            PageBreak().place(flow)
+        for b in sec(data):
+            b.place(flow)
+    return [p for p in flow.pages if p]
+
+
+
+def render_pdf(data: ReportData) -> tuple[bytes, int]:
+    """The report as PDF bytes and its page count (nothing written to disk)."""
+    pages = report_pages(data)
+    meta = {"Title": f"qwell design review: {data.stack.name}",
+            "Creator": f"qwell {__version__}", "Subject": "quantum-well design review",
+            "CreationDate": data.created_utc}
+    footers = [footer_lines(data, i, len(pages)) for i in range(1, len(pages) + 1)]
+    return typeset_pdf(pages, footers, meta), len(pages)
