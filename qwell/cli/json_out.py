@@ -12,9 +12,11 @@ import math
 
 import numpy as np
 
+from ..levels import compare_methods, depolarised_lines
+
 __all__ = ["material_list_json", "material_json", "layer_profile_json", "profile_json",
            "self_consistent_json", "self_consistent_profile_json", "state_json",
-           "miniband_json", "transition_json", "solution_json", "comparison_json",
+           "miniband_json", "transition_json", "solution_json", "comparison_json", "levels_json",
            "spectrum_json", "size_json", "sweep_json", "monte_carlo_json", "tolerance_json"]
 
 
@@ -177,12 +179,32 @@ def solution_json(solution, transitions=None, *, wavefunctions: bool = False) ->
     }
 
 
-def comparison_json(stack, solutions: dict, transitions: dict, comparison: list) -> dict:
+def comparison_json(stack, solutions: dict, transitions: dict) -> dict:
     """Both methods side by side: each solution, and the per-state comparison rows
     of :func:`qwell.levels.compare_methods`."""
     return {"stack": stack.name, "temperature_K": stack.temperature_K, "method": "both",
             "methods": {m: solution_json(sol, transitions[m]) for m, sol in solutions.items()},
-            "comparison": comparison}
+            "comparison": compare_methods(solutions["exact"], solutions["semiclassical"])}
+
+
+def levels_json(stack, solutions: dict, transitions: dict, *, spectrum=None,
+                wavefunctions: bool = False) -> dict:
+    """The ``qwell levels --json`` document.
+
+    One method: its solution with ``transitions[method]``, the depolarisation-
+    shifted lines of a doped stack, each state's envelope (``wavefunctions``)
+    and the plotted ``spectrum`` when given.  Two methods:
+    :func:`comparison_json`.
+    """
+    if len(solutions) > 1:
+        return comparison_json(stack, solutions, transitions)
+    (m, sol), = solutions.items()
+    out = solution_json(sol, transitions[m], wavefunctions=wavefunctions)
+    if sol.self_consistent is not None:
+        out["depolarisation"] = depolarised_lines(sol)
+    if spectrum is not None:
+        out["spectrum"] = spectrum_json(spectrum)
+    return out
 
 
 def spectrum_json(spec) -> dict:

@@ -8,7 +8,7 @@ from ..errors import QwellError
 from ..levels import compare_methods, depolarised_lines, solve_profile
 from ..optics import plot_spectrum, select_transitions, spectrum, strength
 from .common import add_self_consistent_option, load, print_json, profile_and_charge, table
-from .json_out import comparison_json, solution_json, spectrum_json
+from .json_out import levels_json
 
 __all__ = ["register", "cmd_levels", "LevelsOptions"]
 
@@ -105,7 +105,8 @@ def cmd_levels(args) -> int:
                   else s.transitions) for m, s in sols.items()}
     spec = write_spectrum(stack, sols, chosen, opts) if opts.png else None
     if opts.json:
-        print_json(levels_json(stack, sols, chosen, spec, opts))
+        print_json(levels_json(stack, sols, chosen, spectrum=spec,
+                               wavefunctions=opts.wavefunctions))
     else:
         print_levels(stack, sols, chosen, opts)
     return 0
@@ -149,24 +150,6 @@ def write_spectrum(stack, sols: dict, chosen: dict, opts: LevelsOptions):
     plot_spectrum(spec, opts.png, axis=opts.axis, title=f"{stack.name}: {what}",
                   protect=[opts.stack_path])
     return spec
-
-
-# ---------------------------------------------------------------------------
-# JSON
-# ---------------------------------------------------------------------------
-def levels_json(stack, sols: dict, chosen: dict, spec, opts: LevelsOptions) -> dict:
-    """The ``--json`` document: one solution (with depolarisation, envelopes and spectrum
-    when present), or both methods side by side."""
-    if len(sols) > 1:
-        return comparison_json(stack, sols, chosen,
-                               compare_methods(sols["exact"], sols["semiclassical"]))
-    (m, sol), = sols.items()
-    out = solution_json(sol, chosen[m], wavefunctions=opts.wavefunctions)
-    if sol.self_consistent is not None:
-        out["depolarisation"] = depolarised_lines(sol)
-    if spec is not None:
-        out["spectrum"] = spectrum_json(spec)
-    return out
 
 
 # ---------------------------------------------------------------------------
