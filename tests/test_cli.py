@@ -1,6 +1,7 @@
 """Command line: JSON contracts, readable tables, one-line errors with exit status 2."""
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -282,3 +283,39 @@ def test_levels_json_wavefunctions_and_spectrum(capsys, tmp_path):
         assert sum(s["layer_probability"]) == pytest.approx(1.0, abs=1e-9)
     spec = js["spectrum"]
     assert len(spec["energy_eV"]) == len(spec["absorption"]) and max(spec["absorption"]) == pytest.approx(1.0)
+
+
+def test_parser_has_the_commands_the_readme_lists():
+    # The README's command table is the user's list of commands; a second parser built in the
+    # same process has the same commands (nothing is registered into shared state).
+    from qwell.cli import build_parser
+    readme = (ROOT / "README.md").read_text()
+    listed = set(re.findall(r"^\| `qwell (\w+)", readme, flags=re.M))
+    assert listed == {"materials", "profile", "levels", "size", "sweep", "tolerance", "report"}
+    for _ in range(2):
+        sub = next(a for a in build_parser()._actions if a.dest == "command")
+        assert set(sub.choices) == listed
+
+
+def test_cli_modules_import_at_the_top_only():
+    # The dependency graph of the command line is visible at the top of each module
+    # (common practice, no source): no import statement inside a function or class.
+    import ast
+    for path in sorted((ROOT / "qwell" / "cli").glob("*.py")):
+        tree = ast.parse(path.read_text())
+        for node in ast.walk(tree):
+            if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)):
+                inner = [n for n in ast.walk(node) if isinstance(n, (ast.Import, ast.ImportFrom))]
+                assert not inner, f"{path.name}: import inside {node.name}"
+
+
+def test_self_consistent_flag_does_not_outlive_its_command(capsys):
+    # A --self-consistent run followed by a plain one in the same process: the second is the
+    # flat-band solve again (no Schrödinger-Poisson summary in its JSON).
+    lw = str(ROOT / "layers" / "lwir-detector.yaml")
+    rc, out, err = run(capsys, "levels", lw, "--band", "conduction", "--json", "--self-consistent")
+    assert rc == 0, err
+    assert json.loads(out)["self_consistent"] is not None
+    rc, out, err = run(capsys, "levels", lw, "--band", "conduction", "--json")
+    assert rc == 0, err
+    assert json.loads(out)["self_consistent"] is None

@@ -1,4 +1,4 @@
-"""Design workflows (qwell.design, qwell.design_cli): parameters, sizing, sweeps, tolerances.
+"""Design workflows (qwell.design, qwell.cli.design): parameters, sizing, sweeps, tolerances.
 
 External references used here: CODATA constants via scipy.constants; the
 finite square well with BenDaniel–Duke matching solved independently in this
@@ -629,15 +629,6 @@ layers:
 # ---------------------------------------------------------------------------
 # command line
 # ---------------------------------------------------------------------------
-@pytest.fixture(autouse=True)
-def _fresh_cli_commands(monkeypatch):
-    # qwell.cli.main appends the optional command modules to _EXTRA_COMMANDS on every call;
-    # give each test a fresh list so that repeated main() calls build one parser each.
-    import qwell.cli as cli
-
-    monkeypatch.setattr(cli, "_EXTRA_COMMANDS", [])
-
-
 def _one_line_error(capsys):
     err = capsys.readouterr().err.strip()
     assert err.startswith("qwell: error:") and "\n" not in err

@@ -1,0 +1,107 @@
+"""Command line of qwell: a thin layer over the Python API.
+
+Every command reads its inputs, calls the API and prints a readable table or
+(with ``--json``) the machine-readable contract (:mod:`qwell.cli.json_out`).
+Any :class:`QwellError` becomes one line on stderr and exit status 2; nothing
+is half-written.
+
+One module per command group adds its sub-commands with ``register``:
+:mod:`~qwell.cli.materials`, :mod:`~qwell.cli.profile`,
+:mod:`~qwell.cli.levels`, :mod:`~qwell.cli.design` (size, sweep, tolerance)
+and :mod:`~qwell.cli.report`; :mod:`~qwell.cli.common` holds what they share.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import re
+import sys
+import warnings
+
+from .. import __version__
+from ..errors import QwellError, QwellWarning
+from . import design, levels, materials, profile, report
+from .common import EXIT_USAGE
+
+__all__ = ["main", "build_parser", "EXIT_USAGE"]
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, exit 2
+        self.exit(EXIT_USAGE, f"{self.prog}: error: {message}\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The ``qwell`` argument parser with every sub-command."""
+    p = _Parser(prog="qwell", description="Quantum-well layer-stack design: profiles, subbands, "
+                "transitions, sizing, sweeps and design-review reports.")
+    p.add_argument("--version", action="version", version=f"qwell {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    materials.register(sub)
+    profile.register(sub)
+    levels.register(sub)
+    design.register(sub)
+    report.register(sub)
+    return p
+
+
+_NEGATIVE_VALUE = re.compile(r"^-(\d|\.\d)")
+
+
+def _join_negative_values(argv):
+    """Let '--to -2nm' mean '--to=-2nm' (argparse would take '-2nm' for an option)."""
+    out = []
+    for tok in argv:
+        if (out and out[-1].startswith("--") and "=" not in out[-1]
+                and _NEGATIVE_VALUE.match(tok)):
+            out[-1] = f"{out[-1]}={tok}"
+        else:
+            out.append(tok)
+    return out
+
+
+def _error_line(exc: QwellError) -> str:
+    """The one stderr line of a user error (a refused self-consistent loop adds its history)."""
+    msg = str(exc)
+    hist = getattr(exc, "history", None)
+    if hist and "history" not in msg:
+        shown = ", ".join(f"{h:.3g}" for h in list(hist)[-12:])
+        msg += f" (residual history, meV: {shown})"
+    return f"qwell: error: {msg}"
+
+
+def main(argv=None) -> int:
+    """Run ``qwell`` with ``argv`` (default ``sys.argv[1:]``); returns the exit status."""
+    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    args = parser.parse_args(_join_negative_values(argv))
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return EXIT_USAGE
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", QwellWarning)
+        try:
+            rc = args.func(args)
+        except QwellError as exc:
+            print(_error_line(exc), file=sys.stderr)
+            return EXIT_USAGE
+        except KeyboardInterrupt:
+            print("qwell: interrupted", file=sys.stderr)
+            return 130
+        except BrokenPipeError:
+            return 0
+        except Exception as exc:  # a bug: one line, details on request
+            if os.environ.get("QWELL_DEBUG"):
+                raise
+            print(f"qwell: internal error: {type(exc).__name__}: {exc} "
+                  "(set QWELL_DEBUG=1 for details; please report it)", file=sys.stderr)
+            return 1
+    seen = set()
+    for w in caught:
+        if issubclass(w.category, QwellWarning):
+            msg = str(w.message)
+            if msg not in seen:
+                seen.add(msg)
+                print(f"warning: {msg}", file=sys.stderr)
+    return rc

@@ -1,0 +1,114 @@
+"""What every command shares: stack loading, tables, number formats, JSON printing.
+
+Nothing here holds state between calls; the options of one invocation are
+passed in as arguments.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+from dataclasses import replace
+
+import numpy as np
+
+from ..levels import prepare_profile
+from ..stack import load_stack
+
+__all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
+           "table", "fmt", "unit_text", "add_self_consistent_option"]
+
+#: Exit status of every user error (bad input, bad option).
+EXIT_USAGE = 2
+
+
+def add_self_consistent_option(parser) -> None:
+    """Add ``--self-consistent`` to a command that loads a stack."""
+    parser.add_argument("--self-consistent", action="store_true",
+                        help="solve Schrödinger–Poisson with the stack's doping first "
+                             "(also set by 'self_consistent: true' in the stack)")
+
+
+def load(path, self_consistent: bool = False):
+    """Load a stack; ``self_consistent`` (the ``--self-consistent`` flag) switches on the
+    charged path as if the stack said ``self_consistent: true``."""
+    stack = load_stack(path)
+    if self_consistent and not stack.self_consistent:
+        stack = replace(stack, self_consistent=True,
+                        raw={**dict(stack.raw), "self_consistent": True})
+    return stack
+
+
+def profile_and_charge(stack, *, quiet: bool):
+    """``(profile, sc)`` of a stack (see :func:`qwell.levels.prepare_profile`).
+
+    Unless ``quiet`` (JSON output), a self-consistent result is summarised on
+    stdout first.
+    """
+    prof, sc = prepare_profile(stack)
+    if sc is not None and not quiet:
+        print_self_consistent(sc)
+    return prof, sc
+
+
+def print_self_consistent(sc) -> None:
+    """Iterations, residuals, Fermi level and occupied sheet densities, then a blank line."""
+    ef = sc.fermi_level_eV
+    print(f"self-consistent (Schrödinger–Poisson): {sc.iterations} iterations, residual "
+          f"{sc.residual_meV:.3g} meV, charge residual {sc.charge_residual:.2g}, Fermi level "
+          + ("not defined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV"))
+    occ = {k: v for k, v in sc.sheet_densities_cm2.items() if v > 0}
+    if occ:
+        print("sheet densities: " + ", ".join(f"{k} {v:.4g} cm⁻²" for k, v in occ.items()))
+    print()
+
+
+def print_json(obj) -> None:
+    """Write ``obj`` as indented JSON to stdout; non-finite floats become null."""
+    def default(o):
+        if isinstance(o, np.ndarray):
+            return o.tolist()
+        if isinstance(o, (np.floating, np.integer)):
+            return o.item()
+        raise TypeError(type(o).__name__)
+
+    def clean(o):
+        if isinstance(o, float) and not math.isfinite(o):
+            return None
+        if isinstance(o, dict):
+            return {k: clean(v) for k, v in o.items()}
+        if isinstance(o, (list, tuple)):
+            return [clean(v) for v in o]
+        return o
+
+    json.dump(clean(obj), sys.stdout, indent=1, default=default)
+    sys.stdout.write("\n")
+
+
+def table(rows, headers, aligns=None) -> str:
+    """Plain-text table: a header line, a rule, one line per row; ``None`` cells empty."""
+    rows = [[("" if c is None else str(c)) for c in r] for r in rows]
+    widths = [max([len(h)] + [len(r[i]) for r in rows]) for i, h in enumerate(headers)]
+    aligns = aligns or ["<"] * len(headers)
+
+    def line(r):
+        return "  ".join(f"{c:{a}{w}}" for c, a, w in zip(r, aligns, widths)).rstrip()
+    out = [line(headers), line(["-" * w for w in widths])]
+    out += [line(r) for r in rows]
+    return "\n".join(out)
+
+
+def fmt(v, spec=".6g", none="—") -> str:
+    """``format(v, spec)``; ``none`` for None or non-finite; no '-0.000' from rounding noise."""
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return none
+    text = format(v, spec)
+    if text.startswith("-") and not any(ch in "123456789" for ch in text.split("e")[0]):
+        text = ("+" if "+" in spec else "") + text[1:]
+    return text
+
+
+def unit_text(unit) -> str:
+    """' nm' for a unit, '' for a plain fraction."""
+    return "" if unit == "fraction" else f" {unit}"
