@@ -76,8 +76,8 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-from scipy import constants as _c
 
+from .constants import EV_PER_CM1, EV_PER_THZ, HBAR2_2M0_EV_NM2, HC_EV_UM
 from .errors import ParameterError
 
 __all__ = [
@@ -97,12 +97,10 @@ __all__ = [
     "HBAR2_2M0_EV_NM2",
 ]
 
-#: h c [eV um] from CODATA via scipy.constants (1.239842 eV um).
-HC_EV_UM = _c.h * _c.c / _c.e * 1e6
-#: ħ²/(2 m0) [eV nm²] from CODATA via scipy.constants (0.0380998 eV nm²).
-HBAR2_2M0_EV_NM2 = _c.hbar ** 2 / (2.0 * _c.m_e) / _c.e * 1e18
-_EV_TO_CM1 = _c.e / (_c.h * _c.c) / 100.0
-_EV_TO_THZ = _c.e / _c.h / 1e12
+# HC_EV_UM (h c [eV um]) and HBAR2_2M0_EV_NM2 (ħ²/(2 m0) [eV nm²]) come from
+# qwell.constants; they stay importable from here.
+_EV_TO_CM1 = 1.0 / EV_PER_CM1
+_EV_TO_THZ = 1.0 / EV_PER_THZ
 
 #: Note attached to interband results and spectra.
 EXCITON_NOTE = ("excitonic binding is not included: interband line energies are "

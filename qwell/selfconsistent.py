@@ -70,14 +70,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.sparse as sp
-from scipy import constants as _c
 from scipy.integrate import cumulative_trapezoid
 from scipy.optimize import brentq
 from scipy.sparse.linalg import spsolve
 from scipy.special import expit
 
+from .constants import E_C, EPS0_F_PER_M, HBAR2_2M0_EV_NM2, HBAR_J_S, KB_EV_PER_K, M0_KG
 from .errors import ConvergenceError, ParameterError, ValidityWarning
-from .poisson import (KB_EV_PER_K, POISSON_EV_NM2_PER_CM3, build_grid, doping_on_grid,
+from .poisson import (POISSON_EV_NM2_PER_CM3, build_grid, doping_on_grid,
                       ionised_donors_cm3, ionised_donors_derivative, poisson_operator,
                       sheet_density_2d, sheet_density_2d_derivative, solve_poisson)
 from .profile import Profile, band_profile
@@ -87,7 +87,6 @@ __all__ = ["SelfConsistentResult", "solve_self_consistent", "sheet_density_2d",
 
 MIXING_SCHEMES = ("anderson", "predictor", "linear")
 _HOLE_BANDS = ("heavy_hole", "light_hole")
-_HB2_2M0_EV_NM2 = _c.hbar ** 2 / (2 * _c.m_e) / _c.e * 1e18   # hbar^2/(2 m0) [eV nm^2]
 _PSI2_PER_NM_TO_CM = 1e7          # |psi|^2 [nm^-1] -> [cm^-1]
 #: States further than this plus 40 kT beyond the Fermi level are not solved in the
 #: loop (occupation below exp(-40)); the margin covers the Fermi-level change
@@ -290,7 +289,7 @@ class _ThomasFermiCharge:
     before the first Schrödinger solution; not a result.
     """
 
-    _C = (2.0 * _c.m_e * _c.e / _c.hbar ** 2) ** 1.5 / (3.0 * math.pi ** 2) * 1e-6  # cm^-3 eV^-3/2
+    _C = (2.0 * M0_KG * E_C / HBAR_J_S ** 2) ** 1.5 / (3.0 * math.pi ** 2) * 1e-6  # cm^-3 eV^-3/2
 
     def __init__(self, grid, doping, ec0_eV, mass_m0, temperature_K):
         self.grid, self.doping, self.ec0 = grid, doping, ec0_eV
@@ -497,7 +496,7 @@ def _fd_levels(band, tolerance_eV, margin_limit_eV=None, step_nm=0.05,
     h = (z1 - z0) / n
     z = z0 + h * np.arange(1, n)                 # interior nodes (psi = 0 at z0, z1)
     zm = z0 + h * (np.arange(n) + 0.5)           # mid-points, one more than nodes
-    c = _HB2_2M0_EV_NM2
+    c = HBAR2_2M0_EV_NM2
     # a node or mid-point that falls exactly on an interface takes the mean of both sides
     # (otherwise the piece look-up would favour one side and break mirror symmetry)
     d = 1e-9 * h
@@ -866,6 +865,6 @@ def depolarisation_shift(solution_or_states, band: str, transition, sheet_densit
         raise ParameterError("dielectric_constant must be positive")
     s_nm = coulomb_overlap_nm(s1, s2)
     # e^2 n_s S / (eps0) in eV: (e/eps0 [V m]) * n_s [m^-2] * S [m]
-    alpha = 2.0 * (_c.e / _c.epsilon_0) * (sheet_density_cm2 * 1e4) * (s_nm * 1e-9) \
+    alpha = 2.0 * (E_C / EPS0_F_PER_M) * (sheet_density_cm2 * 1e4) * (s_nm * 1e-9) \
         / (dielectric_constant * e21)
     return float(e21 * (math.sqrt(1.0 + alpha) - 1.0))

@@ -1,7 +1,7 @@
 """Tests of the Schrödinger–Poisson loop (qwell.poisson, qwell.selfconsistent).
 
 Every reference is computed inside the test from a closed form, a special
-function of scipy, CODATA constants (scipy.constants) or an independent
+function of scipy, CODATA 2018 constants (qwell.constants) or an independent
 numerical method written here; the source of each formula is named beside
 the check.  All stacks are invented scenarios with user materials whose
 parameters are written out in the YAML.
@@ -10,14 +10,15 @@ parameters are written out in the YAML.
 from __future__ import annotations
 
 import math
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
-from scipy import constants as const
 from scipy.integrate import quad
 from scipy.optimize import brentq
 from scipy.special import airy
 
+from qwell import constants as codata
 from qwell.errors import ConvergenceError, ParameterError
 from qwell.levels import solve_stack
 from qwell.poisson import (build_grid, doping_on_grid, sheet_density_2d, solve_poisson)
@@ -26,7 +27,11 @@ from qwell.selfconsistent import (coulomb_overlap_nm, depolarisation_shift,
 from qwell.solvers.results import State
 from qwell.stack import stack_from_text
 
-KT_EV_PER_K = const.k / const.e                        # CODATA via scipy.constants
+# CODATA 2018 (E. Tiesinga et al., Rev. Mod. Phys. 93, 025010 (2021)) as carried by
+# qwell.constants (checked against the published digits in tests/test_constants.py)
+const = SimpleNamespace(e=codata.E_C, m_e=codata.M0_KG, hbar=codata.HBAR_J_S, k=codata.KB_J_PER_K,
+                        epsilon_0=codata.EPS0_F_PER_M)
+KT_EV_PER_K = const.k / const.e
 HB2_2M0 = const.hbar ** 2 / (2 * const.m_e) / const.e * 1e18   # hbar^2/2m0 [eV nm^2]
 
 

@@ -1,19 +1,20 @@
 """Tests of the semiclassical (WKB) estimator against closed forms and
 independent solutions written here.
 
-Constants: hbar, m_e, e from CODATA via ``scipy.constants``.
+Constants: hbar^2/(2 m0) from CODATA 2018 (``qwell.constants``, checked against the
+published values in tests/test_constants.py).
 """
 
 import warnings
 
 import numpy as np
 import pytest
-from scipy import constants as sc
 from scipy import special
 from scipy.linalg import eigh_tridiagonal
 from scipy.optimize import brentq
 
 from qwell.bands import Band, Piece, band_from_layers
+from qwell.constants import HBAR2_2M0_EV_NM2
 from qwell.errors import ParameterError, ValidityWarning
 from qwell.solvers.semiclassical import (
     VALIDITY_THRESHOLD,
@@ -21,8 +22,8 @@ from qwell.solvers.semiclassical import (
     solve_semiclassical,
 )
 
-# hbar^2/(2 m0) in eV nm^2, CODATA via scipy.constants
-C_EV_NM2 = sc.hbar ** 2 / (2 * sc.m_e) / sc.e * 1e18
+# hbar^2/(2 m0) in eV nm^2, CODATA 2018 (Tiesinga et al., Rev. Mod. Phys. 93, 025010 (2021))
+C_EV_NM2 = HBAR2_2M0_EV_NM2
 M_GAAS = 0.067      # GaAs electron mass [m0], Vurgaftman et al., J. Appl. Phys. 89, 5815 (2001) (from memory)
 
 
