@@ -86,6 +86,7 @@ from scipy.integrate import cumulative_trapezoid
 
 from .constants import E_C, EPS0_F_PER_M, EV_PER_CM1, EV_PER_THZ, HBAR2_2M0_EV_NM2, HC_EV_UM
 from .errors import ParameterError
+from .fileio import atomic_savefig
 from .solvers import Levels
 
 __all__ = [
@@ -704,12 +705,11 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
     its name, strongest first, at most 12 labels and none overlapping; the
     number of unlabelled lines is printed in the corner.
     """
+    # matplotlib is heavy and only needed here: imported on first use
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
-
-    from .fileio import atomic_savefig
 
     ax_kind = str(axis).lower()
     if ax_kind not in ("wavelength", "energy"):

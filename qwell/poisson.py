@@ -72,6 +72,7 @@ from scipy.special import expit
 
 from .constants import E_C, EPS0_F_PER_M, HBAR_J_S, KB_EV_PER_K, M0_KG
 from .errors import MaterialError, StackError
+from .materials import grade_function
 
 __all__ = [
     "POISSON_EV_NM2_PER_CM3",
@@ -192,8 +193,6 @@ def _layer_dielectric(stack, layer):
     if layer.grade is None:
         mats = [stack.material_of(layer)]
     else:
-        from .materials import grade_function
-
         fn = grade_function(layer.grade.start, layer.grade.end, stack.temperature_K,
                             stack.user_materials)
         mats = [fn(0.0), fn(1.0)]

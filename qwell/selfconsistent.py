@@ -565,7 +565,7 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
     if not (tolerance_meV > 0):
         raise ParameterError("tolerance_meV must be positive")
     if fermi_level_eV is None:
-        fermi_level_eV = getattr(stack, "fermi_level_eV", None)
+        fermi_level_eV = stack.fermi_level_eV
     fixed_fermi = fermi_level_eV is not None
     boundary = "left" if fixed_fermi else "neutral"
     T = float(stack.temperature_K)

@@ -623,6 +623,7 @@ def minibands(band: Band, repeat: RepeatInfo, *, max_bands: int = 10) -> tuple[M
     Kronig and Penney, Proc. R. Soc. A 130, 499 (1931); Bastard, Phys. Rev. B
     24, 5693 (1981).
     """
+    # scipy.optimize is heavy and only needed for minibands: imported on first use
     from scipy.optimize import brentq
 
     z0, d = repeat.z_start_nm, repeat.period_nm
