@@ -155,7 +155,7 @@ def solve_finite_difference(band: Band, *, tolerance_eV: float = 1e-7,
     >>> band = band_from_layers([(20, 0.3, 0.067), (10, 0.0, 0.067), (20, 0.3, 0.067)])
     >>> lev = solve_finite_difference(band, tolerance_eV=1e-4)
     >>> round(lev["e1"].energy_eV, 3)
-    0.031
+    0.034
     """
     if not tolerance_eV > 0:
         raise ParameterError("tolerance_eV must be positive")
