@@ -275,6 +275,7 @@ def _airy_finite_barrier(slope_eV_nm, barrier_eV, mass):
     return e, (zin + zout) / (norm_in + norm_out)
 
 
+@pytest.mark.slow      # ~2 s: a 10 eV wall needs a fine Schroedinger-Poisson solve
 def test_triangular_limit_against_airy():
     # Depletion charge only (n_s = 1e8 cm^-2 << N_depl = 5e11 cm^-2): the channel is the
     # triangular well of the field e N_depl/(eps eps0); compare e1 and <z> with the exact
@@ -290,6 +291,7 @@ def test_triangular_limit_against_airy():
     assert _mean_z(e1) - 30.0 == pytest.approx(z_ref, rel=5e-4)
 
 
+@pytest.mark.slow      # ~2 s per case
 @pytest.mark.parametrize("ns,ndepl", [(3e11, 1e11), (1e11, 1e11), (2e11, 2e11)])
 def test_fang_howard(ns, ndepl):
     # Fang–Howard variational result for a 2D electron gas at an impenetrable wall:
