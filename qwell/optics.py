@@ -336,7 +336,7 @@ def intersubband_matrices(states, band) -> MatrixElements:
     sum rule holds for parabolic bands).  Fully vectorised: a few dense
     matrix products over the grid.
     """
-    states = list(getattr(states, "states", states))
+    states = list(states.states if isinstance(states, Levels) else states)
     if not states:
         raise ParameterError("no states given")
     missing = [s.label for s in states if s.z_nm is None or s.psi is None]
@@ -418,10 +418,12 @@ def intersubband_transitions(levels, band, *, include_quasi_bound: bool = True
     (1994) (velocity form with energy-dependent mass); W. Kuhn, Z. Phys. 33,
     408 (1925); F. Reiche and W. Thomas, Z. Phys. 34, 510 (1925) (sum rule).
     """
-    lev_band = getattr(levels, "band", None)
-    if lev_band is not None and getattr(band, "name", lev_band) != lev_band:
-        raise ParameterError(f"levels are of band {lev_band!r} but band is {band.name!r}")
-    states = list(getattr(levels, "states", levels))
+    if isinstance(levels, Levels):
+        if band is not None and band.name != levels.band:
+            raise ParameterError(f"levels are of band {levels.band!r} but band is {band.name!r}")
+        states = list(levels.states)
+    else:
+        states = list(levels)
     if not include_quasi_bound:
         states = [s for s in states if s.bound]
     if len(states) < 2:
@@ -502,15 +504,15 @@ def interband_transitions(electrons, electron_band, holes, hole_band) -> tuple[T
     ParameterError
         If the hole band is not heavy_hole or light_hole.
     """
-    hname = getattr(hole_band, "name", None) or getattr(holes, "band", None)
+    lev_band = holes.band if isinstance(holes, Levels) else None
+    hname = (hole_band.name if hole_band is not None else None) or lev_band
     if hname not in TE_TM_FACTORS:
         raise ParameterError(f"interband transitions need a heavy_hole or light_hole band, got {hname!r}")
-    lev_band = getattr(holes, "band", None)
     if lev_band is not None and lev_band != hname:
         raise ParameterError(f"hole levels are of band {lev_band!r} but hole_band is {hname!r}")
     fte, ftm = TE_TM_FACTORS[hname]
-    es = list(getattr(electrons, "states", electrons))
-    hs = list(getattr(holes, "states", holes))
+    es = list(electrons.states if isinstance(electrons, Levels) else electrons)
+    hs = list(holes.states if isinstance(holes, Levels) else holes)
     if not es or not hs:
         return ()
     have = len(_states_with_psi(es)) == len(es) and len(_states_with_psi(hs)) == len(hs)
