@@ -6,6 +6,7 @@ an input file the caller names in ``protect``.
 
 from __future__ import annotations
 
+import io
 import os
 import tempfile
 from pathlib import Path
@@ -71,8 +72,6 @@ def atomic_write_text(path, text: str, protect=()) -> Path:
 
 def atomic_savefig(fig, path, protect=(), **kwargs) -> Path:
     """Save a matplotlib figure atomically; the format follows the file suffix."""
-    import io
-
     path = _check_target(Path(path), protect)
     fmt = kwargs.pop("format", None) or (path.suffix.lstrip(".").lower() or "png")
     supported = fig.canvas.get_supported_filetypes()

@@ -10,12 +10,19 @@ This is the Python API behind ``qwell levels``::
 
 from __future__ import annotations
 
+import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 
+from . import optics
 from .bands import BAND_NAMES
 from .errors import ParameterError
+from .optics import Transition, depolarisation_shift
 from .profile import Profile, band_profile
-from .solvers import METHODS, solve
+from .selfconsistent import SelfConsistentResult, solve_self_consistent
+from .solvers import METHODS, Levels, solve
+from .stack import Stack
+from .units import HC_EV_UM
 
 __all__ = ["Solution", "solve_stack", "solve_profile", "BAND_CHOICES"]
 
@@ -31,7 +38,8 @@ class Solution:
     stack : qwell.stack.Stack
     profile : Profile
     method : str
-    levels : dict
+        Solver name (a key of :data:`qwell.solvers.METHODS`).
+    levels : Mapping[str, Levels]
         Band name -> :class:`~qwell.solvers.results.Levels`.
     transitions : tuple of qwell.optics.Transition
         Intersubband (conduction) and interband lines, strongest first.
@@ -40,13 +48,13 @@ class Solution:
         The Schrödinger–Poisson result when the profile is self-consistent.
     """
 
-    stack: object
+    stack: Stack
     profile: Profile
     method: str
-    levels: dict
-    transitions: tuple = ()
-    notes: tuple = field(default=())
-    self_consistent: object = None
+    levels: Mapping[str, Levels]
+    transitions: tuple[Transition, ...] = ()
+    notes: tuple[str, ...] = field(default=())
+    self_consistent: SelfConsistentResult | None = None
 
     @property
     def states(self):
@@ -82,7 +90,6 @@ class Solution:
 
 def self_consistent_json(sc) -> dict:
     """Summary of a Schrödinger–Poisson result for JSON output."""
-    import math
     ef = sc.fermi_level_eV
     return {"fermi_level_eV": None if ef is None or math.isnan(ef) else float(ef),
             "iterations": int(sc.iterations), "residual_meV": float(sc.residual_meV),
@@ -127,7 +134,8 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
     profile : Profile
     bands : str or sequence of str, optional
         'conduction', 'heavy_hole', 'light_hole' or 'all' (default).
-    method : {'exact', 'semiclassical'}
+    method : {'exact', 'semiclassical', 'finite_difference'}
+        A key of :data:`qwell.solvers.METHODS`.
     transitions : bool
         Compute intersubband and interband transitions (needs wavefunctions;
         only for the exact method).
@@ -161,9 +169,8 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
                     transitions=trans, notes=tuple(notes))
 
 
-def _transitions(profile: Profile, levels: dict, hole_intersubband: bool = False) -> tuple:
-    from . import optics
-
+def _transitions(profile: Profile, levels: Mapping[str, Levels],
+                 hole_intersubband: bool = False) -> tuple:
     out = []
     for b in ("conduction",) + (("heavy_hole", "light_hole") if hole_intersubband else ()):
         if b in levels and len(levels[b]) >= 2:
@@ -193,8 +200,7 @@ def prepare_profile(stack, *, self_consistent: bool | None = None):
     """
     if not wants_self_consistent(stack, self_consistent):
         return band_profile(stack), None
-    from .selfconsistent import solve_self_consistent
-    sc = solve_self_consistent(stack, solution="loop")
+    sc = solve_self_consistent(stack)
     return sc.profile, sc
 
 
@@ -274,9 +280,6 @@ def depolarised_lines(solution: Solution) -> list[dict]:
     sc = solution.self_consistent
     if sc is None or "conduction" not in solution.levels:
         return []
-    from .selfconsistent import depolarisation_shift
-    from .units import HC_EV_UM
-
     lev = solution.levels["conduction"]
     out = []
     for t in solution.transitions:
@@ -291,7 +294,7 @@ def depolarised_lines(solution: Solution) -> list[dict]:
             if solution.stack.layers[where].grade is None else None
         if not eps:
             continue
-        shift = depolarisation_shift(solution, "conduction", t.name, n, eps)
+        shift = depolarisation_shift(solution.levels, "conduction", t.name, n, eps)
         e = t.energy_eV + shift
         out.append({"transition": t.name, "energy_eV": t.energy_eV, "shift_eV": shift,
                     "shifted_energy_eV": e, "shifted_wavelength_um": HC_EV_UM / e,

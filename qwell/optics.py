@@ -15,6 +15,10 @@ Two kinds of transition are listed:
   real wells lie a few meV (bulk GaAs exciton ~4 meV, up to ~10 meV in narrow
   wells) below them.
 
+For a doped well, :func:`depolarisation_shift` gives the collective
+(depolarisation, plasma) shift of an intersubband absorption line from the
+Coulomb overlap :func:`coulomb_overlap_nm` (Ando, Fowler and Stern 1982).
+
 Units (internal, plain floats): energies eV, lengths nm, masses m0,
 wavefunctions nm^-1/2, linewidths meV.
 
@@ -72,13 +76,18 @@ References
 
 from __future__ import annotations
 
+import math
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-from scipy import constants as _c
+from scipy.integrate import cumulative_trapezoid
 
+from .constants import E_C, EPS0_F_PER_M, EV_PER_CM1, EV_PER_THZ, HBAR2_2M0_EV_NM2, HC_EV_UM
 from .errors import ParameterError
+from .fileio import atomic_savefig
+from .solvers import Levels
 
 __all__ = [
     "Transition",
@@ -95,14 +104,14 @@ __all__ = [
     "TE_TM_FACTORS",
     "HC_EV_UM",
     "HBAR2_2M0_EV_NM2",
+    "coulomb_overlap_nm",
+    "depolarisation_shift",
 ]
 
-#: h c [eV um] from CODATA via scipy.constants (1.239842 eV um).
-HC_EV_UM = _c.h * _c.c / _c.e * 1e6
-#: ħ²/(2 m0) [eV nm²] from CODATA via scipy.constants (0.0380998 eV nm²).
-HBAR2_2M0_EV_NM2 = _c.hbar ** 2 / (2.0 * _c.m_e) / _c.e * 1e18
-_EV_TO_CM1 = _c.e / (_c.h * _c.c) / 100.0
-_EV_TO_THZ = _c.e / _c.h / 1e12
+# HC_EV_UM (h c [eV um]) and HBAR2_2M0_EV_NM2 (ħ²/(2 m0) [eV nm²]) come from
+# qwell.constants; they stay importable from here.
+_EV_TO_CM1 = 1.0 / EV_PER_CM1
+_EV_TO_THZ = 1.0 / EV_PER_THZ
 
 #: Note attached to interband results and spectra.
 EXCITON_NOTE = ("excitonic binding is not included: interband line energies are "
@@ -327,7 +336,7 @@ def intersubband_matrices(states, band) -> MatrixElements:
     sum rule holds for parabolic bands).  Fully vectorised: a few dense
     matrix products over the grid.
     """
-    states = list(getattr(states, "states", states))
+    states = list(states.states if isinstance(states, Levels) else states)
     if not states:
         raise ParameterError("no states given")
     missing = [s.label for s in states if s.z_nm is None or s.psi is None]
@@ -409,10 +418,12 @@ def intersubband_transitions(levels, band, *, include_quasi_bound: bool = True
     (1994) (velocity form with energy-dependent mass); W. Kuhn, Z. Phys. 33,
     408 (1925); F. Reiche and W. Thomas, Z. Phys. 34, 510 (1925) (sum rule).
     """
-    lev_band = getattr(levels, "band", None)
-    if lev_band is not None and getattr(band, "name", lev_band) != lev_band:
-        raise ParameterError(f"levels are of band {lev_band!r} but band is {band.name!r}")
-    states = list(getattr(levels, "states", levels))
+    if isinstance(levels, Levels):
+        if band is not None and band.name != levels.band:
+            raise ParameterError(f"levels are of band {levels.band!r} but band is {band.name!r}")
+        states = list(levels.states)
+    else:
+        states = list(levels)
     if not include_quasi_bound:
         states = [s for s in states if s.bound]
     if len(states) < 2:
@@ -493,15 +504,15 @@ def interband_transitions(electrons, electron_band, holes, hole_band) -> tuple[T
     ParameterError
         If the hole band is not heavy_hole or light_hole.
     """
-    hname = getattr(hole_band, "name", None) or getattr(holes, "band", None)
+    lev_band = holes.band if isinstance(holes, Levels) else None
+    hname = (hole_band.name if hole_band is not None else None) or lev_band
     if hname not in TE_TM_FACTORS:
         raise ParameterError(f"interband transitions need a heavy_hole or light_hole band, got {hname!r}")
-    lev_band = getattr(holes, "band", None)
     if lev_band is not None and lev_band != hname:
         raise ParameterError(f"hole levels are of band {lev_band!r} but hole_band is {hname!r}")
     fte, ftm = TE_TM_FACTORS[hname]
-    es = list(getattr(electrons, "states", electrons))
-    hs = list(getattr(holes, "states", holes))
+    es = list(electrons.states if isinstance(electrons, Levels) else electrons)
+    hs = list(holes.states if isinstance(holes, Levels) else holes)
     if not es or not hs:
         return ()
     have = len(_states_with_psi(es)) == len(es) and len(_states_with_psi(hs)) == len(hs)
@@ -696,12 +707,11 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
     its name, strongest first, at most 12 labels and none overlapping; the
     number of unlabelled lines is printed in the corner.
     """
+    # matplotlib is heavy and only needed here: imported on first use
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
-
-    from .fileio import atomic_savefig
 
     ax_kind = str(axis).lower()
     if ax_kind not in ("wavelength", "energy"):
@@ -761,3 +771,101 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
         return atomic_savefig(fig, path, protect=protect, dpi=150)
     finally:
         plt.close(fig)
+
+
+# ---------------------------------------------------------------------------
+# depolarisation shift
+# ---------------------------------------------------------------------------
+def _states_of(states, band: str) -> tuple:
+    """States out of a band -> Levels mapping (e.g. ``Solution.levels``), a Levels or a sequence."""
+    if isinstance(states, Mapping):
+        return tuple(states[band].states)
+    if isinstance(states, Levels):
+        return tuple(states.states)
+    return tuple(states)
+
+
+def _pick(states, label):
+    for s in states:
+        if s.label == label:
+            return s
+    raise ParameterError(f"no state {label!r}; available: " + ", ".join(s.label for s in states))
+
+
+def coulomb_overlap_nm(state_a, state_b) -> float:
+    """Coulomb overlap length ``S = int dz [ int_{-inf}^z psi_a psi_b dz' ]^2`` [nm].
+
+    Both states need wavefunctions; ``psi_b`` is interpolated onto the grid
+    of ``psi_a`` (zero outside its own grid).
+    """
+    if state_a.psi is None or state_b.psi is None:
+        raise ParameterError("the depolarisation shift needs wavefunctions (wavefunctions=True)")
+    za = np.asarray(state_a.z_nm, dtype=float)
+    zb = np.asarray(state_b.z_nm, dtype=float)
+    zz = np.union1d(za, zb)
+    pa = np.interp(zz, za, state_a.psi, left=0.0, right=0.0)
+    pb = np.interp(zz, zb, state_b.psi, left=0.0, right=0.0)
+    inner = cumulative_trapezoid(pa * pb, zz, initial=0.0)
+    return float(np.trapezoid(inner ** 2, zz))
+
+
+def depolarisation_shift(states, band: str, transition, sheet_density_cm2: float,
+                         dielectric_constant: float) -> float:
+    """Depolarisation (plasma) shift of an intersubband absorption line [eV].
+
+    ``E~ = E_21 sqrt(1 + alpha)``, ``alpha = 2 e^2 n_s S / (eps eps0 E_21)``,
+    with the Coulomb overlap ``S = int dz [int_{-inf}^z psi_1 psi_2 dz']^2``
+    (:func:`coulomb_overlap_nm`); the returned value is ``E~ - E_21``.  The
+    exchange–correlation (excitonic) correction is neglected.
+
+    Parameters
+    ----------
+    states : Mapping[str, Levels], Levels or sequence of State
+        States with wavefunctions; a mapping band name -> Levels (such as
+        :attr:`qwell.levels.Solution.levels`) is indexed by ``band``.
+    band : str
+        Band name used to pick the Levels out of a mapping (e.g. 'conduction').
+    transition : str or (str, str)
+        'e1-e2' or a pair of state labels.
+    sheet_density_cm2 : float
+        Sheet density of the absorbing electrons [cm^-2] (strictly the
+        population difference n_1 - n_2).
+    dielectric_constant : float
+        Static relative permittivity of the well.
+
+    Returns
+    -------
+    float
+        Shift of the absorption energy [eV], >= 0.
+
+    Notes
+    -----
+    Consistency check of the factor 2: for a two-level system the shift is
+    an effective plasma frequency ``(hbar w_p)^2 = alpha E_21^2`` with
+    ``w_p^2 = n_s e^2 f_21 / (m eps eps0 L_eff)`` and ``f_21 = 2 m E_21 z_21^2 / hbar^2``;
+    it equals the form above with ``S = z_21^2 / L_eff``.
+
+    References
+    ----------
+    .. [1] T. Ando, A. B. Fowler and F. Stern, Rev. Mod. Phys. 54, 437 (1982).
+    .. [2] M. Helm, "The basic physics of intersubband transitions",
+       Semiconductors and Semimetals 62 (2000), ch. 1.
+    """
+    if isinstance(transition, str):
+        parts = transition.split("-")
+        if len(parts) != 2:
+            raise ParameterError(f"transition {transition!r}: expected 'e1-e2'")
+    else:
+        parts = list(transition)
+    states = _states_of(states, band)
+    s1, s2 = _pick(states, parts[0]), _pick(states, parts[1])
+    e21 = abs(s2.energy_eV - s1.energy_eV)
+    if not e21 > 0:
+        raise ParameterError("the transition energy is zero")
+    if not (dielectric_constant > 0):
+        raise ParameterError("dielectric_constant must be positive")
+    s_nm = coulomb_overlap_nm(s1, s2)
+    # e^2 n_s S / (eps0) in eV: (e/eps0 [V m]) * n_s [m^-2] * S [m]
+    alpha = 2.0 * (E_C / EPS0_F_PER_M) * (sheet_density_cm2 * 1e4) * (s_nm * 1e-9) \
+        / (dielectric_constant * e21)
+    return float(e21 * (math.sqrt(1.0 + alpha) - 1.0))

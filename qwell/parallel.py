@@ -150,6 +150,7 @@ def _dask_client(dask, timeout_s: float):
     address = dask.strip()
     if not address:
         raise ClusterError("--dask: empty address; expected e.g. tcp://127.0.0.1:8786")
+    # distributed is an optional extra (qwell[dask]) and heavy: imported only when asked for
     try:
         from distributed import Client
     except ImportError:

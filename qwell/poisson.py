@@ -17,8 +17,8 @@ and z in nm,
 
     d/dz( eps(z) dU/dz ) = POISSON_EV_NM2_PER_CM3 * q(z)         (1)
 
-with ``POISSON_EV_NM2_PER_CM3 = e / eps0 * 1e-12`` (CODATA constants from
-:mod:`scipy.constants`).  Positive charge makes U convex (a dip that attracts
+with ``POISSON_EV_NM2_PER_CM3 = e / eps0 * 1e-12`` (CODATA 2018 constants from
+:mod:`qwell.constants`).  Positive charge makes U convex (a dip that attracts
 electrons).
 
 Discretisation (finite volume)
@@ -67,15 +67,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.sparse as sp
-from scipy import constants as _c
 from scipy.sparse.linalg import spsolve
 from scipy.special import expit
 
+from .constants import E_C, EPS0_F_PER_M, HBAR_J_S, KB_EV_PER_K, M0_KG
 from .errors import MaterialError, StackError
+from .materials import grade_function
 
 __all__ = [
     "POISSON_EV_NM2_PER_CM3",
-    "KB_EV_PER_K",
     "DONOR_DEGENERACY",
     "PoissonGrid",
     "DopingOnGrid",
@@ -91,14 +91,13 @@ __all__ = [
 ]
 
 #: e / eps0 * 1e-12: (eV nm^-2) per (cm^-3) in eq. (1) of the module docstring.
-POISSON_EV_NM2_PER_CM3 = _c.e / _c.epsilon_0 * 1e-12
-#: Boltzmann constant [eV/K] (CODATA via scipy.constants).
-KB_EV_PER_K = _c.k / _c.e
+POISSON_EV_NM2_PER_CM3 = E_C / EPS0_F_PER_M * 1e-12
+# KB_EV_PER_K (Boltzmann constant [eV/K]) comes from qwell.constants.
 #: Ground-state degeneracy of a shallow donor (spin), Sze 1981.
 DONOR_DEGENERACY = 2.0
 #: m0 / (pi hbar^2) in cm^-2 per eV: the 2D density of states of one subband
 #: with spin degeneracy 2 and mass m0.
-_DOS2D_CM2_PER_EV = _c.m_e / (math.pi * _c.hbar ** 2) * _c.e * 1e-4
+_DOS2D_CM2_PER_EV = M0_KG / (math.pi * HBAR_J_S ** 2) * E_C * 1e-4
 
 
 # ---------------------------------------------------------------------------
@@ -194,8 +193,6 @@ def _layer_dielectric(stack, layer):
     if layer.grade is None:
         mats = [stack.material_of(layer)]
     else:
-        from .materials import grade_function
-
         fn = grade_function(layer.grade.start, layer.grade.end, stack.temperature_K,
                             stack.user_materials)
         mats = [fn(0.0), fn(1.0)]

@@ -33,6 +33,8 @@ from scipy.interpolate import CubicSpline
 
 from .bands import BAND_NAMES, Band, Piece, RepeatInfo
 from .errors import MaterialError, StackError
+from .materials import get_material, grade_function
+from .strain import critical_thickness_nm, strain as _strain
 
 __all__ = ["LayerProfile", "Profile", "band_profile", "FIELD_EV_PER_NM_PER_KV_CM"]
 
@@ -233,8 +235,6 @@ def _nan(v):
 
 def _edges_of(mat, substrate_mat) -> _Edges:
     """Strained band edges of one material (unstrained without substrate)."""
-    from .strain import strain as _strain
-
     ec = _nan(mat.conduction_edge_eV)
     ev = _nan(mat.valence_edge_eV)
     eps_xx = eps_zz = 0.0
@@ -313,8 +313,6 @@ _BAND_ATTRS = {
 
 def _layer_material_fn(stack, layer):
     """(f(t) -> Material, display name, uniform?) for one layer."""
-    from .materials import grade_function
-
     T = stack.temperature_K
     overrides = dict(layer.overrides or {})
     if layer.grade is None:
@@ -358,9 +356,6 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
     light-hole edges by -P -/+ Q (light hole with the spin–orbit coupled
     form); see :mod:`qwell.strain` and [1]_, [2]_ of the module docstring.
     """
-    from .materials import get_material
-    from .strain import critical_thickness_nm
-
     T = stack.temperature_K
     substrate_mat = None
     if stack.substrate:

@@ -18,10 +18,12 @@ minus the potential that produced it) is below ``tolerance_meV``.
 Model statements
 ----------------
 * Inside the loop the subbands come by default from a finite-difference
-  BenDaniel–Duke eigen-solver (0.05 nm step, parabolic band-edge masses,
-  orthonormal by construction); the final ``solution`` is computed by the
-  exact transfer-matrix solver on the self-consistent profile.  Loop and
-  final energies differ by the discretisation error (a few µeV).
+  BenDaniel–Duke eigen-solver (:mod:`qwell.solvers.finite_difference`,
+  0.05 nm step, parabolic band-edge masses, orthonormal by construction).
+  This module is the loop only: the states of every band and the
+  transitions on the self-consistent profile come from
+  :func:`qwell.levels.solve_stack` (exact solver); loop and final energies
+  differ by the discretisation error (a few µeV).
 * Only the subband states the exact solver reports (bound and localised
   quasi-bound states) hold carriers; carriers in the continuum above the
   claddings are not counted (a ValidityWarning says when the Fermi level
@@ -66,28 +68,30 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.sparse as sp
-from scipy import constants as _c
-from scipy.integrate import cumulative_trapezoid
 from scipy.optimize import brentq
 from scipy.sparse.linalg import spsolve
 from scipy.special import expit
 
+from .constants import E_C, HBAR_J_S, KB_EV_PER_K, M0_KG
 from .errors import ConvergenceError, ParameterError, ValidityWarning
-from .poisson import (KB_EV_PER_K, POISSON_EV_NM2_PER_CM3, build_grid, doping_on_grid,
+from .poisson import (POISSON_EV_NM2_PER_CM3, build_grid, doping_on_grid,
                       ionised_donors_cm3, ionised_donors_derivative, poisson_operator,
                       sheet_density_2d, sheet_density_2d_derivative, solve_poisson)
 from .profile import Profile, band_profile
+from .solvers import Levels, count_states_below, solve
 
-__all__ = ["SelfConsistentResult", "solve_self_consistent", "sheet_density_2d",
-           "depolarisation_shift", "coulomb_overlap_nm", "MIXING_SCHEMES"]
+__all__ = ["SelfConsistentResult", "solve_self_consistent", "sheet_density_2d", "MIXING_SCHEMES",
+           "INNER_SOLVERS"]
 
 MIXING_SCHEMES = ("anderson", "predictor", "linear")
+#: Subband solvers the loop can use (names of :data:`qwell.solvers.METHODS`).
+INNER_SOLVERS = ("fd", "exact")
 _HOLE_BANDS = ("heavy_hole", "light_hole")
-_HB2_2M0_EV_NM2 = _c.hbar ** 2 / (2 * _c.m_e) / _c.e * 1e18   # hbar^2/(2 m0) [eV nm^2]
 _PSI2_PER_NM_TO_CM = 1e7          # |psi|^2 [nm^-1] -> [cm^-1]
 #: States further than this plus 40 kT beyond the Fermi level are not solved in the
 #: loop (occupation below exp(-40)); the margin covers the Fermi-level change
@@ -105,8 +109,13 @@ class SelfConsistentResult:
     ----------
     profile : qwell.profile.Profile
         Final band profile, electrostatic energy included.
-    solution : qwell.levels.Solution
-        States (all bands) and transitions on the self-consistent potential.
+    levels : Mapping[str, qwell.solvers.Levels]
+        Band name -> the occupiable bound states of the last iteration (the
+        carrier bands only, no transitions; empty when no iteration ran).
+        The full solution of every band with transitions on ``profile`` is
+        :func:`qwell.levels.solve_stack` (``self_consistent=True``).
+    method : str
+        Solver of ``levels``: 'finite_difference' or 'exact'.
     fermi_level_eV : float
         Fermi level on the band-diagram scale [eV]; NaN for an undoped stack
         without a given Fermi level (no charge: not defined by neutrality).
@@ -137,7 +146,8 @@ class SelfConsistentResult:
     """
 
     profile: Profile
-    solution: object
+    levels: Mapping[str, Levels]
+    method: str
     fermi_level_eV: float
     sheet_densities_cm2: dict
     z_nm: np.ndarray = field(repr=False)
@@ -290,7 +300,7 @@ class _ThomasFermiCharge:
     before the first Schrödinger solution; not a result.
     """
 
-    _C = (2.0 * _c.m_e * _c.e / _c.hbar ** 2) ** 1.5 / (3.0 * math.pi ** 2) * 1e-6  # cm^-3 eV^-3/2
+    _C = (2.0 * M0_KG * E_C / HBAR_J_S ** 2) ** 1.5 / (3.0 * math.pi ** 2) * 1e-6  # cm^-3 eV^-3/2
 
     def __init__(self, grid, doping, ec0_eV, mass_m0, temperature_K):
         self.grid, self.doping, self.ec0 = grid, doping, ec0_eV
@@ -439,10 +449,6 @@ def _solve_bands(profile, band_names, tolerance_eV, fermi_eV=None, margin_eV=Non
     ``E_F - margin`` (holes, band-diagram scale), counted beforehand with the
     node-counting function of the exact solver.
     """
-    from .solvers import solve
-    from .solvers.exact import count_states_below
-    from .solvers.results import Levels
-
     out = {}
     for b in band_names:
         band = profile.bands[b]
@@ -450,7 +456,8 @@ def _solve_bands(profile, band_names, tolerance_eV, fermi_eV=None, margin_eV=Non
             limit = None
             if fermi_eV is not None:
                 limit = float(band.carrier_energy(fermi_eV + band.carrier_sign * margin_eV))
-            out[b] = _fd_levels(band, tolerance_eV, limit, step_nm=wave_step_nm)
+            out[b] = solve(band, "finite_difference", tolerance_eV=tolerance_eV,
+                           max_energy_eV=limit, grid_step_nm=wave_step_nm, error_estimate=False)
             continue
         opts = {"tolerance_eV": tolerance_eV, "wavefunctions": True, "quasi_bound": False,
                 "grid_step_nm": wave_step_nm}
@@ -476,58 +483,6 @@ def _solve_bands(profile, band_names, tolerance_eV, fermi_eV=None, margin_eV=Non
     return out
 
 
-def _fd_levels(band, tolerance_eV, margin_limit_eV=None, step_nm=0.05,
-               cladding_nm=20.0):
-    """Bound states of a band by a finite-difference BenDaniel–Duke eigen-solver (internal).
-
-    The listed layers plus ``cladding_nm`` of each semi-infinite cladding are
-    discretised with step ``step_nm``; ``-hbar^2/2 d/dz (1/m) d/dz`` uses the
-    band-edge mass at the mid-points (BenDaniel–Duke symmetric form, parabolic),
-    hard walls beyond the added claddings.  Eigenpairs below the confinement
-    limit (and below ``margin_limit_eV`` on the carrier scale) come from
-    :func:`scipy.linalg.eigh_tridiagonal`; they are orthonormal by construction,
-    which near-degenerate doublets of weakly coupled wells need.
-    """
-    from scipy.linalg import eigh_tridiagonal
-
-    from .solvers.results import Levels, State
-
-    z0, z1 = band.z_start_nm - cladding_nm, band.z_end_nm + cladding_nm
-    n = max(8, int(math.ceil((z1 - z0) / step_nm)))
-    h = (z1 - z0) / n
-    z = z0 + h * np.arange(1, n)                 # interior nodes (psi = 0 at z0, z1)
-    zm = z0 + h * (np.arange(n) + 0.5)           # mid-points, one more than nodes
-    c = _HB2_2M0_EV_NM2
-    # a node or mid-point that falls exactly on an interface takes the mean of both sides
-    # (otherwise the piece look-up would favour one side and break mirror symmetry)
-    d = 1e-9 * h
-    inv_m = 0.5 * (1.0 / band.edge_mass(zm - d) + 1.0 / band.edge_mass(zm + d))
-    v_node = 0.5 * (band.potential(z - d) + band.potential(z + d))
-    diag = c * (inv_m[:-1] + inv_m[1:]) / h ** 2 + v_node
-    off = -c * inv_m[1:-1] / h ** 2
-    limit = band.confinement_limit_eV
-    if margin_limit_eV is not None:
-        limit = min(limit, float(margin_limit_eV))
-    lo = float(np.min(v_node)) - 1.0
-    if limit <= float(np.min(v_node)):
-        return Levels(band=band.name, method="finite-difference", tolerance_eV=tolerance_eV)
-    if not limit > lo:
-        raise ValueError(f"fd levels: bad window {lo} {limit}")
-    w, v = eigh_tridiagonal(diag, off, select="v", select_range=(lo, limit))
-    states = []
-    for k in range(w.size):
-        psi = v[:, k] / math.sqrt(h)             # normalised: sum psi^2 h = 1
-        if psi[np.argmax(np.abs(psi))] < 0:
-            psi = -psi
-        eps = float(w[k])
-        states.append(State(band=band.name, label=f"{band.prefix}{k + 1}", index=k + 1,
-                            energy_eV=float(band.profile_energy(eps)), carrier_energy_eV=eps,
-                            tolerance_eV=tolerance_eV, z_nm=z, psi=psi,
-                            message="finite-difference state of the self-consistent loop"))
-    return Levels(band=band.name, method="finite-difference", states=tuple(states),
-                  tolerance_eV=tolerance_eV, confinement_limit_eV=float(band.profile_energy(limit)))
-
-
 def _max_overlap(levels) -> float:
     """Largest |<psi_i|psi_j>| (i != j) of the states of one band (0 for fewer than two)."""
     states = [s for s in levels.states if s.psi is not None]
@@ -540,13 +495,16 @@ def _max_overlap(levels) -> float:
     return float(np.max(gram))
 
 
+def _method_name(inner_solver: str) -> str:
+    return "finite_difference" if inner_solver == "fd" else "exact"
+
+
 def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
                           tolerance_meV: float = 1e-3, max_iterations: int = 200,
                           grid_step_nm: float = 0.1, mixing: str = "anderson",
                           holes: bool | None = None, inplane_mass: str = "edge",
                           state_tolerance_eV: float = 1e-7, anderson_history: int = 6,
-                          strict: bool = True, solution: str = "full",
-                          inner_solver: str = "fd") -> SelfConsistentResult:
+                          strict: bool = True, inner_solver: str = "fd") -> SelfConsistentResult:
     """Self-consistent Schrödinger–Poisson solution of a (doped) stack.
 
     Parameters
@@ -571,19 +529,12 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
         Energy tolerance of the subband solver [eV].
     anderson_history : int
         Number of previous iterates Anderson mixing uses.
-    solution : {'full', 'loop'}
-        'full' (default): solve every band of the final profile with
-        :func:`qwell.levels.solve_profile` (quasi-bound states and transitions
-        included).  'loop': reuse the states of the last iteration (only the
-        occupiable bound states of the carrier bands, no transitions) — much
-        faster for sweeps.
     inner_solver : {'fd', 'exact'}
         Subband solver inside the loop.  'fd' (default): finite-difference
         BenDaniel–Duke eigenpairs on a 0.05 nm grid (orthonormal and complete
         by construction, parabolic band-edge masses); 'exact': the
         transfer-matrix solver with its tolerance tightened until the states
-        of each band are orthogonal.  The final ``solution`` ('full') always
-        comes from the exact solver.
+        of each band are orthogonal.
     strict : bool
         Raise :class:`~qwell.errors.ConvergenceError` (with the residual
         history) when not converged; with False return the unconverged
@@ -597,28 +548,24 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
     -----
     Undoped stacks without a given Fermi level carry no charge: the
     potential is zero and the result holds exactly the non-self-consistent
-    profile and solution (``band_profile(stack)``), with ``iterations = 0``.
+    profile (``band_profile(stack)``), no loop states and ``iterations = 0``.
 
     Boundary conditions: with neutrality, zero field at both ends and U = 0
     at z = 0 ('neutral'); with a given Fermi level, zero field and U = 0 at
     z = 0 and the field of any net charge leaves through the end ('left').
     """
-    from .levels import solve_profile
-
     if mixing not in MIXING_SCHEMES:
         raise ParameterError(f"unknown mixing {mixing!r}; expected one of: "
                              + ", ".join(MIXING_SCHEMES))
     if inplane_mass not in ("edge", "nonparabolic"):
         raise ParameterError(f"unknown inplane_mass {inplane_mass!r}; expected 'edge' or "
                              "'nonparabolic'")
-    if inner_solver not in ("fd", "exact"):
+    if inner_solver not in INNER_SOLVERS:
         raise ParameterError(f"unknown inner_solver {inner_solver!r}; expected 'fd' or 'exact'")
-    if solution not in ("full", "loop"):
-        raise ParameterError(f"unknown solution {solution!r}; expected 'full' or 'loop'")
     if not (tolerance_meV > 0):
         raise ParameterError("tolerance_meV must be positive")
     if fermi_level_eV is None:
-        fermi_level_eV = getattr(stack, "fermi_level_eV", None)
+        fermi_level_eV = stack.fermi_level_eV
     fixed_fermi = fermi_level_eV is not None
     boundary = "left" if fixed_fermi else "neutral"
     T = float(stack.temperature_K)
@@ -630,9 +577,8 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
 
     if not doping.has_doping and not fixed_fermi:
         profile = band_profile(stack)
-        flat = solve_profile(profile, tolerance_eV=state_tolerance_eV)
         return SelfConsistentResult(
-            profile=profile, solution=flat, fermi_level_eV=math.nan, sheet_densities_cm2={},
+            profile=profile, levels={}, method=_method_name(inner_solver), fermi_level_eV=math.nan, sheet_densities_cm2={},
             z_nm=z, potential_eV=zeros, electron_density_cm3=zeros.copy(),
             hole_density_cm3=zeros.copy(), donor_density_cm3=zeros.copy(),
             acceptor_density_cm3=zeros.copy(), iterations=0, residual_meV=0.0,
@@ -755,117 +701,12 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
     else:
         message = (f"converged in {len(history)} iterations: residual {res * 1e3:.3g} meV, "
                    f"charge residual {charge_res:.2g}")
-    if solution == "full":
-        final = solve_profile(profile, tolerance_eV=state_tolerance_eV)
-    else:
-        from .levels import Solution
-
-        final = Solution(stack=stack, profile=profile,
-                         method="finite-difference" if inner_solver == "fd" else "exact",
-                         levels=dict(levels),
-                         transitions=(), notes=("states of the last self-consistent iteration "
-                                                "(occupiable bound states only)",))
     if notes:
         message += "; " + "; ".join(notes)
     return SelfConsistentResult(
-        profile=profile, solution=final, fermi_level_eV=float(ef), sheet_densities_cm2=sheets,
+        profile=profile, levels=dict(levels), method=_method_name(inner_solver),
+        fermi_level_eV=float(ef), sheet_densities_cm2=sheets,
         z_nm=z.copy(), potential_eV=np.array(u), electron_density_cm3=n, hole_density_cm3=p,
         donor_density_cm3=nd, acceptor_density_cm3=na, iterations=len(history),
         residual_meV=res * 1e3, charge_residual=float(charge_res), history=tuple(history),
         converged=converged, message=message, boundary=boundary)
-
-
-# ---------------------------------------------------------------------------
-# depolarisation shift
-# ---------------------------------------------------------------------------
-def _states_of(solution_or_states, band: str):
-    if hasattr(solution_or_states, "levels"):
-        return tuple(solution_or_states.levels[band].states)
-    if hasattr(solution_or_states, "states"):
-        return tuple(solution_or_states.states)
-    return tuple(solution_or_states)
-
-
-def _pick(states, label):
-    for s in states:
-        if s.label == label:
-            return s
-    raise ParameterError(f"no state {label!r}; available: " + ", ".join(s.label for s in states))
-
-
-def coulomb_overlap_nm(state_a, state_b) -> float:
-    """Coulomb overlap length ``S = int dz [ int_{-inf}^z psi_a psi_b dz' ]^2`` [nm].
-
-    Both states need wavefunctions; ``psi_b`` is interpolated onto the grid
-    of ``psi_a`` (zero outside its own grid).
-    """
-    if state_a.psi is None or state_b.psi is None:
-        raise ParameterError("the depolarisation shift needs wavefunctions (wavefunctions=True)")
-    za = np.asarray(state_a.z_nm, dtype=float)
-    zb = np.asarray(state_b.z_nm, dtype=float)
-    zz = np.union1d(za, zb)
-    pa = np.interp(zz, za, state_a.psi, left=0.0, right=0.0)
-    pb = np.interp(zz, zb, state_b.psi, left=0.0, right=0.0)
-    inner = cumulative_trapezoid(pa * pb, zz, initial=0.0)
-    return float(np.trapezoid(inner ** 2, zz))
-
-
-def depolarisation_shift(solution_or_states, band: str, transition, sheet_density_cm2: float,
-                         dielectric_constant: float) -> float:
-    """Depolarisation (plasma) shift of an intersubband absorption line [eV].
-
-    ``E~ = E_21 sqrt(1 + alpha)``, ``alpha = 2 e^2 n_s S / (eps eps0 E_21)``,
-    with the Coulomb overlap ``S = int dz [int_{-inf}^z psi_1 psi_2 dz']^2``
-    (:func:`coulomb_overlap_nm`); the returned value is ``E~ - E_21``.  The
-    exchange–correlation (excitonic) correction is neglected.
-
-    Parameters
-    ----------
-    solution_or_states : qwell.levels.Solution, Levels or sequence of State
-        States with wavefunctions.
-    band : str
-        Band name used to pick the Levels out of a Solution (e.g. 'conduction').
-    transition : str or (str, str)
-        'e1-e2' or a pair of state labels.
-    sheet_density_cm2 : float
-        Sheet density of the absorbing electrons [cm^-2] (strictly the
-        population difference n_1 - n_2).
-    dielectric_constant : float
-        Static relative permittivity of the well.
-
-    Returns
-    -------
-    float
-        Shift of the absorption energy [eV], >= 0.
-
-    Notes
-    -----
-    Consistency check of the factor 2: for a two-level system the shift is
-    an effective plasma frequency ``(hbar w_p)^2 = alpha E_21^2`` with
-    ``w_p^2 = n_s e^2 f_21 / (m eps eps0 L_eff)`` and ``f_21 = 2 m E_21 z_21^2 / hbar^2``;
-    it equals the form above with ``S = z_21^2 / L_eff``.
-
-    References
-    ----------
-    .. [1] T. Ando, A. B. Fowler and F. Stern, Rev. Mod. Phys. 54, 437 (1982).
-    .. [2] M. Helm, "The basic physics of intersubband transitions",
-       Semiconductors and Semimetals 62 (2000), ch. 1.
-    """
-    if isinstance(transition, str):
-        parts = transition.split("-")
-        if len(parts) != 2:
-            raise ParameterError(f"transition {transition!r}: expected 'e1-e2'")
-    else:
-        parts = list(transition)
-    states = _states_of(solution_or_states, band)
-    s1, s2 = _pick(states, parts[0]), _pick(states, parts[1])
-    e21 = abs(s2.energy_eV - s1.energy_eV)
-    if not e21 > 0:
-        raise ParameterError("the transition energy is zero")
-    if not (dielectric_constant > 0):
-        raise ParameterError("dielectric_constant must be positive")
-    s_nm = coulomb_overlap_nm(s1, s2)
-    # e^2 n_s S / (eps0) in eV: (e/eps0 [V m]) * n_s [m^-2] * S [m]
-    alpha = 2.0 * (_c.e / _c.epsilon_0) * (sheet_density_cm2 * 1e4) * (s_nm * 1e-9) \
-        / (dielectric_constant * e21)
-    return float(e21 * (math.sqrt(1.0 + alpha) - 1.0))

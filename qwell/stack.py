@@ -59,8 +59,9 @@ from typing import Any
 import numpy as np
 import yaml
 
+from . import materials as _materials
 from .errors import MaterialError, StackError, UnitError
-from .units import expected_words, parse_quantity, thickness_nm as _thickness_nm, to_float
+from .units import expected_words, parse_quantity, thickness_nm as _thickness_nm, to_float, ureg
 
 __all__ = [
     "Grade",
@@ -354,14 +355,9 @@ class Stack:
 
 
 # -- material look-ups (cached) -------------------------------------------------
-def _materials_api():
-    from . import materials as m  # imported lazily: written alongside this module
-    return m
-
-
 @lru_cache(maxsize=4096)
 def _is_builtin_name(name: str) -> bool:
-    return bool(_materials_api().is_known_material(name))
+    return bool(_materials.is_known_material(name))
 
 
 def _lookup_material(name: str, temperature_K: float, user_materials: Mapping):
@@ -372,7 +368,7 @@ def _lookup_material(name: str, temperature_K: float, user_materials: Mapping):
     # user-material names as suggestions.  get_material caches by (name,
     # temperature) and repeats its validity warnings on every call.
     try:
-        return _materials_api().get_material(name, temperature_K)
+        return _materials.get_material(name, temperature_K)
     except MaterialError as exc:
         text = _one_line(exc)
         if user_materials and text.startswith("unknown material"):
@@ -387,11 +383,7 @@ def _lookup_material(name: str, temperature_K: float, user_materials: Mapping):
 def _apply_overrides(mat, overrides: Mapping):
     if not overrides:
         return mat
-    if hasattr(mat, "with_overrides"):
-        return mat.with_overrides(**dict(overrides))
-    import dataclasses
-
-    return dataclasses.replace(mat, **dict(overrides))
+    return mat.with_overrides(**dict(overrides))
 
 
 def _resolved_material(name, temperature_K, user_materials, overrides):
@@ -771,7 +763,7 @@ class _Builder:
         if not isinstance(spec, Mapping):
             raise self.error(f"got {_type_word(spec)}; expected a mapping of material name -> "
                              "parameters", top, "materials", "materials")
-        api = _materials_api()
+        api = _materials
         for name, params in spec.items():
             path = f"materials.{name}"
             if not isinstance(name, str) or not _NAME_RE.match(name):
@@ -891,7 +883,7 @@ class _Builder:
     def check_grade_overrides(self, grade, overrides, entry, path):
         """Overrides of a graded layer must apply at both of its ends."""
         try:
-            along = _materials_api().grade_function(grade.start, grade.end, self.temperature_K,
+            along = _materials.grade_function(grade.start, grade.end, self.temperature_K,
                                                     dict(self.user_materials) or None)
             for f in (0.0, 1.0):
                 _apply_overrides(along(f), overrides)
@@ -962,7 +954,7 @@ class _Builder:
         if (start, end) in self.seen_grades:
             return Grade(start=start, end=end, shape=shape, vertex=vertex)
         try:
-            _materials_api().grade_function(start, end, self.temperature_K,
+            _materials.grade_function(start, end, self.temperature_K,
                                             dict(self.user_materials) or None)
         except MaterialError as exc:
             raise self.error(_expecting(exc, "two materials that share band parameters"),
@@ -1099,7 +1091,7 @@ class _Builder:
             raise self.error("missing required key 'layers'; expected the list of layers in "
                              "growth order", top)
         try:
-            self.user_keys = dict(_materials_api().USER_KEYS)
+            self.user_keys = dict(_materials.USER_KEYS)
         except AttributeError:
             self.user_keys = {}
 
@@ -1366,13 +1358,7 @@ _StackDumper.add_multi_representer(np.integer, _represent_np_int)
 _StackDumper.add_representer(MappingProxyType, _represent_mapping_proxy)
 
 
-def _register_quantity():
-    from .units import ureg
-
-    _StackDumper.add_multi_representer(ureg.Quantity, _represent_quantity)
-
-
-_register_quantity()
+_StackDumper.add_multi_representer(ureg.Quantity, _represent_quantity)
 
 
 def _no_aliases(self, data):  # write every layer out in full

@@ -14,8 +14,8 @@ from __future__ import annotations
 import re
 
 import pint
-from scipy import constants as _c
 
+from .constants import H_EV_S, HC_EV_UM
 from .errors import UnitError
 
 __all__ = [
@@ -33,8 +33,7 @@ ureg = pint.UnitRegistry()
 ureg.define("monolayer = [monolayer] = ML")
 Q_ = ureg.Quantity
 
-#: h c in eV * um, from CODATA via scipy.constants (1.239842 eV um).
-HC_EV_UM = _c.h * _c.c / _c.e * 1e6
+# HC_EV_UM (h c [eV um]) comes from qwell.constants; it stays importable from here.
 
 _NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")
 
@@ -173,7 +172,7 @@ def spectral_to_eV(value) -> float:
         if q.check("1/[length]"):
             return float(q.to("1/um").magnitude) * HC_EV_UM
         if q.check("1/[time]"):
-            return float(q.to("Hz").magnitude) * _c.h / _c.e
+            return float(q.to("Hz").magnitude) * H_EV_S
     except pint.DimensionalityError:
         pass
     raise UnitError(f"{value!r} is not a wavelength, energy, wavenumber or frequency "

@@ -18,6 +18,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
+from qwell.levels import solve_profile  # noqa: E402
 from qwell.selfconsistent import solve_self_consistent  # noqa: E402
 from qwell.stack import stack_from_text  # noqa: E402
 
@@ -62,8 +63,10 @@ def run(text: str, schemes) -> None:
           f"{stack.temperature_K:.0f} K")
     for mixing, solution in schemes:
         t0 = time.perf_counter()
-        res = solve_self_consistent(stack, mixing=mixing, solution=solution,
-                                    max_iterations=200, strict=False)
+        res = solve_self_consistent(stack, mixing=mixing, max_iterations=200, strict=False)
+        if solution == "full":
+            # every band with transitions on the self-consistent profile (what solve_stack does)
+            solve_profile(res.profile)
         dt = time.perf_counter() - t0
         ns = res.total_electrons_cm2
         print(f"  mixing={mixing:9s} solution={solution:4s}: {dt:6.2f} s, "

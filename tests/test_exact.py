@@ -14,7 +14,7 @@ import pytest
 from scipy import constants as const
 from scipy.linalg import eigh_tridiagonal
 from scipy.optimize import brentq
-from scipy.special import ai_zeros, airy
+from scipy.special import airy
 
 from qwell.bands import Band, Piece, RepeatInfo, band_from_layers
 from qwell.solvers.exact import count_states_below, minibands, solve_exact, wavefunction
@@ -69,17 +69,7 @@ def _square_well_levels(L, V0, mw, mb, gw=None, gb=None):
     return np.sort(roots)
 
 
-@pytest.mark.parametrize("L", [5.0, 10.0, 20.0])
-def test_square_well_bdd(L):
-    V0, mw, mb = 0.3, 0.067, 0.0919
-    band = band_from_layers([(30, V0, mb), (L, 0.0, mw), (30, V0, mb)])
-    lev = solve_exact(band)
-    ref = _square_well_levels(L, V0, mw, mb)
-    assert len(lev) == ref.size
-    assert all(s.bound and s.converged for s in lev.states)
-    # required agreement 1 ueV (piecewise-constant)
-    np.testing.assert_allclose(lev.energies_eV, ref, atol=1 * UEV, rtol=0)
-    assert [s.label for s in lev.states] == [f"e{i + 1}" for i in range(ref.size)]
+# The finite square wells (L = 5, 10, 20 nm) are in tests/test_reference_wells.py.
 
 
 def test_square_well_nonparabolic():
@@ -152,27 +142,7 @@ def test_harmonic_well():
 
 
 # ------------------------------------------------------------ triangular well
-def test_triangular_well_airy():
-    # Hard wall + uniform field F: E_n = (C F^2 / m)^(1/3) |a_n| with a_n the
-    # zeros of Ai (scipy.special.ai_zeros); textbook (e.g. Landau & Lifshitz,
-    # Quantum Mechanics, sect. 24).  The finite wall V_w shifts the wall by the
-    # penetration depth 1/kappa to leading order (same argument as L + 2/kappa
-    # in the square well), i.e. E_n -> E_n - F/kappa.
-    F, m, Vw = 0.01, 0.067, 1e4
-    wall = Piece(z_start_nm=-2.0, z_end_nm=0.0, layer_index=0, kind="flat", edge_start_eV=Vw,
-                 mass_m0=m)
-    ramp = Piece(z_start_nm=0.0, z_end_nm=60.0, layer_index=1, kind="linear", edge_start_eV=0.0,
-                 edge_slope_eV_per_nm=F, mass_m0=m)
-    band = Band(name="conduction", pieces=(wall, ramp), layer_names=("wall", "ramp"))
-    lev = solve_exact(band, max_states=4, quasi_bound=False, wavefunctions=False)
-    an = -ai_zeros(4)[0]
-    e0 = (C * F ** 2 / m) ** (1 / 3)
-    ref = e0 * an
-    kap = np.sqrt(m * (Vw - ref) / C)
-    ref = ref - F / kap
-    assert len(lev) == 4
-    np.testing.assert_allclose(lev.energies_eV, ref, atol=10 * UEV, rtol=0)
-    assert lev.converged
+# The triangular well (Airy zeros, finite wall) is in tests/test_reference_wells.py.
 
 
 # ------------------------------------------------------------ double well vs finite differences

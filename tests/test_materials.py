@@ -21,6 +21,8 @@ from scipy.optimize import brentq
 
 from qwell.errors import MaterialError, ParameterError, ValidityWarning
 from qwell.materials import (
+    GROUP_III,
+    GROUP_V,
     PARAM_FIELDS,
     SOURCES,
     USER_KEYS,
@@ -552,3 +554,16 @@ def test_material_is_hashable_and_frozen():
     assert hash(m) == hash(get_material("GaAs"))
     with pytest.raises(AttributeError):
         m.band_gap_eV = 1.0
+
+
+def test_group_iii_and_v_element_lists():
+    # IUPAC groups 13 and 15 down to the sixth period, lightest first (periodic table;
+    # common practice, no source).  Formulas list each sublattice in this order.
+    assert GROUP_III == ("B", "Al", "Ga", "In", "Tl")
+    assert GROUP_V == ("N", "P", "As", "Sb", "Bi")
+    assert parse_formula("Ga0.7Al0.3As") == ("AlGaAs", {"x": 0.3})
+    # A group-III/V element without data is named as such; anything else is not III-V.
+    with pytest.raises(MaterialError, match="element 'Bi' has no data in the database"):
+        get_material("GaBi")
+    with pytest.raises(MaterialError, match="element 'Xe' is not a group-III or group-V"):
+        get_material("XeAs")

@@ -1,7 +1,7 @@
 """Tests of the Schrödinger–Poisson loop (qwell.poisson, qwell.selfconsistent).
 
 Every reference is computed inside the test from a closed form, a special
-function of scipy, CODATA constants (scipy.constants) or an independent
+function of scipy, CODATA 2018 constants (qwell.constants) or an independent
 numerical method written here; the source of each formula is named beside
 the check.  All stacks are invented scenarios with user materials whose
 parameters are written out in the YAML.
@@ -10,23 +10,28 @@ parameters are written out in the YAML.
 from __future__ import annotations
 
 import math
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
-from scipy import constants as const
 from scipy.integrate import quad
 from scipy.optimize import brentq
 from scipy.special import airy
 
+from qwell import constants as codata
 from qwell.errors import ConvergenceError, ParameterError
 from qwell.levels import solve_stack
 from qwell.poisson import (build_grid, doping_on_grid, sheet_density_2d, solve_poisson)
-from qwell.selfconsistent import (coulomb_overlap_nm, depolarisation_shift,
-                                  solve_self_consistent)
+from qwell.optics import coulomb_overlap_nm, depolarisation_shift
+from qwell.selfconsistent import solve_self_consistent
 from qwell.solvers.results import State
 from qwell.stack import stack_from_text
 
-KT_EV_PER_K = const.k / const.e                        # CODATA via scipy.constants
+# CODATA 2018 (E. Tiesinga et al., Rev. Mod. Phys. 93, 025010 (2021)) as carried by
+# qwell.constants (checked against the published digits in tests/test_constants.py)
+const = SimpleNamespace(e=codata.E_C, m_e=codata.M0_KG, hbar=codata.HBAR_J_S, k=codata.KB_J_PER_K,
+                        epsilon_0=codata.EPS0_F_PER_M)
+KT_EV_PER_K = const.k / const.e
 HB2_2M0 = const.hbar ** 2 / (2 * const.m_e) / const.e * 1e18   # hbar^2/2m0 [eV nm^2]
 
 
@@ -180,11 +185,12 @@ layers:
   - {material: core, thickness: 8 nm}
   - {material: bar, thickness: 20 nm}
 """)
-    res = solve_self_consistent(st)
+    sol = solve_stack(st, self_consistent=True)
+    res = sol.self_consistent
     flat = solve_stack(st)
     assert res.iterations == 0 and res.converged
     assert np.all(res.potential_eV == 0.0)
-    got = res.solution.levels["conduction"].energies_eV
+    got = sol.levels["conduction"].energies_eV
     ref = flat.levels["conduction"].energies_eV
     assert got.size == ref.size and np.array_equal(got, ref)
 
@@ -198,9 +204,10 @@ def test_low_doping_tends_to_flat_band():
     e1_flat = flat.levels["conduction"]["e1"].energy_eV
     amps, shifts = [], []
     for nd, sheet in (("1e13", "2e7"), ("1e14", "2e8")):
-        res = solve_self_consistent(_well(nd=nd, sheet=sheet))   # exact final states
+        sol = solve_stack(_well(nd=nd, sheet=sheet), self_consistent=True)   # exact final states
+        res = sol.self_consistent
         amp = float(np.max(np.abs(res.potential_eV)))
-        shift = abs(res.solution.levels["conduction"]["e1"].energy_eV - e1_flat)
+        shift = abs(sol.levels["conduction"]["e1"].energy_eV - e1_flat)
         assert shift <= amp + 1e-7
         amps.append(amp)
         shifts.append(shift)
@@ -214,8 +221,8 @@ def test_neutrality_and_poisson_residual(fermi):
     kw = {}
     if fermi == "fixed":
         # A Fermi level 5 meV below the self-consistent neutral one (an invented value).
-        kw["fermi_level_eV"] = solve_self_consistent(st, solution="loop").fermi_level_eV - 0.005
-    res = solve_self_consistent(st, tolerance_meV=1e-3, solution="loop", **kw)
+        kw["fermi_level_eV"] = solve_self_consistent(st).fermi_level_eV - 0.005
+    res = solve_self_consistent(st, tolerance_meV=1e-3, **kw)
     assert res.converged and res.residual_meV <= 1e-3
     assert res.history[-1] == pytest.approx(res.residual_meV)
     donors_cm2 = 1e17 * 10e-7 + 2e11                        # the stack's own doping
@@ -268,20 +275,23 @@ def _airy_finite_barrier(slope_eV_nm, barrier_eV, mass):
     return e, (zin + zout) / (norm_in + norm_out)
 
 
+@pytest.mark.slow      # ~2 s: a 10 eV wall needs a fine Schroedinger-Poisson solve
 def test_triangular_limit_against_airy():
     # Depletion charge only (n_s = 1e8 cm^-2 << N_depl = 5e11 cm^-2): the channel is the
     # triangular well of the field e N_depl/(eps eps0); compare e1 and <z> with the exact
     # Airy solution for the same finite (10 eV) wall, solved independently here.
     ns, nd = 1e8, 5e11
-    res = solve_self_consistent(_hetero(ns, nd))
+    sol = solve_stack(_hetero(ns, nd), self_consistent=True)      # exact final states
+    res = sol.self_consistent
     slope = const.e * (nd + ns) * 1e4 / (12.9 * const.epsilon_0) * 1e-9   # eV/nm at the wall
     e_ref, z_ref = _airy_finite_barrier(slope, 10.0, 0.067)
-    e1 = res.solution.levels["conduction"]["e1"]
+    e1 = sol.levels["conduction"]["e1"]
     e_num = e1.energy_eV - _interface_edge(res, 30.0)
     assert e_num == pytest.approx(e_ref, rel=5e-4)
     assert _mean_z(e1) - 30.0 == pytest.approx(z_ref, rel=5e-4)
 
 
+@pytest.mark.slow      # ~2 s per case
 @pytest.mark.parametrize("ns,ndepl", [(3e11, 1e11), (1e11, 1e11), (2e11, 2e11)])
 def test_fang_howard(ns, ndepl):
     # Fang–Howard variational result for a 2D electron gas at an impenetrable wall:
@@ -293,14 +303,15 @@ def test_fang_howard(ns, ndepl):
     # (Re-derived here: <T> = hbar^2 b^2/8m, <V_depl> = 3 e^2 N_depl/(eps eps0 b),
     #  <V_H> = 33 e^2 n_s/(16 eps eps0 b); minimising <T> + <V_depl> + <V_H>/2 gives b.)
     # The wall here is a 10 eV barrier (FH assumes none penetrable); requirement: 10 %.
-    res = solve_self_consistent(_hetero(ns, ndepl))
+    sol = solve_stack(_hetero(ns, ndepl), self_consistent=True)   # exact final states
+    res = sol.self_consistent
     m = 0.067 * const.m_e
     n_s, n_d = ns * 1e4, ndepl * 1e4
     n_star = n_d + 11 * n_s / 32
     b = (12 * m * const.e ** 2 * n_star / (12.9 * const.epsilon_0 * const.hbar ** 2)) ** (1 / 3)
     e_fh = 3 * const.hbar ** 2 * b ** 2 / (8 * m * n_star) * (n_d + 55 * n_s / 96) / const.e
     z_fh = 3 / b * 1e9
-    e1 = res.solution.levels["conduction"]["e1"]
+    e1 = sol.levels["conduction"]["e1"]
     e_num = e1.energy_eV - _interface_edge(res, 30.0)
     assert e_num == pytest.approx(e_fh, rel=0.10)
     assert _mean_z(e1) - 30.0 == pytest.approx(z_fh, rel=0.10)
@@ -312,10 +323,10 @@ def test_fang_howard(ns, ndepl):
 def test_mixing_schemes_reach_the_same_fixed_point():
     # The fixed point does not depend on the mixing (consistency; common practice, no source).
     st = _hetero(3e11, 1e11, barrier_eV=1.0)
-    a = solve_self_consistent(st, mixing="anderson", solution="loop")
-    p = solve_self_consistent(st, mixing="predictor", solution="loop")
-    ea = a.solution.levels["conduction"]["e1"].energy_eV
-    ep = p.solution.levels["conduction"]["e1"].energy_eV
+    a = solve_self_consistent(st, mixing="anderson")
+    p = solve_self_consistent(st, mixing="predictor")
+    ea = a.levels["conduction"]["e1"].energy_eV
+    ep = p.levels["conduction"]["e1"].energy_eV
     assert abs(ea - ep) < 5e-6
     assert np.max(np.abs(a.potential_eV - p.potential_eV)) < 5e-6
 
@@ -325,7 +336,7 @@ def test_partial_donor_ionisation_formula():
     # S. M. Sze, Physics of Semiconductor Devices, 2nd ed., Wiley (1981), ch. 1.
     st = stack_from_text(WELL_YAML.format(nd="1e17", sheet="2e11", T="77 K").replace(
         "from: 5 nm, to: 15 nm}", "from: 5 nm, to: 15 nm, donor_level: 6 meV}"))
-    res = solve_self_consistent(st, solution="loop")
+    res = solve_self_consistent(st)
     grid = build_grid(st, 0.1)
     dop = doping_on_grid(st, grid)
     ec = res.profile.bands["conduction"].potential(res.z_nm)
@@ -351,7 +362,7 @@ layers:
   - {material: core, thickness: 8 nm}
   - {material: bar, thickness: 20 nm, doping: {sheet_acceptors: 1e11 cm^-2, at: 10 nm}}
 """)
-    res = solve_self_consistent(st, solution="loop")
+    res = solve_self_consistent(st)
     holes = sum(v for k, v in res.sheet_densities_cm2.items() if k.startswith(("hh", "lh")))
     assert holes == pytest.approx(2e11, rel=1e-6)
     assert res.charge_residual < 1e-6
@@ -361,9 +372,9 @@ layers:
 def test_not_converged_raises_with_history():
     st = _well()
     with pytest.raises(ConvergenceError, match="did not converge") as info:
-        solve_self_consistent(st, max_iterations=1, tolerance_meV=1e-9, solution="loop")
+        solve_self_consistent(st, max_iterations=1, tolerance_meV=1e-9)
     assert len(info.value.history) == 1 and info.value.history[0] > 0
-    res = solve_self_consistent(st, max_iterations=1, tolerance_meV=1e-9, solution="loop",
+    res = solve_self_consistent(st, max_iterations=1, tolerance_meV=1e-9,
                                 strict=False)
     assert not res.converged and res.iterations == 1
 
@@ -420,7 +431,7 @@ layers:
   - {material: core, thickness: 8 nm}
   - {material: bar, thickness: 20 nm, doping: {sheet: 2e11 cm^-2, at: 10 nm}}
 """)
-    res = solve_self_consistent(st, solution="loop")
+    res = solve_self_consistent(st)
     z, n = res.z_nm, res.electron_density_cm3
     h = np.diff(z)
     w = np.concatenate([[h[0] / 2], (h[:-1] + h[1:]) / 2, [h[-1] / 2]])

@@ -21,6 +21,8 @@ Examples
 """
 
 from ._database import (
+    GROUP_III,
+    GROUP_V,
     PARAM_FIELDS,
     SOURCES,
     USER_KEYS,
@@ -46,4 +48,6 @@ __all__ = [
     "citation",
     "SOURCES",
     "is_known_material",
+    "GROUP_III",
+    "GROUP_V",
 ]

@@ -67,8 +67,13 @@ from ..errors import MaterialError, ParameterError, ValidityWarning
 
 _DATA = Path(__file__).resolve().parent / "data"
 
-GROUP_III = ("Al", "Ga", "In")
-GROUP_V = ("P", "As", "Sb")
+#: Group-III (IUPAC group 13) elements that form III-V compounds, lightest first: the order
+#: in which formulas list the cation sublattice.  The database has data only for some of
+#: them (Al, Ga, In); a formula with another one parses and is then reported as a
+#: compound that is not in the database.
+GROUP_III = ("B", "Al", "Ga", "In", "Tl")
+#: Group-V (IUPAC group 15) elements that form III-V compounds, lightest first (anion order).
+GROUP_V = ("N", "P", "As", "Sb", "Bi")
 
 #: Material fields that hold a parameter value (float or None), in report order.
 PARAM_FIELDS = (
@@ -693,8 +698,12 @@ def _parse_elements(name: str) -> tuple[tuple, tuple]:
         elif el in GROUP_V:
             lat = "V"
         else:
-            raise _unknown(name, why=f"element {el!r} is not one of "
-                                     f"{', '.join(GROUP_III + GROUP_V)}")
+            raise _unknown(name, why=f"element {el!r} is not a group-III or group-V element "
+                                     f"({', '.join(GROUP_III + GROUP_V)})")
+        with_data = _elements_with_data()
+        if el not in with_data:
+            raise _unknown(name, why=f"element {el!r} has no data in the database, which "
+                                     f"covers {', '.join(with_data)}")
         if el in seen:
             raise MaterialError(f"{name!r}: element {el} appears twice")
         seen.add(el)
@@ -757,6 +766,14 @@ def _family_and_composition(cations: tuple, anions: tuple) -> tuple[str, dict]:
     if fam == "InGaAlAs":
         return fam, {"x": cat["Ga"], "y": cat["Al"]}
     raise MaterialError(f"internal: no composition rule for {fam}")  # pragma: no cover
+
+
+def _elements_with_data() -> tuple:
+    """Elements of the database's families, in the order of GROUP_III + GROUP_V."""
+    found = set()
+    for cations, anions in _FAMILY_BY_ELEMENTS:
+        found |= cations | anions
+    return tuple(el for el in GROUP_III + GROUP_V if el in found)
 
 
 def parse_formula(name: str) -> tuple[str, dict]:

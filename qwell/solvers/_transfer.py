@@ -26,12 +26,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import constants as _c
 
-#: hbar^2 / (2 m0) in eV nm^2 (CODATA via scipy.constants), ~0.0380998.
-C_EV_NM2 = _c.hbar ** 2 / (2.0 * _c.m_e) / _c.e * 1e18
-#: hbar in eV s.
-HBAR_EV_S = _c.hbar / _c.e
+from ..constants import HBAR2_2M0_EV_NM2
+
 
 #: Initial slice length of non-flat pieces [nm] (halved at every refinement level).
 BASE_STEP_NM = 0.5
@@ -116,11 +113,11 @@ def cladding_kappa(v, m_edge, g, energy):
     """
     m = eff_mass(m_edge, v, g, energy)
     if np.iscomplexobj(energy):
-        x = m * (v - energy) / C_EV_NM2
+        x = m * (v - energy) / HBAR2_2M0_EV_NM2
         below = np.real(v - energy) > 0
         kap = np.where(below, np.sqrt(x + 0j), -1j * np.sqrt(-x + 0j))
         return kap, m
-    return np.sqrt(np.maximum(m * (v - energy) / C_EV_NM2, 0.0)), m
+    return np.sqrt(np.maximum(m * (v - energy) / HBAR2_2M0_EV_NM2, 0.0)), m
 
 
 def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
@@ -151,7 +148,7 @@ def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
     if lengths is not None:
         h = lengths
     m = eff_mass(m0, v, g, E) if np.any(np.isfinite(g)) else m0 + 0.0 * E
-    q = m * (E - v) / C_EV_NM2
+    q = m * (E - v) / HBAR2_2M0_EV_NM2
     if np.iscomplexobj(q):
         kap = np.sqrt(-q)
         x = kap * h
@@ -331,7 +328,7 @@ def count_nodes(sl: Slices, energies, P, U) -> np.ndarray:
     """
     E = np.asarray(energies)[None, :]
     m = eff_mass(sl.m_m0[:, None], sl.v_eV[:, None], sl.g_eV[:, None], E)
-    q = m * (E - sl.v_eV[:, None]) / C_EV_NM2
+    q = m * (E - sl.v_eV[:, None]) / HBAR2_2M0_EV_NM2
     osc = q > 0
     k = np.sqrt(np.where(osc, q, 1.0))
     p0, u0, p1 = P[:-1], U[:-1], P[1:]

@@ -38,7 +38,7 @@ Method
   exactly one Dirichlet eigenvalue of the period, which brackets every band
   edge uniquely.
 
-Units: eV, nm, m0 inside; ``hbar^2/(2 m0)`` and ``hbar`` from scipy.constants.
+Units: eV, nm, m0 inside; ``hbar^2/(2 m0)`` and ``hbar`` from :mod:`qwell.constants`.
 
 References
 ----------
@@ -56,6 +56,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..bands import Band, RepeatInfo
+from ..constants import HBAR2_2M0_EV_NM2, HBAR_EV_S
 from . import _transfer as tr
 from .results import Levels, Miniband, State
 
@@ -113,7 +114,7 @@ def _mismatch(sl: tr.Slices, E: np.ndarray, clad_l, clad_r) -> np.ndarray:
     # weight making u comparable with psi in the matching slice
     j = min(jm, sl.n - 1)
     mj = tr.eff_mass(sl.m_m0[j], sl.v_eV[j], sl.g_eV[j], E)
-    w = np.sqrt(tr.C_EV_NM2 * mj / np.maximum(np.abs(E - sl.v_eV[j]), 1e-3))
+    w = np.sqrt(HBAR2_2M0_EV_NM2 * mj / np.maximum(np.abs(E - sl.v_eV[j]), 1e-3))
     ul, ur = w * ul, w * ur
     return (pl * ur - ul * pr) / (np.hypot(pl, ul) * np.hypot(pr, ur))
 
@@ -289,7 +290,7 @@ def _waves_on(sl: tr.Slices, E: np.ndarray, z: np.ndarray, clad_l, clad_r):
     jw = min(jm, ns - 1)
     # weight making u comparable with psi
     m_here = tr.eff_mass(sl.m_m0[jw], sl.v_eV[jw], sl.g_eV[jw], e)
-    w = np.sqrt(tr.C_EV_NM2 * m_here / np.maximum(np.abs(e - sl.v_eV[jw]), 1e-4))
+    w = np.sqrt(HBAR2_2M0_EV_NM2 * m_here / np.maximum(np.abs(e - sl.v_eV[jw]), 1e-4))
     vl0, vl1 = PL[jm], w * UL[jm]
     vr0, vr1 = PR[jm], w * UR[jm]
     lam = (vr0 * vl0 + vr1 * vl1) / (vl0 * vl0 + vl1 * vl1)  # vr ~ lam * vl
@@ -622,6 +623,7 @@ def minibands(band: Band, repeat: RepeatInfo, *, max_bands: int = 10) -> tuple[M
     Kronig and Penney, Proc. R. Soc. A 130, 499 (1931); Bastard, Phys. Rev. B
     24, 5693 (1981).
     """
+    # scipy.optimize is heavy and only needed for minibands: imported on first use
     from scipy.optimize import brentq
 
     z0, d = repeat.z_start_nm, repeat.period_nm
@@ -820,7 +822,7 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
                                      closed_tails=False) if wavefunctions else None)
         for iq, (p, t) in enumerate(zip(poles, ptol)):
             gamma = max(-2 * p.imag, 0.0)
-            life = tr.HBAR_EV_S / gamma if gamma > 0 else np.inf
+            life = HBAR_EV_S / gamma if gamma > 0 else np.inf
             z = psi = None
             probs = ()
             if wavefunctions:

@@ -142,11 +142,11 @@ import weakref
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import constants as _c
 from scipy import optimize as _opt
 from scipy import special as _sp
 
 from ..bands import _MIN_MASS_FRACTION, Band
+from ..constants import HBAR2_2M0_EV_NM2
 from ..errors import ParameterError, ValidityWarning
 from .results import Levels, State
 
@@ -161,8 +161,6 @@ __all__ = [
     "PHASE_TOLERANCE_RAD",
 ]
 
-#: hbar^2 / (2 m0) in eV nm^2 (CODATA via scipy.constants; 0.0380998 eV nm^2).
-HBAR2_2M0_EV_NM2 = _c.hbar ** 2 / (2.0 * _c.m_e) / _c.e * 1e18
 #: Validity figure above which a ValidityWarning is issued.
 VALIDITY_THRESHOLD = 0.25
 #: Tunnelling factor exp(-int kappa dz) above which a barrier is "not opaque".
