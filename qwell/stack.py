@@ -1218,7 +1218,7 @@ def layer_fields(stack: Stack, entry: Mapping, path: str = "layer") -> dict:
     builder = _Builder(entry, {}, stack.path)
     builder.temperature_K = stack.temperature_K
     builder.user_materials = dict(stack.user_materials)
-    builder.user_keys = dict(_materials_api().USER_KEYS)
+    builder.user_keys = dict(_materials.USER_KEYS)
     return builder.parse_layer(entry, path, {})
 
 

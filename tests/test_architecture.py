@@ -23,17 +23,17 @@ LAYERS = (
     ("units",),
     ("fileio", "parallel"),
     ("materials",),
-    ("strain",),
+    ("strain", "formula"),
     ("stack", "stack_edit"),
     ("bands", "profile"),
     ("solvers",),
-    ("optics", "poisson", "lifetimes", "absorption"),
+    ("optics", "poisson", "lifetimes", "absorption", "gain", "excitons"),
     ("selfconsistent",),
     ("levels",),
     ("design",),
     ("plots", "diagram"),
     ("report",),
-    ("cli", "design_cli", "report_cli"),
+    ("cli",),
     ("qwell",),                 # the package itself: the public API imports everything
 )
 LAYER = {name: i for i, names in enumerate(LAYERS) for name in names}
