@@ -260,62 +260,66 @@ def count_states_below(band: Band, energies_eV: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------- wavefunctions
-def _waves_on(sl: tr.Slices, E: np.ndarray, z: np.ndarray, clad_l, clad_r):
-    """Bounded two-sided evaluation of the sliced solutions at energies E (nS,) on z (nz,).
+#: wavefunction grids hold at most this many points over the listed layers (the
+#: step grows beyond ``grid_step_nm`` on stacks longer than this times the step)
+_MAX_GRID_POINTS = 20000
+#: state vectors of at most this many (boundary, energy) pairs at once
+_BLOCK = 2_000_000
 
-    The left-decaying solution is used left of a matching interface and the
-    right-decaying one right of it; they are joined by least squares on the
-    state vector (psi, u) at that interface (chosen next to the deepest slice).
-    All energies are evaluated together.
+
+def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r):
+    """The joined solution at every slice boundary, for energies E (nS,).
+
+    The left-decaying solution (carried forward from the left cladding) is used
+    up to a matching boundary and the right-decaying one (carried backward)
+    beyond it; they are joined by least squares on the weighted state vector
+    ``(psi, w u)`` there.  The matching boundary is where the product of the two
+    amplitudes is largest, i.e. at the state's maximum, where both are accurate
+    (each solution is carried in the direction in which it grows up to there).
 
     Returns
     -------
-    psi : array (nS, nz)
-        Unnormalised values on the z points inside the sliced range
-        (``z`` is expected inside it; points outside are treated by the tails).
-    tails : tuple of arrays
-        ``(c_l, k_l, c_r, k_r)``: the left tail is ``c_l * exp(k_l (z - z_a))`` for
-        ``z < z_a`` and the right tail ``c_r * exp(-k_r (z - z_b))`` for ``z > z_b``
-        (z_a, z_b the ends of the slices), same normalisation as ``psi``.
+    psi, u : arrays (ns+1, nS)
+        Unnormalised boundary values (max |psi| of order 1 at the matching point).
+    tails : tuple ``(c_l, k_l, c_r, k_r)``
+        Left tail ``c_l exp(k_l (z - z_a))``, right tail ``c_r exp(-k_r (z - z_b))``.
     """
-    e = np.asarray(E, dtype=float)
+    e = np.atleast_1d(np.asarray(E, dtype=float))
     kl, ml = tr.cladding_kappa(*clad_l, e)
     kr, mr = tr.cladding_kappa(*clad_r, e)
-    PL, UL, LL, _ = tr.propagate_states(sl, e, 1.0, kl / ml)
-    PR, UR, LR, _ = tr.propagate_states(sl, e, 1.0, -kr / mr, backward=True)
     ns = sl.n
-    jdeep = int(np.argmin(sl.v_eV))
-    jm = jdeep if jdeep > 0 else min(1, ns)
-    jw = min(jm, ns - 1)
-    # weight making u comparable with psi
-    m_here = tr.eff_mass(sl.m_m0[jw], sl.v_eV[jw], sl.g_eV[jw], e)
-    w = np.sqrt(tr.C_EV_NM2 * m_here / np.maximum(np.abs(e - sl.v_eV[jw]), 1e-4))
-    vl0, vl1 = PL[jm], w * UL[jm]
-    vr0, vr1 = PR[jm], w * UR[jm]
-    lam = (vr0 * vl0 + vr1 * vl1) / (vl0 * vl0 + vl1 * vl1)  # vr ~ lam * vl
+    psi = np.empty((ns + 1, e.size))
+    u = np.empty((ns + 1, e.size))
+    step = max(1, _BLOCK // (ns + 1))
+    for lo in range(0, e.size, step):
+        sel = slice(lo, lo + step)
+        ee = e[sel]
+        PL, UL, LL, _ = tr.propagate_states(sl, ee, 1.0, kl[sel] / ml[sel])
+        PR, UR, LR, _ = tr.propagate_states(sl, ee, 1.0, -kr[sel] / mr[sel], backward=True)
+        with np.errstate(divide="ignore"):
+            amp = (LL + np.log(np.hypot(PL, UL)) + LR + np.log(np.hypot(PR, UR)))
+        jm = np.argmax(amp, axis=0)
+        cols = np.arange(ee.size)
+        jw = np.minimum(jm, ns - 1)
+        m_here = tr.eff_mass(sl.m_m0[jw], sl.v_eV[jw], sl.g_eV[jw], ee)
+        w = np.sqrt(tr.C_EV_NM2 * m_here / np.maximum(np.abs(ee - sl.v_eV[jw]), 1e-4))
+        vl0, vl1 = PL[jm, cols], w * UL[jm, cols]
+        vr0, vr1 = PR[jm, cols], w * UR[jm, cols]
+        lam = (vr0 * vl0 + vr1 * vl1) / (vl0 * vl0 + vl1 * vl1)  # vr ~ lam * vl
+        left = np.arange(ns + 1)[:, None] <= jm[None, :]
+        fl = np.exp(np.minimum(LL - LL[jm, cols], 700))
+        fr = np.exp(np.minimum(LR - LR[jm, cols], 700)) / lam
+        psi[:, sel] = np.where(left, PL * fl, PR * fr)
+        u[:, sel] = np.where(left, UL * fl, UR * fr)
+    return psi, u, (psi[0].copy(), kl, psi[-1].copy(), kr)
+
+
+def _sample(sl: tr.Slices, E: float, psi_b, u_b, z: np.ndarray) -> np.ndarray:
+    """One state's envelope on points ``z`` inside the sliced range."""
     bounds = np.concatenate([sl.z0_nm, [sl.z_end_nm]])
-    zb = bounds[jm]
-    z = np.asarray(z, dtype=float)
-    j = np.clip(np.searchsorted(bounds, z, side="right") - 1, 0, ns - 1)
-    left = z < zb
-    res = np.empty((e.size, z.size))
-    Ec = e[:, None]
-    if left.any():
-        jl = j[left]
-        x = z[left] - bounds[jl]
-        a, b, c, d, ls = tr.coefficients(sl, Ec, lengths=x, sl_index=jl)
-        res[:, left] = (a * PL[jl].T + b * UL[jl].T) * np.exp(
-            np.minimum(ls + LL[jl].T - LL[jm][:, None], 700))
-    right = ~left
-    if right.any():
-        jr = j[right]
-        x = bounds[jr + 1] - z[right]
-        a, b, c, d, ls = tr.coefficients(sl, Ec, lengths=x, sl_index=jr)
-        res[:, right] = (a * PR[jr + 1].T - b * UR[jr + 1].T) / lam[:, None] * np.exp(
-            np.minimum(ls + LR[jr + 1].T - LR[jm][:, None], 700))
-    c_l = PL[0] * np.exp(np.minimum(LL[0] - LL[jm], 700))
-    c_r = PR[-1] / lam * np.exp(np.minimum(LR[-1] - LR[jm], 700))
-    return res, (c_l, kl, c_r, kr)
+    j = np.clip(np.searchsorted(bounds, z, side="right") - 1, 0, sl.n - 1)
+    x = np.clip(z - bounds[j], 0.0, sl.h_nm[j])
+    return tr.sample_in_slices(sl, float(E), psi_b, u_b, j, x)
 
 
 def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarray:
@@ -323,9 +327,9 @@ def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarr
     z = np.asarray(z, dtype=float)
     za, zb = float(sl.z0_nm[0]), sl.z_end_nm
     inside = (z >= za) & (z <= zb)
-    res, (c_l, kl, c_r, kr) = _waves_on(sl, np.array([float(E)]), z[inside], clad_l, clad_r)
+    psi_b, u_b, (c_l, kl, c_r, kr) = _boundary_states(sl, np.array([float(E)]), clad_l, clad_r)
     out = np.zeros_like(z)
-    out[inside] = res[0]
+    out[inside] = _sample(sl, E, psi_b[:, 0], u_b[:, 0], z[inside])
     m = z < za
     out[m] = c_l[0] * np.exp(np.minimum(kl[0] * (z[m] - za), 700))
     m = z > zb
@@ -336,7 +340,7 @@ def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarr
 def wavefunction(band: Band, energy_eV: float, z_nm: np.ndarray) -> np.ndarray:
     """Envelope function at carrier energy ``energy_eV`` on ``z_nm`` (unnormalised).
 
-    Uses the left-decaying solution left of the deepest slice and the
+    Uses the left-decaying solution left of the state's maximum and the
     right-decaying one right of it, joined there; at an eigenvalue this is the
     eigenfunction.  Graded/tilted pieces are sliced at 0.5 nm / 16.
     """
@@ -361,84 +365,99 @@ def _interior_grid(band: Band, step_nm: float) -> np.ndarray:
     return np.concatenate(segs)
 
 
-def _grid(band: Band, E: float, step_nm: float, clad_l, clad_r):
-    kl, _ = tr.cladding_kappa(*clad_l, np.array([E]))
-    kr, _ = tr.cladding_kappa(*clad_r, np.array([E]))
-    tails = [_tail_length(kl[0]), _tail_length(kr[0])]
-    segs = [np.linspace(band.z_start_nm - tails[0], band.z_start_nm,
-                        max(2, int(np.ceil(tails[0] / step_nm)) + 1))[:-1]]
-    segs.append(_interior_grid(band, step_nm)[:-1])
-    segs.append(np.linspace(band.z_end_nm, band.z_end_nm + tails[1],
-                            max(2, int(np.ceil(tails[1] / step_nm)) + 1)))
-    return np.concatenate(segs), kl[0], kr[0]
+def output_step_nm(band: Band, grid_step_nm: float) -> float:
+    """Wavefunction grid step for ``band``: ``grid_step_nm``, coarser on long stacks.
 
-
-def _trapz(y, x):
-    return float(np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(x))) if x.size > 1 else 0.0
-
-
-def _normalised_states(band: Band, sl: tr.Slices, energies, step_nm: float, clad_l, clad_r,
-                       closed_tails: bool = True):
-    """Normalised wavefunctions of several states at once: list of (z, psi, probabilities).
-
-    Each state gets the grid of :func:`_grid` (interior shared by all states,
-    cladding tails of ``_TAIL_DECAY`` decay lengths of the density); the
-    density is normalised with the trapezoid rule plus the analytic tails
-    ``psi_end^2 / (2 kappa)`` beyond the grid (bound states).
+    At most :data:`_MAX_GRID_POINTS` points over the listed layers, so that the
+    sampled states of a long stack cost memory linear in its length.
     """
-    E = np.atleast_1d(np.asarray(energies, dtype=float))
-    if E.size == 0:
-        return []
-    zi = _interior_grid(band, step_nm)
-    za, zb = band.z_start_nm, band.z_end_nm
-    psi_i, (c_l, kl, c_r, kr) = _waves_on(sl, E, zi, clad_l, clad_r)
-    dzi = np.diff(zi)
-    dens_i = psi_i ** 2
-    seg = 0.5 * (dens_i[:, 1:] + dens_i[:, :-1]) * dzi
-    cum = np.concatenate([np.zeros((E.size, 1)), np.cumsum(seg, axis=1)], axis=1)
-    # interface positions on the interior grid (exact floats, see _interior_grid)
-    edge_idx = np.searchsorted(zi, band.boundaries_nm)
-    n_layers = (len(band.layer_names) if band.layer_names else
-                1 + max(p.layer_index for p in band.pieces))
-    out = []
-    for i in range(E.size):
-        tl, tr_ = _tail_length(kl[i]), _tail_length(kr[i])
-        zl = np.linspace(za - tl, za, max(2, int(np.ceil(tl / step_nm)) + 1))[:-1]
-        zr = np.linspace(zb, zb + tr_, max(2, int(np.ceil(tr_ / step_nm)) + 1))[1:]
-        pl = c_l[i] * np.exp(np.minimum(kl[i] * (zl - za), 700))
-        pr = c_r[i] * np.exp(np.minimum(-kr[i] * (zr - zb), 700))
-        z = np.concatenate([zl, zi, zr])
-        psi = np.concatenate([pl, psi_i[i], pr])
-        dl = np.concatenate([pl, psi_i[i, :1]]) ** 2
-        dr = np.concatenate([psi_i[i, -1:], pr]) ** 2
-        zl1 = np.concatenate([zl, zi[:1]])
-        zr1 = np.concatenate([zi[-1:], zr])
-        int_l = float(np.sum(0.5 * (dl[1:] + dl[:-1]) * np.diff(zl1)))
-        int_r = float(np.sum(0.5 * (dr[1:] + dr[:-1]) * np.diff(zr1)))
-        tail_l = psi[0] ** 2 / (2 * kl[i]) if (closed_tails and kl[i] > 0) else 0.0
-        tail_r = psi[-1] ** 2 / (2 * kr[i]) if (closed_tails and kr[i] > 0) else 0.0
-        norm = int_l + float(cum[i, -1]) + int_r + tail_l + tail_r
+    return max(float(grid_step_nm), (band.z_end_nm - band.z_start_nm) / _MAX_GRID_POINTS)
+
+
+class _GridSpec:
+    """What sampling a state needs from its band (plain arrays, no callables).
+
+    Shared by all states of one solve, so that they all come on one grid (one
+    array in memory, no union of grids downstream): the interior grid (every
+    interface), cladding tails long enough for the slowest-decaying state
+    (``tail_l_nm``, ``tail_r_nm``), the interface positions and the layer of
+    each piece.
+    """
+
+    def __init__(self, band: Band, step_nm: float, tail_l_nm: float, tail_r_nm: float):
+        self.step_nm = step_nm
+        self.zi = _interior_grid(band, step_nm)
+        self.za, self.zb = za, zb = band.z_start_nm, band.z_end_nm
+        self.zl = np.linspace(za - tail_l_nm, za,
+                              max(2, int(np.ceil(tail_l_nm / step_nm)) + 1))[:-1]
+        self.zr = np.linspace(zb, zb + tail_r_nm, max(2, int(np.ceil(tail_r_nm / step_nm)) + 1))[1:]
+        self.z = np.concatenate([self.zl, self.zi, self.zr])
+        self.edge_idx = np.searchsorted(self.zi, band.boundaries_nm)
+        self.layer_of_piece = np.array([p.layer_index for p in band.pieces])
+        self.n_layers = (len(band.layer_names) if band.layer_names else
+                         1 + int(self.layer_of_piece.max()))
+
+
+class _Envelope:
+    """Compact storage of one state: its solution at every slice boundary.
+
+    ``sample()`` gives the normalised ``(z_nm, psi, layer_probability)`` on the
+    output grid (the interior grid of :class:`_GridSpec` plus cladding tails of
+    ``_TAIL_DECAY`` decay lengths of the density), normalised with the trapezoid
+    rule plus the analytic tails ``psi_end^2 / (2 kappa)`` beyond the grid
+    (bound states; ``closed_tails=False`` for resonances).
+    """
+
+    def __init__(self, sl: tr.Slices, energy_eV: float, psi_b, u_b, kl: float, kr: float,
+                 spec: _GridSpec, closed_tails: bool = True):
+        self.sl, self.energy_eV = sl, float(energy_eV)
+        self.psi_b, self.u_b = psi_b, u_b
+        self.kl, self.kr = float(kl), float(kr)
+        self.spec, self.closed_tails = spec, closed_tails
+
+    def sample(self):
+        sp, kl, kr = self.spec, self.kl, self.kr
+        zi, zl, zr, za, zb = sp.zi, sp.zl, sp.zr, sp.za, sp.zb
+        psi_i = _sample(self.sl, self.energy_eV, self.psi_b, self.u_b, zi)
+        c_l, c_r = self.psi_b[0], self.psi_b[-1]
+        seg = 0.5 * (psi_i[1:] ** 2 + psi_i[:-1] ** 2) * np.diff(zi)
+        cum = np.concatenate([[0.0], np.cumsum(seg)])
+        pl = c_l * np.exp(np.minimum(kl * (zl - za), 700))
+        pr = c_r * np.exp(np.minimum(-kr * (zr - zb), 700))
+        psi = np.concatenate([pl, psi_i, pr])
+        dl = np.concatenate([pl, psi_i[:1]]) ** 2
+        dr = np.concatenate([psi_i[-1:], pr]) ** 2
+        int_l = float(np.sum(0.5 * (dl[1:] + dl[:-1]) * np.diff(np.concatenate([zl, zi[:1]]))))
+        int_r = float(np.sum(0.5 * (dr[1:] + dr[:-1]) * np.diff(np.concatenate([zi[-1:], zr]))))
+        tail_l = psi[0] ** 2 / (2 * kl) if (self.closed_tails and kl > 0) else 0.0
+        tail_r = psi[-1] ** 2 / (2 * kr) if (self.closed_tails and kr > 0) else 0.0
+        norm = int_l + float(cum[-1]) + int_r + tail_l + tail_r
         psi = psi / np.sqrt(norm)
         if psi[np.argmax(np.abs(psi))] < 0:
             psi = -psi
-        probs = np.zeros(n_layers)
-        piece_int = np.diff(cum[i, edge_idx])
-        for k, p in enumerate(band.pieces):
-            val = float(piece_int[k])
-            if k == 0:
-                val += int_l + tail_l
-            if k == len(band.pieces) - 1:
-                val += int_r + tail_r
-            if p.layer_index < probs.size:
-                probs[p.layer_index] += val / norm
-        out.append((z, psi, tuple(float(x) for x in probs)))
-    return out
+        piece_p = np.diff(cum[sp.edge_idx])
+        piece_p[0] += int_l + tail_l
+        piece_p[-1] += int_r + tail_r
+        probs = np.zeros(sp.n_layers)
+        ok = sp.layer_of_piece < probs.size
+        np.add.at(probs, sp.layer_of_piece[ok], piece_p[ok] / norm)
+        return sp.z, psi, tuple(float(x) for x in probs)
 
 
-def _normalised_state(band: Band, sl: tr.Slices, E: float, step_nm: float, clad_l, clad_r,
-                      closed_tails: bool = True):
-    """One normalised state (see :func:`_normalised_states`)."""
-    return _normalised_states(band, sl, [E], step_nm, clad_l, clad_r, closed_tails)[0]
+def _envelopes(band: Band, sl: tr.Slices, bound_E, quasi_E, step_nm: float, clad_l,
+               clad_r) -> tuple[list, list]:
+    """Compact :class:`_Envelope` of each bound and quasi-bound energy, on one shared grid."""
+    E = np.concatenate([np.atleast_1d(np.asarray(bound_E, dtype=float)),
+                        np.atleast_1d(np.asarray(quasi_E, dtype=float))])
+    if E.size == 0:
+        return [], []
+    psi_b, u_b, (_, kl, _, kr) = _boundary_states(sl, E, clad_l, clad_r)
+    spec = _GridSpec(band, step_nm, max(_tail_length(k) for k in kl),
+                     max(_tail_length(k) for k in kr))
+    nb = np.atleast_1d(bound_E).size
+    env = [_Envelope(sl, E[i], psi_b[:, i].copy(), u_b[:, i].copy(), kl[i], kr[i], spec,
+                     closed_tails=i < nb) for i in range(E.size)]
+    return env[:nb], env[nb:]
 
 
 # ---------------------------------------------------------------- resonances
@@ -729,9 +748,14 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
     max_states : int, optional
         Keep only the lowest ``max_states`` bound states.
     grid_step_nm : float
-        Wavefunction grid step [nm].
+        Wavefunction grid step [nm]; on stacks longer than ``20000 * grid_step_nm``
+        the step grows so that the grid keeps 20,000 points (see
+        :func:`output_step_nm`).
     wavefunctions : bool
-        Compute normalised wavefunctions and layer probabilities.
+        Provide normalised wavefunctions and layer probabilities.  Each state
+        stores its solution at the slice boundaries (``State.envelope``);
+        ``z_nm``, ``psi`` and ``layer_probability`` are sampled from it on first
+        access.
     quasi_bound : bool
         Also look for localised resonances above the confinement limit.
 
@@ -799,16 +823,7 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         notes.append("an eigenvalue pair could not be separated (splitting below 1e-13 eV)")
 
     states = []
-    waves = (_normalised_states(band, final_sl, final_E[:E.size], grid_step_nm, clad_l, clad_r)
-             if wavefunctions else None)
-    for i in range(E.size):
-        z = psi = None
-        probs = ()
-        if wavefunctions:
-            z, psi, probs = waves[i]
-        states.append(dict(energy=float(E[i]), tol=float(tol[i]), conv=bool(converged[i]),
-                           bound=True, life=None, z=z, psi=psi, probs=probs, msg=""))
-
+    poles, ptol = np.zeros(0, complex), np.zeros(0)
     if quasi_bound:
         xq = max(min(tolerance_eV / 10, 1e-9), 1e-13)
         poles, steps, _ = _quasi_bound(band, final_sl, xq)
@@ -816,18 +831,21 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         if not flat and len(poles):
             poles, ptol = _refine_poles(band, poles, len(levels_E) - 1, clad_l, clad_r, xq,
                                         tolerance_eV)
-        qwaves = (_normalised_states(band, final_sl, np.real(poles), grid_step_nm, clad_l, clad_r,
-                                     closed_tails=False) if wavefunctions else None)
+    if wavefunctions:
+        waves, qwaves = _envelopes(band, final_sl, final_E[:E.size], np.real(poles),
+                                   output_step_nm(band, grid_step_nm), clad_l, clad_r)
+    else:
+        waves, qwaves = [None] * E.size, [None] * len(poles)
+    for i in range(E.size):
+        states.append(dict(energy=float(E[i]), tol=float(tol[i]), conv=bool(converged[i]),
+                           bound=True, life=None, env=waves[i], msg=""))
+    if quasi_bound:
         for iq, (p, t) in enumerate(zip(poles, ptol)):
             gamma = max(-2 * p.imag, 0.0)
             life = tr.HBAR_EV_S / gamma if gamma > 0 else np.inf
-            z = psi = None
-            probs = ()
-            if wavefunctions:
-                z, psi, probs = qwaves[iq]
             t = float(max(t, xq))
             states.append(dict(energy=float(p.real), tol=t, conv=t <= tolerance_eV, bound=False,
-                               life=float(life), z=z, psi=psi, probs=probs,
+                               life=float(life), env=qwaves[iq],
                                msg=f"quasi-bound: width {gamma:.3g} eV (normalised over the grid)"))
 
     states.sort(key=lambda s: s["energy"])
@@ -836,8 +854,8 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         out.append(State(band=band.name, label=f"{band.prefix}{n}", index=n,
                          energy_eV=float(band.profile_energy(s["energy"])),
                          carrier_energy_eV=s["energy"], bound=s["bound"], lifetime_s=s["life"],
-                         tolerance_eV=s["tol"], converged=s["conv"], z_nm=s["z"], psi=s["psi"],
-                         layer_probability=s["probs"], message=s["msg"]))
+                         tolerance_eV=s["tol"], converged=s["conv"], envelope=s["env"],
+                         message=s["msg"]))
 
     n_bound = sum(1 for s in out if s.bound)
     message = f"{n_bound} bound state{'s' if n_bound != 1 else ''}"
