@@ -75,21 +75,29 @@ def _cladding(band: Band, side: str):
     return v, m, g
 
 
+def _slices(band: Band, level: int, **window) -> tr.Slices:
+    """Slices of ``band`` at ``level`` with its exactly repeating blocks recorded."""
+    sl = tr.build_slices(band, level, **window)
+    if not band.repeats or window:
+        return sl
+    return tr.find_periods(sl, [(r.z_start_nm, r.period_nm, r.count) for r in band.repeats])
+
+
 def _count(sl: tr.Slices, E: np.ndarray, clad_l, clad_r) -> np.ndarray:
-    """N(E) of the sliced problem with decaying claddings ``clad_l/clad_r`` (V, m, g)."""
+    """N(E) of the sliced problem with decaying claddings ``clad_l/clad_r`` (V, m, g).
+
+    The zeros of the left-decaying solution are counted in one streaming pass
+    (:func:`~qwell.solvers._transfer.count_zeros`, memory O(len(E)), periods
+    reusing one period's coefficients); one more eigenvalue lies below E when
+    the final angle passes that of the right-decaying cladding solution.
+    """
     E = np.atleast_1d(np.asarray(E, dtype=float))
-    out = np.empty(E.size, dtype=np.int64)
-    chunk = max(1, 400000 // max(sl.n, 1))
-    for i in range(0, E.size, chunk):
-        e = E[i:i + chunk]
-        kl, ml = tr.cladding_kappa(*clad_l, e)
-        kr, mr = tr.cladding_kappa(*clad_r, e)
-        P, U, _, _ = tr.propagate_states(sl, e, 1.0, kl / ml)
-        n = tr.count_nodes(sl, e, P, U)
-        phi = np.mod(np.arctan2(P[-1], U[-1]), np.pi)
-        beta = np.arctan2(1.0, -kr / mr)
-        out[i:i + chunk] = n + (phi > beta)
-    return out
+    kl, ml = tr.cladding_kappa(*clad_l, E)
+    kr, mr = tr.cladding_kappa(*clad_r, E)
+    n, p, u = tr.count_zeros(sl, E, 1.0, kl / ml)
+    phi = np.mod(np.arctan2(p, u), np.pi)
+    beta = np.arctan2(1.0, -kr / mr)
+    return n + (phi > beta)
 
 
 def _split_index(sl: tr.Slices) -> int:
@@ -103,13 +111,19 @@ def _mismatch(sl: tr.Slices, E: np.ndarray, clad_l, clad_r) -> np.ndarray:
 
     Both solutions are carried from their cladding to the start of the deepest
     slice, so neither is propagated against its decay (smooth in E, no step).
+    Across the exactly repeating blocks of ``sl`` one period's transfer matrix
+    is raised to the number of periods by repeated squaring.
     """
     kl, ml = tr.cladding_kappa(*clad_l, E)
     kr, mr = tr.cladding_kappa(*clad_r, E)
     jm = _split_index(sl)
-    coef = tr.coefficients(sl, E)
-    pl, ul = tr.carry(sl, E, 1.0, kl / ml, 0, jm, coef=coef)
-    pr, ur = tr.carry(sl, E, 1.0, -kr / mr, jm, sl.n, backward=True, coef=coef)
+    if sl.periods or sl.n * E.size > _BLOCK:
+        pl, ul = tr.carry_runs(sl, E, 1.0, kl / ml, 0, jm)
+        pr, ur = tr.carry_runs(sl, E, 1.0, -kr / mr, jm, sl.n, backward=True)
+    else:
+        coef = tr.coefficients(sl, E)
+        pl, ul = tr.carry(sl, E, 1.0, kl / ml, 0, jm, coef=coef)
+        pr, ur = tr.carry(sl, E, 1.0, -kr / mr, jm, sl.n, backward=True, coef=coef)
     # weight making u comparable with psi in the matching slice
     j = min(jm, sl.n - 1)
     mj = tr.eff_mass(sl.m_m0[j], sl.v_eV[j], sl.g_eV[j], E)
@@ -254,7 +268,7 @@ def count_states_below(band: Band, energies_eV: np.ndarray) -> np.ndarray:
     E = np.asarray(energies_eV, dtype=float)
     lim = band.confinement_limit_eV
     level = 0 if all(p.kind == "flat" for p in band.pieces) else _DEFAULT_COUNT_LEVEL
-    sl = tr.build_slices(band, level)
+    sl = _slices(band, level)
     out = _count(sl, np.minimum(E.ravel(), lim), _cladding(band, "left"), _cladding(band, "right"))
     return out.reshape(E.shape)
 
@@ -781,7 +795,7 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
 
     vmin_carrier, deep_name = _deepest(band)
     levels_E = []   # per level: energies
-    sl = tr.build_slices(band, 0)
+    sl = _slices(band, 0)
     e_lo = min(float(np.min(sl.v_eV)), vmin_carrier) - 1e-6
     E, half, iso, _ = _eigenvalues(band, sl, clad_l, clad_r, e_lo, lim, max_states, xtol)
     levels_E.append(E)
@@ -792,7 +806,7 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         rich_prev = None
         est = np.full(E.size, np.inf)
         for level in range(1, _MAX_LEVEL + 1):
-            sl = tr.build_slices(band, level)
+            sl = _slices(band, level)
             e_lo = min(e_lo, float(np.min(sl.v_eV)) - 1e-6)
             seeds = np.concatenate([levels_E[-1], 0.5 * (levels_E[-1][1:] + levels_E[-1][:-1])])
             En, half, iso, _ = _eigenvalues(band, sl, clad_l, clad_r, e_lo, lim, max_states, xtol,
