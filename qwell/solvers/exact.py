@@ -53,6 +53,9 @@ References
 
 from __future__ import annotations
 
+import sys
+import time
+
 import numpy as np
 
 from ..bands import Band, RepeatInfo
@@ -724,6 +727,55 @@ def _repeat_index(band: Band, repeat: RepeatInfo) -> int:
     return 0
 
 
+# ---------------------------------------------------------------- progress
+#: a terminal progress line is shown for solves expected to take longer than this [s]
+PROGRESS_AFTER_S = 2.0
+
+
+def _expected_seconds(band: Band, sl: tr.Slices, clad_l, clad_r, e_lo: float, lim: float,
+                      flat: bool, quasi_bound: bool) -> tuple[float, int]:
+    """Rough duration of a solve [s] and its bound-state count, from one timed count.
+
+    One count of two energies costs about one pass over the slices; a solve takes
+    ~40 such passes per refinement level (three levels, 7x the slices, when
+    pieces are sliced) plus, for resonances, ~2.5 passes per closed-box level
+    (0.5 on flat stacks).  Measured on the example stacks; good to a factor ~2.
+    """
+    t0 = time.perf_counter()
+    n = _count(sl, np.array([e_lo, lim]), clad_l, clad_r)
+    probe = time.perf_counter() - t0
+    est = probe * 40 * (1 if flat else 7)
+    if quasi_bound:
+        top = max(float(np.max(sl.v_eV)), clad_l[0], clad_r[0])
+        if top > lim + 1e-9:
+            wall = top + 1.0
+            nb = _count(sl, np.array([lim, top]), (wall, clad_l[1], np.inf),
+                        (wall, clad_r[1], np.inf))
+            est += probe * min(200, int(nb[1] - nb[0])) * (0.5 if flat else 2.5)
+    return est, int(n[1] - n[0])
+
+
+def _on_terminal() -> bool:
+    return bool(getattr(sys.stderr, "isatty", lambda: False)())
+
+
+class _Progress:
+    """One line on a terminal's stderr for a long solve: what, the expected time, then done."""
+
+    def __init__(self, band: Band, n_states: int, n_slices: int, expected_s: float):
+        self.on = expected_s > PROGRESS_AFTER_S and _on_terminal()
+        self.t0 = time.perf_counter()
+        if self.on:
+            sys.stderr.write(f"qwell: solving {band.name} band: {n_states} bound states over "
+                             f"{n_slices} slices, expected ~{expected_s:.0f} s ...")
+            sys.stderr.flush()
+
+    def done(self):
+        if self.on:
+            sys.stderr.write(f" done in {time.perf_counter() - self.t0:.1f} s\n")
+            sys.stderr.flush()
+
+
 # ---------------------------------------------------------------- main solver
 def _deepest(band: Band):
     best = None
@@ -797,6 +849,10 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
     levels_E = []   # per level: energies
     sl = _slices(band, 0)
     e_lo = min(float(np.min(sl.v_eV)), vmin_carrier) - 1e-6
+    progress = None
+    if _on_terminal():
+        est_s, n_est = _expected_seconds(band, sl, clad_l, clad_r, e_lo, lim, flat, quasi_bound)
+        progress = _Progress(band, n_est, sl.n, est_s)
     E, half, iso, _ = _eigenvalues(band, sl, clad_l, clad_r, e_lo, lim, max_states, xtol)
     levels_E.append(E)
     tol = np.maximum(half, 0.0)
@@ -871,6 +927,8 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
                          tolerance_eV=s["tol"], converged=s["conv"], envelope=s["env"],
                          message=s["msg"]))
 
+    if progress is not None:
+        progress.done()
     n_bound = sum(1 for s in out if s.bound)
     message = f"{n_bound} bound state{'s' if n_bound != 1 else ''}"
     if n_bound == 0:
