@@ -153,10 +153,19 @@ def _old_levels(band):
     return np.array(out)
 
 
-@pytest.mark.parametrize("case", ["superlattice", "detector"])
+@pytest.mark.parametrize("case", ["superlattice", "barrier_first", "detector"])
 def test_long_stack_energies_equal_the_previous_path(case):
     if case == "superlattice":
         band = _superlattice(4.0, 2.0, 0.25, 0.067, 0.0919, 40)
+    elif case == "barrier_first":
+        # periods that start with a barrier: the matching point (deepest slice) falls
+        # inside the first period, so partial periods are carried slice by slice
+        V0, mb, mw, n = 0.25, 0.0919, 0.067, 30
+        band = band_from_layers([(30, V0, mb)] + [(2.5, V0, mb), (4.0, 0.0, mw)] * n
+                                + [(30, V0, mb)])
+        band = dataclasses.replace(band, repeats=(RepeatInfo(
+            z_start_nm=30.0, period_nm=6.5, count=n, first_layer=1, layers_per_period=2),))
+        assert _slices(band, 0).periods == ((1, 2, n),)
     else:
         # a 12-period detector-like stack: 5 nm wells, 8 nm barriers (separable states)
         band = _superlattice(5.0, 8.0, 0.21, 0.067, 0.088, 12, clad_nm=40.0)

@@ -28,6 +28,16 @@ Method
 * Stability: evanescent slices use scaled hyperbolic functions; states are
   renormalised slice by slice, so barriers of hundreds of nm neither overflow
   nor lose the count.
+* Long stacks: energies come first and need no stored solution.  The count is
+  one streaming pass per batch of energies (memory linear in the number of
+  energies, not slices x energies); an exactly repeating block (same slices in
+  every period) reuses one period's slice coefficients for every period, and
+  the mismatch crosses it with one period's transfer matrix raised to the
+  number of periods by repeated squaring (rescaled at every step).  Each state
+  is then stored as its solution at the slice boundaries (``State.envelope``,
+  two numbers per slice); ``psi``, ``z_nm`` and ``layer_probability`` are
+  sampled on first use, on one grid shared by all states of the solve, with the
+  step ``grid_step_nm`` widened so that it holds at most 20,000 points.
 * Quasi-bound states (above the lower cladding): poles of the outgoing-wave
   mismatch in the complex energy plane, started from the real eigenvalues of
   the stack closed at its ends; ``E = E_r - i Gamma/2``, lifetime ``hbar/Gamma``.
