@@ -78,6 +78,13 @@ _MAX_LEVEL = 9          # finest slice step 0.5 nm / 512 ~ 1 pm
 _DEFAULT_COUNT_LEVEL = 2
 _TAIL_DECAY = 5.0       # cladding tail on the grid: 5 decay lengths of psi
 _TAIL_MIN_NM, _TAIL_MAX_NM = 2.0, 60.0
+#: wavefunction grids hold at most this many points over the listed layers (the
+#: step grows beyond ``grid_step_nm`` on stacks longer than this times the step)
+_MAX_GRID_POINTS = 20000
+#: mismatch: above this many (slice, energy) pairs, carry in bounded blocks
+_BLOCK = 2_000_000
+#: boundary states of at most this many (boundary, energy) pairs at once
+_STATE_BLOCK = 500_000
 
 
 # ---------------------------------------------------------------- helpers
@@ -287,12 +294,6 @@ def count_states_below(band: Band, energies_eV: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------- wavefunctions
-#: wavefunction grids hold at most this many points over the listed layers (the
-#: step grows beyond ``grid_step_nm`` on stacks longer than this times the step)
-_MAX_GRID_POINTS = 20000
-#: state vectors of at most this many (boundary, energy) pairs at once
-_BLOCK = 2_000_000
-
 
 def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r):
     """The joined solution at every slice boundary, for energies E (nS,).
@@ -317,7 +318,7 @@ def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r):
     ns = sl.n
     psi = np.empty((ns + 1, e.size))
     u = np.empty((ns + 1, e.size))
-    step = max(1, _BLOCK // (ns + 1))
+    step = max(1, _STATE_BLOCK // (ns + 1))
     for lo in range(0, e.size, step):
         sel = slice(lo, lo + step)
         ee = e[sel]
