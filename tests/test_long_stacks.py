@@ -260,3 +260,35 @@ def test_states_are_stored_compactly_and_sampled_on_use():
         assert np.sum(np.sign(big[1:]) != np.sign(big[:-1])) == k
     # all states share one grid
     assert all(t.z_nm is lev.states[0].z_nm for t in lev.states)
+
+
+# ------------------------------------------------------------ progress line
+class _Terminal:
+    def __init__(self):
+        self.text = ""
+
+    def isatty(self):
+        return True
+
+    def write(self, s):
+        self.text += s
+
+    def flush(self):
+        pass
+
+
+def test_progress_line_only_on_a_terminal_and_for_long_solves(monkeypatch):
+    import sys
+
+    import qwell.solvers.exact as ex
+
+    band = _superlattice(4.0, 2.0, 0.25, 0.067, 0.0919, 40)
+    term = _Terminal()
+    monkeypatch.setattr(sys, "stderr", term)
+    solve_exact(band, wavefunctions=False)
+    assert term.text == ""  # expected well under 2 s: nothing printed
+    monkeypatch.setattr(ex, "PROGRESS_AFTER_S", 0.0)
+    solve_exact(band, wavefunctions=False)
+    assert term.text.startswith("qwell: solving conduction band: 40 bound states")
+    assert "expected ~" in term.text and term.text.rstrip().endswith(" s")
+    assert term.text.count("\n") == 1
