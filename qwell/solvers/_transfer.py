@@ -156,14 +156,14 @@ def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
     m = eff_mass(m0, v, g, E) if np.any(np.isfinite(g)) else m0 + 0.0 * E
     q = m * (E - v) / C_EV_NM2
     if np.iscomplexobj(q):
-        kap = np.sqrt(-q)
-        x = kap * h
-        e2 = np.exp(-2.0 * x)
-        a = 0.5 * (1.0 + e2)
+        # complex energies (resonances): scaled cosh = 1 + expm1(-2x)/2 and
+        # sinh/kappa = -expm1(-2x)/(2 kappa); q/m = (E - V)/C (no complex division)
+        x = np.sqrt(-q) * h
+        em1 = np.expm1(-2.0 * x)
+        a = 1.0 + 0.5 * em1
         with np.errstate(invalid="ignore", divide="ignore"):
-            s = np.where(np.abs(x) > 1e-8, -np.expm1(-2.0 * x) / (2.0 * np.where(x == 0, 1, x)),
-                         1.0 - x) * h
-        return a, m * s, -(q / m) * s, a, x
+            s = np.where(np.abs(x) > 1e-8, em1 / (-2.0 * np.where(x == 0, 1, x)), 1.0 - x) * h
+        return a, m * s, (-1.0 / C_EV_NM2) * (E - v) * s, a, x
     osc = q > 0
     k = np.sqrt(np.abs(q))
     x = k * h
