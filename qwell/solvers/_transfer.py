@@ -517,7 +517,7 @@ def count_nodes(sl: Slices, energies, P, U) -> np.ndarray:
     return np.where(osc, n_osc, n_ev).sum(axis=0).astype(np.int64)
 
 
-def sample_in_slices(sl: Slices, energy, psi_b, u_b, j, x):
+def sample_in_slices(sl: Slices, energy, psi_b, u_b, j, x, join=None):
     """Envelope at distance ``x`` into slice ``j`` from the state at the slice boundaries.
 
     Pure function over arrays (one energy, any number of points).
@@ -533,6 +533,10 @@ def sample_in_slices(sl: Slices, energy, psi_b, u_b, j, x):
         Slice of each point.
     x : array
         Distance from the start of slice ``j`` [nm], ``0 <= x <= h_j``.
+    join : tuple ``(j_m, psi, u)``, optional
+        Boundary ``j_m`` where two solutions were joined and the values of the
+        later one there: slice ``j_m`` starts from these instead of
+        ``psi_b[j_m]``, ``u_b[j_m]`` (every slice is then one solution).
 
     Notes
     -----
@@ -550,11 +554,15 @@ def sample_in_slices(sl: Slices, energy, psi_b, u_b, j, x):
     m = eff_mass(m0, v, g, energy)
     q = m * (energy - v) / C_EV_NM2
     k = np.sqrt(np.abs(q))
+    p0, u0 = psi_b[j], u_b[j]
+    if join is not None:
+        at = j == join[0]
+        p0, u0 = np.where(at, join[1], p0), np.where(at, join[2], u0)
     out = np.empty(x.shape)
     osc = q > 0
     if osc.any():
-        ko, xo, jo = k[osc], x[osc], j[osc]
-        out[osc] = np.cos(ko * xo) * psi_b[jo] + m[osc] * np.sin(ko * xo) / ko * u_b[jo]
+        ko, xo = k[osc], x[osc]
+        out[osc] = np.cos(ko * xo) * p0[osc] + m[osc] * np.sin(ko * xo) / ko * u0[osc]
     ev = ~osc
     if ev.any():
         ke, xe, he, je = k[ev], x[ev], h[ev], j[ev]
@@ -565,5 +573,5 @@ def sample_in_slices(sl: Slices, energy, psi_b, u_b, j, x):
                       (he - xe) / np.where(he > 0, he, 1.0))
         w1 = np.where(pos, np.exp(-kp * (he - xe)) * -np.expm1(-2.0 * kp * xe) / den,
                       xe / np.where(he > 0, he, 1.0))
-        out[ev] = w0 * psi_b[je] + w1 * psi_b[je + 1]
+        out[ev] = w0 * p0[ev] + w1 * psi_b[je + 1]
     return out

@@ -295,22 +295,30 @@ def count_states_below(band: Band, energies_eV: np.ndarray) -> np.ndarray:
 
 # ---------------------------------------------------------------- wavefunctions
 
-def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r):
+def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r, at_peak=True):
     """The joined solution at every slice boundary, for energies E (nS,).
 
     The left-decaying solution (carried forward from the left cladding) is used
     up to a matching boundary and the right-decaying one (carried backward)
     beyond it; they are joined by least squares on the weighted state vector
-    ``(psi, w u)`` there.  The matching boundary is where the product of the two
-    amplitudes is largest, i.e. at the state's maximum, where both are accurate
-    (each solution is carried in the direction in which it grows up to there).
+    ``(psi, w u)`` there.  With ``at_peak`` (eigenvalues) the matching boundary
+    is where the product of the two amplitudes is largest, i.e. at the state's
+    maximum, where both are accurate (each solution is carried in the direction
+    in which it grows up to there); otherwise (real parts of resonances, where
+    the two solutions do not match and the join defines the function) it is
+    the start of the deepest slice.
 
     Returns
     -------
     psi, u : arrays (ns+1, nS)
-        Unnormalised boundary values (max |psi| of order 1 at the matching point).
+        Unnormalised boundary values (max |psi| of order 1 at the matching point);
+        at the matching boundary those of the left solution.
     tails : tuple ``(c_l, k_l, c_r, k_r)``
         Left tail ``c_l exp(k_l (z - z_a))``, right tail ``c_r exp(-k_r (z - z_b))``.
+    join : tuple ``(j_m, psi_r, u_r)``
+        Matching boundary and the right solution's values there: slices from
+        ``j_m`` on are evaluated from the right solution only (at a resonance's
+        real part the two differ, and each slice keeps one of them).
     """
     e = np.atleast_1d(np.asarray(E, dtype=float))
     kl, ml = tr.cladding_kappa(*clad_l, e)
@@ -318,6 +326,7 @@ def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r):
     ns = sl.n
     psi = np.empty((ns + 1, e.size))
     u = np.empty((ns + 1, e.size))
+    join = (np.empty(e.size, dtype=np.int64), np.empty(e.size), np.empty(e.size))
     step = max(1, _STATE_BLOCK // (ns + 1))
     for lo in range(0, e.size, step):
         sel = slice(lo, lo + step)
@@ -326,7 +335,8 @@ def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r):
         PR, UR, LR, _ = tr.propagate_states(sl, ee, 1.0, -kr[sel] / mr[sel], backward=True)
         with np.errstate(divide="ignore"):
             amp = (LL + np.log(np.hypot(PL, UL)) + LR + np.log(np.hypot(PR, UR)))
-        jm = np.argmax(amp, axis=0)
+        jm = (np.argmax(amp, axis=0) if at_peak else
+              np.full(ee.size, int(np.argmin(sl.v_eV)) or min(1, ns)))
         cols = np.arange(ee.size)
         jw = np.minimum(jm, ns - 1)
         m_here = tr.eff_mass(sl.m_m0[jw], sl.v_eV[jw], sl.g_eV[jw], ee)
@@ -339,15 +349,16 @@ def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r):
         fr = np.exp(np.minimum(LR - LR[jm, cols], 700)) / lam
         psi[:, sel] = np.where(left, PL * fl, PR * fr)
         u[:, sel] = np.where(left, UL * fl, UR * fr)
-    return psi, u, (psi[0].copy(), kl, psi[-1].copy(), kr)
+        join[0][sel], join[1][sel], join[2][sel] = jm, (PR * fr)[jm, cols], (UR * fr)[jm, cols]
+    return psi, u, (psi[0].copy(), kl, psi[-1].copy(), kr), join
 
 
-def _sample(sl: tr.Slices, E: float, psi_b, u_b, z: np.ndarray) -> np.ndarray:
+def _sample(sl: tr.Slices, E: float, psi_b, u_b, z: np.ndarray, join) -> np.ndarray:
     """One state's envelope on points ``z`` inside the sliced range."""
     bounds = np.concatenate([sl.z0_nm, [sl.z_end_nm]])
     j = np.clip(np.searchsorted(bounds, z, side="right") - 1, 0, sl.n - 1)
     x = np.clip(z - bounds[j], 0.0, sl.h_nm[j])
-    return tr.sample_in_slices(sl, float(E), psi_b, u_b, j, x)
+    return tr.sample_in_slices(sl, float(E), psi_b, u_b, j, x, join)
 
 
 def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarray:
@@ -355,9 +366,10 @@ def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarr
     z = np.asarray(z, dtype=float)
     za, zb = float(sl.z0_nm[0]), sl.z_end_nm
     inside = (z >= za) & (z <= zb)
-    psi_b, u_b, (c_l, kl, c_r, kr) = _boundary_states(sl, np.array([float(E)]), clad_l, clad_r)
+    psi_b, u_b, (c_l, kl, c_r, kr), join = _boundary_states(sl, np.array([float(E)]), clad_l,
+                                                            clad_r, at_peak=False)
     out = np.zeros_like(z)
-    out[inside] = _sample(sl, E, psi_b[:, 0], u_b[:, 0], z[inside])
+    out[inside] = _sample(sl, E, psi_b[:, 0], u_b[:, 0], z[inside], tuple(x[0] for x in join))
     m = z < za
     out[m] = c_l[0] * np.exp(np.minimum(kl[0] * (z[m] - za), 700))
     m = z > zb
@@ -368,7 +380,7 @@ def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarr
 def wavefunction(band: Band, energy_eV: float, z_nm: np.ndarray) -> np.ndarray:
     """Envelope function at carrier energy ``energy_eV`` on ``z_nm`` (unnormalised).
 
-    Uses the left-decaying solution left of the state's maximum and the
+    Uses the left-decaying solution left of the deepest slice and the
     right-decaying one right of it, joined there; at an eigenvalue this is the
     eigenfunction.  Graded/tilted pieces are sliced at 0.5 nm / 16.
     """
@@ -433,25 +445,31 @@ class _Envelope:
     output grid (the interior grid of :class:`_GridSpec` plus cladding tails of
     ``_TAIL_DECAY`` decay lengths of the density), normalised with the trapezoid
     rule plus the analytic tails ``psi_end^2 / (2 kappa)`` beyond the grid
-    (bound states; ``closed_tails=False`` for resonances).
+    (bound states; ``closed_tails=False`` for resonances, normalised over their
+    own tail lengths).
     """
 
-    def __init__(self, sl: tr.Slices, energy_eV: float, psi_b, u_b, kl: float, kr: float,
+    def __init__(self, sl: tr.Slices, energy_eV: float, psi_b, u_b, join, kl: float, kr: float,
                  spec: _GridSpec, closed_tails: bool = True):
         self.sl, self.energy_eV = sl, float(energy_eV)
-        self.psi_b, self.u_b = psi_b, u_b
+        self.psi_b, self.u_b, self.join = psi_b, u_b, join
         self.kl, self.kr = float(kl), float(kr)
         self.spec, self.closed_tails = spec, closed_tails
 
     def sample(self):
         sp, kl, kr = self.spec, self.kl, self.kr
         zi, zl, zr, za, zb = sp.zi, sp.zl, sp.zr, sp.za, sp.zb
-        psi_i = _sample(self.sl, self.energy_eV, self.psi_b, self.u_b, zi)
+        psi_i = _sample(self.sl, self.energy_eV, self.psi_b, self.u_b, zi, self.join)
         c_l, c_r = self.psi_b[0], self.psi_b[-1]
         seg = 0.5 * (psi_i[1:] ** 2 + psi_i[:-1] ** 2) * np.diff(zi)
         cum = np.concatenate([[0.0], np.cumsum(seg)])
         pl = c_l * np.exp(np.minimum(kl * (zl - za), 700))
         pr = c_r * np.exp(np.minimum(-kr * (zr - zb), 700))
+        if not self.closed_tails:
+            # a resonance is normalised over its own tails (5 decay lengths, or the
+            # longest tail on an open side) and is zero beyond them on the shared grid
+            pl = np.where(zl >= za - _tail_length(kl) - 1e-9, pl, 0.0)
+            pr = np.where(zr <= zb + _tail_length(kr) + 1e-9, pr, 0.0)
         psi = np.concatenate([pl, psi_i, pr])
         dl = np.concatenate([pl, psi_i[:1]]) ** 2
         dr = np.concatenate([psi_i[-1:], pr]) ** 2
@@ -479,11 +497,17 @@ def _envelopes(band: Band, sl: tr.Slices, bound_E, quasi_E, step_nm: float, clad
                         np.atleast_1d(np.asarray(quasi_E, dtype=float))])
     if E.size == 0:
         return [], []
-    psi_b, u_b, (_, kl, _, kr) = _boundary_states(sl, E, clad_l, clad_r)
+    nb = np.atleast_1d(bound_E).size
+    psi_b, u_b, (_, kl, _, kr), join = _boundary_states(sl, E[:nb], clad_l, clad_r)
+    if nb < E.size:
+        q = _boundary_states(sl, E[nb:], clad_l, clad_r, at_peak=False)
+        psi_b, u_b = np.hstack([psi_b, q[0]]), np.hstack([u_b, q[1]])
+        kl, kr = np.concatenate([kl, q[2][1]]), np.concatenate([kr, q[2][3]])
+        join = tuple(np.concatenate([a, b]) for a, b in zip(join, q[3]))
     spec = _GridSpec(band, step_nm, max(_tail_length(k) for k in kl),
                      max(_tail_length(k) for k in kr))
-    nb = np.atleast_1d(bound_E).size
-    env = [_Envelope(sl, E[i], psi_b[:, i].copy(), u_b[:, i].copy(), kl[i], kr[i], spec,
+    env = [_Envelope(sl, E[i], psi_b[:, i].copy(), u_b[:, i].copy(),
+                     (int(join[0][i]), float(join[1][i]), float(join[2][i])), kl[i], kr[i], spec,
                      closed_tails=i < nb) for i in range(E.size)]
     return env[:nb], env[nb:]
 
