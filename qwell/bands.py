@@ -32,6 +32,7 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Callable
 
 import numpy as np
@@ -226,17 +227,45 @@ class Band:
         return np.searchsorted(inner, z, side="right")
 
     # -- evaluation -----------------------------------------------------
+    @cached_property
+    def _tables(self):
+        """Per-piece arrays of the flat/linear constants (one vectorised evaluation path).
+
+        ``(z0, e0, slope, mass, gap, simple)``: ``simple`` marks flat/linear pieces;
+        the ``gap`` entry is NaN for a parabolic piece.
+        """
+        ps = self.pieces
+        z0 = np.array([p.z_start_nm for p in ps])
+        e0 = np.array([p.edge_start_eV for p in ps])
+        slope = np.array([p.edge_slope_eV_per_nm for p in ps])
+        mass = np.array([p.mass_m0 for p in ps])
+        gap = np.array([np.nan if p.gap_eV is None else p.gap_eV for p in ps])
+        simple = np.array([p.kind != "smooth" for p in ps])
+        return z0, e0, slope, mass, gap, simple
+
     def _eval(self, attr: str, z_nm) -> np.ndarray:
+        """Piecewise evaluation of ``potential``, ``mass`` or ``gap`` (NaN where parabolic).
+
+        Flat and linear pieces are evaluated in one vectorised step from
+        :attr:`_tables` (the same arithmetic as :class:`Piece`); smooth pieces call
+        their functions on their own points.
+        """
         z = np.atleast_1d(np.asarray(z_nm, dtype=float))
         zc = np.clip(z, self.z_start_nm, self.z_end_nm)
         idx = self.piece_index(zc)
-        out = np.empty_like(zc)
-        for i in np.unique(idx):
-            sel = idx == i
-            val = getattr(self.pieces[i], attr)(zc[sel])
-            if val is None:
-                return None
-            out[sel] = val
+        z0, e0, slope, mass, gap, simple = self._tables
+        if attr == "potential":
+            out = e0[idx] + slope[idx] * (zc - z0[idx])
+        elif attr == "mass":
+            out = mass[idx]
+        else:
+            out = gap[idx]
+        smooth = ~simple[idx]
+        if smooth.any():
+            for i in np.unique(idx[smooth]):
+                sel = idx == i
+                val = getattr(self.pieces[i], attr)(zc[sel])
+                out[sel] = np.nan if val is None else val
         return out
 
     def potential(self, z_nm) -> np.ndarray:
@@ -249,16 +278,7 @@ class Band:
 
     def gap(self, z_nm) -> np.ndarray | None:
         """Local gap [eV] where defined; NaN where a piece is parabolic."""
-        z = np.atleast_1d(np.asarray(z_nm, dtype=float))
-        zc = np.clip(z, self.z_start_nm, self.z_end_nm)
-        idx = self.piece_index(zc)
-        out = np.full_like(zc, np.nan)
-        for i in np.unique(idx):
-            sel = idx == i
-            g = self.pieces[i].gap(zc[sel])
-            if g is not None:
-                out[sel] = g
-        return out
+        return self._eval("gap", z_nm)
 
     def mass(self, z_nm, energy_eV=None) -> np.ndarray:
         """Effective mass [m0] at z, energy-dependent if nonparabolic.

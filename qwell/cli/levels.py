@@ -226,10 +226,17 @@ def print_notes(method: str, sol) -> None:
         print(f"note: {n}")
 
 
-def _hidden_note(hidden: int, kind: str, criterion: str) -> None:
+#: most lines per transition table (strongest first); a 50-period stack has thousands
+MAX_TABLE_LINES = 40
+
+
+def _hidden_note(hidden: int, kind: str, criterion: str, capped: int = 0) -> None:
     if hidden:
         print(f"({hidden} {kind} line{'s' if hidden != 1 else ''} with {criterion} "
               "not shown; --json lists all)")
+    if capped:
+        print(f"({capped} weaker {kind} line{'s' if capped != 1 else ''} beyond the "
+              f"{MAX_TABLE_LINES} strongest not shown; --json lists all)")
 
 
 def print_transitions(trans, show_all: bool = False) -> None:
@@ -238,15 +245,21 @@ def print_transitions(trans, show_all: bool = False) -> None:
     band = sorted((t for t in trans if t.kind == "interband"), key=lambda t: -strength(t))
     if inter:
         shown_i = inter if show_all else [t for t in inter if (t.oscillator_strength or 0) >= 1e-3]
+        capped_i = 0 if show_all else max(0, len(shown_i) - MAX_TABLE_LINES)
+        hidden_i = len(inter) - len(shown_i)
+        shown_i = shown_i if show_all else shown_i[:MAX_TABLE_LINES]
         rows = [[t.name, f"{t.energy_eV:.6f}", f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}",
                  f"{t.frequency_THz:.3f}", f"{t.dipole_nm:.4f}", f"{t.oscillator_strength:.4f}"]
                 for t in shown_i]
         print("\nIntersubband transitions (absorption from the lower state, strongest first)")
         print(table(rows, ["transition", "energy eV", "λ µm", "cm⁻¹", "THz", "|z| nm", "f"],
                     ["<", ">", ">", ">", ">", ">", ">"]))
-        _hidden_note(len(inter) - len(shown_i), "intersubband", "f < 0.001")
+        _hidden_note(hidden_i, "intersubband", "f < 0.001", capped_i)
     if band:
         shown = band if show_all else [t for t in band if (t.overlap or 0.0) >= 1e-3]
+        capped = 0 if show_all else max(0, len(shown) - MAX_TABLE_LINES)
+        hidden = len(band) - len(shown)
+        shown = shown if show_all else shown[:MAX_TABLE_LINES]
         lowest = min(band, key=lambda t: t.energy_eV)
         rows = [[t.name, f"{t.energy_eV:.6f}", f"{1e3 * t.wavelength_um:.2f}",
                  f"{t.overlap:.4f}", f"{t.te:.4f}", f"{t.tm:.4f}",
@@ -256,7 +269,7 @@ def print_transitions(trans, show_all: bool = False) -> None:
         print("\nInterband transitions (strongest first; excitonic binding not included)")
         print(table(rows, ["transition", "energy eV", "λ nm", "|<e|h>|²", "TE", "TM", ""],
                     ["<", ">", ">", ">", ">", ">", "<"]))
-        _hidden_note(len(band) - len(shown), "interband", "|<e|h>|² < 0.001")
+        _hidden_note(hidden, "interband", "|<e|h>|² < 0.001", capped)
 
 
 def print_depolarisation(sol, trans) -> None:

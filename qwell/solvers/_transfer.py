@@ -46,6 +46,9 @@ class Slices:
     g_eV: np.ndarray        # gap (inf where parabolic or band parabolic)
     piece: np.ndarray       # piece index
     exact: bool             # True when every piece is flat (no discretisation error)
+    #: exactly repeating blocks ``(first slice, slices per period, periods)``: the
+    #: slices of every period equal those of the first (see :func:`find_periods`)
+    periods: tuple = ()
 
     @property
     def n(self) -> int:
@@ -150,14 +153,14 @@ def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
     m = eff_mass(m0, v, g, E) if np.any(np.isfinite(g)) else m0 + 0.0 * E
     q = m * (E - v) / HBAR2_2M0_EV_NM2
     if np.iscomplexobj(q):
-        kap = np.sqrt(-q)
-        x = kap * h
-        e2 = np.exp(-2.0 * x)
-        a = 0.5 * (1.0 + e2)
+        # complex energies (resonances): scaled cosh = 1 + expm1(-2x)/2 and
+        # sinh/kappa = -expm1(-2x)/(2 kappa); q/m = (E - V)/C (no complex division)
+        x = np.sqrt(-q) * h
+        em1 = np.expm1(-2.0 * x)
+        a = 1.0 + 0.5 * em1
         with np.errstate(invalid="ignore", divide="ignore"):
-            s = np.where(np.abs(x) > 1e-8, -np.expm1(-2.0 * x) / (2.0 * np.where(x == 0, 1, x)),
-                         1.0 - x) * h
-        return a, m * s, -(q / m) * s, a, x
+            s = np.where(np.abs(x) > 1e-8, em1 / (-2.0 * np.where(x == 0, 1, x)), 1.0 - x) * h
+        return a, m * s, (-1.0 / HBAR2_2M0_EV_NM2) * (E - v) * s, a, x
     osc = q > 0
     k = np.sqrt(np.abs(q))
     x = k * h
@@ -188,9 +191,98 @@ def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
 
 
 def subset(sl: Slices, lo: int, hi: int) -> Slices:
-    """Slices ``lo:hi``."""
+    """Slices ``lo:hi`` (without period information)."""
     return Slices(sl.z0_nm[lo:hi], sl.h_nm[lo:hi], sl.v_eV[lo:hi], sl.m_m0[lo:hi],
                   sl.g_eV[lo:hi], sl.piece[lo:hi], sl.exact)
+
+
+def find_periods(sl: Slices, blocks) -> Slices:
+    """``sl`` with the exactly repeating blocks among ``blocks`` recorded in ``periods``.
+
+    ``blocks`` are ``(z_start_nm, period_nm, count)``.  A block is kept when its
+    slices start at ``z_start_nm``, split into ``count`` runs of equal length and
+    every run has the same thicknesses, potentials, masses and gaps as the first
+    (to 1e-12 relative, i.e. the same layers; a field or charge breaks this).
+    """
+    found = []
+    for z0, d, count in blocks:
+        if count < 2:
+            continue
+        lo = int(np.searchsorted(sl.z0_nm, z0 - 1e-9))
+        if lo >= sl.n or abs(sl.z0_nm[lo] - z0) > 1e-9:
+            continue
+        hi = int(np.searchsorted(sl.z0_nm, z0 + count * d - 1e-9))
+        if (hi - lo) % count or hi == lo:
+            continue
+        p = (hi - lo) // count
+        ok = True
+        for arr in (sl.h_nm, sl.v_eV, sl.m_m0, sl.g_eV):
+            blk = arr[lo:hi].reshape(count, p)
+            first = blk[:1]
+            fin = np.isfinite(first)
+            if not (np.all(np.isfinite(blk) == fin) and np.allclose(
+                    np.where(fin, blk, 0.0), np.where(fin, first, 0.0), rtol=1e-12, atol=1e-12)):
+                ok = False
+                break
+        if ok and not any(lo < b0 + bp * bn and b0 < hi for b0, bp, bn in found):
+            found.append((lo, p, count))
+    return Slices(sl.z0_nm, sl.h_nm, sl.v_eV, sl.m_m0, sl.g_eV, sl.piece, sl.exact,
+                  tuple(sorted(found)))
+
+
+def runs(sl: Slices, lo: int = 0, hi: int | None = None):
+    """Cover slices ``lo:hi`` by ``(a, b, reps)``: slices ``a:b`` taken ``reps`` times in a row.
+
+    Whole periods of a block in ``sl.periods`` come as one entry with
+    ``reps`` > 1; everything else (partial periods included) as ``reps = 1``.
+    """
+    hi = sl.n if hi is None else hi
+    out = []
+    pos = lo
+    for s, p, r in sl.periods:
+        e = s + p * r
+        a, b = max(pos, s), min(hi, e)
+        if a >= b:
+            continue
+        k0 = -(-(a - s) // p)
+        k1 = (b - s) // p
+        if k1 - k0 < 2:
+            continue  # fewer than two whole periods: plain slices
+        if pos < s + k0 * p:
+            out.append((pos, s + k0 * p, 1))
+        out.append((s + k0 * p, s + k0 * p + p, k1 - k0))
+        pos = s + k1 * p
+    if pos < hi:
+        out.append((pos, hi, 1))
+    return out
+
+
+def _renorm4(a, b, c, d):
+    s = np.maximum(np.maximum(np.abs(a), np.abs(b)), np.maximum(np.abs(c), np.abs(d)))
+    s = np.where(s > 0, s, 1.0)
+    return a / s, b / s, c / s, d / s
+
+
+def matrix_power(a, b, c, d, n: int):
+    """``[[a, b], [c, d]] ** n`` by repeated squaring, each step rescaled (direction only).
+
+    Components are arrays over energies; only the matrix up to a positive factor
+    is returned (enough to carry a state vector whose length is renormalised).
+    """
+    ra, rb, rc, rd = (np.ones_like(a), np.zeros_like(a), np.zeros_like(a), np.ones_like(a))
+    while n:
+        if n & 1:
+            ra, rb, rc, rd = _renorm4(a * ra + b * rc, a * rb + b * rd, c * ra + d * rc,
+                                      c * rb + d * rd)
+        n >>= 1
+        if n:
+            a, b, c, d = _renorm4(a * a + b * c, a * b + b * d, c * a + d * c, c * b + d * d)
+    return ra, rb, rc, rd
+
+
+def _block_size(n_e: int) -> int:
+    """Slices per block so that a block's coefficient arrays hold ~2e6 numbers."""
+    return max(16, 2_000_000 // max(n_e, 1))
 
 
 def _reduce(a, b, c, d, *, renorm: bool, track_log: bool):
@@ -247,6 +339,90 @@ def product(sl: Slices, energies, *, track_log: bool = False, backward: bool = F
     M = np.empty((nE, 2, 2), dtype=a.dtype)
     M[:, 0, 0], M[:, 0, 1], M[:, 1, 0], M[:, 1, 1] = a, b, c, d
     return M, logs + lg
+
+
+def carry_runs(sl: Slices, energies, p0, u0, lo: int, hi: int, *, backward: bool = False):
+    """:func:`carry` using the periods of ``sl``: one period's matrix to the power of the repeats.
+
+    Runs of plain slices are reduced pairwise in blocks of bounded memory; a run
+    of whole periods costs one period's product and ``log2(reps)`` squarings.
+    Returns the renormalised ``(psi, u)``.
+    """
+    E = np.asarray(energies, dtype=float)
+    p = np.asarray(p0, dtype=float) + 0.0 * E
+    u = np.asarray(u0, dtype=float) + 0.0 * p
+    pieces = runs(sl, lo, hi)
+    if backward:
+        pieces = pieces[::-1]
+    bs = _block_size(E.size)
+    for a0, b0, reps in pieces:
+        blocks = [(x, min(x + bs, b0)) for x in range(a0, b0, bs)]
+        if reps > 1 and len(blocks) > 1:
+            blocks = [(a0, b0)]  # a period longer than a block: one product anyway
+        mats = []
+        for x, y in blocks:
+            ca, cb, cc, cd, _ = coefficients(subset(sl, x, y), E)
+            mats.append(_reduce(ca, cb, cc, cd, renorm=True, track_log=False)[:4])
+        if backward:
+            mats = mats[::-1]
+        for ma, mb, mc, md in mats:
+            if reps > 1:
+                ma, mb, mc, md = matrix_power(ma, mb, mc, md, reps)
+            if backward:  # inverse up to a positive factor: the adjugate
+                ma, mb, mc, md = md, -mb, -mc, ma
+            p, u = ma * p + mb * u, mc * p + md * u
+            s = np.maximum(np.abs(p), np.abs(u))
+            s = np.where(s > 0, s, 1.0)
+            p, u = p / s, u / s
+    return p, u
+
+
+def count_zeros(sl: Slices, energies, p0, u0):
+    """Zeros of psi in all slices (x in (0, h]) and the final state, memory O(n_E).
+
+    The solution started at ``(p0, u0)`` is carried slice by slice.  Oscillatory
+    slice with ``k h = m pi + r`` (``0 <= r < pi``): the scaled angle turns by
+    exactly ``k h``, so the zeros number ``m`` plus one more when
+    ``(-1)^m psi_0 psi_1 < 0`` (or psi_1 = 0 != psi_0); evanescent slice
+    (``m = 0``): one zero exactly when psi changes sign.  No angle is evaluated
+    per step, so the count of a periodic block reuses one period's
+    coefficients for every period (the count composes period by period).
+
+    Returns
+    -------
+    n : int array (n_E,)
+    p, u : arrays (n_E,), the final state vector (renormalised).
+    """
+    E = np.asarray(energies, dtype=float)
+    p = np.asarray(p0, dtype=float) + 0.0 * E
+    u = np.asarray(u0, dtype=float) + 0.0 * p
+    n = np.zeros(E.size, dtype=np.int64)
+    bs = _block_size(E.size)
+    for a0, b0, reps in runs(sl):
+        blocks = [(a0, b0)] if reps > 1 else [(x, min(x + bs, b0)) for x in range(a0, b0, bs)]
+        for x, y in blocks:
+            sub = subset(sl, x, y)
+            ca, cb, cc, cd, _ = coefficients(sub, E)
+            m = eff_mass(sub.m_m0[:, None], sub.v_eV[:, None], sub.g_eV[:, None], E[None, :])
+            q = m * (E[None, :] - sub.v_eV[:, None]) / HBAR2_2M0_EV_NM2
+            turns = np.where(q > 0, np.floor(np.sqrt(np.maximum(q, 0.0)) * sub.h_nm[:, None]
+                                             / np.pi), 0.0)
+            sgn = 1.0 - 2.0 * np.mod(turns, 2.0)
+            n += reps * turns.sum(axis=0).astype(np.int64)
+            for _ in range(reps):
+                for j in range(y - x):
+                    p1 = ca[j] * p + cb[j] * u
+                    u = cc[j] * p + cd[j] * u
+                    n += (sgn[j] * p * p1 < 0) | ((p1 == 0) & (p != 0))
+                    p = p1
+                    if j % 4 == 3:
+                        s = np.maximum(np.abs(p), np.abs(u))
+                        s = np.where(s > 0, s, 1.0)
+                        p, u = p / s, u / s
+                s = np.maximum(np.abs(p), np.abs(u))
+                s = np.where(s > 0, s, 1.0)
+                p, u = p / s, u / s
+    return n, p, u
 
 
 def carry(sl: Slices, energies, p0, u0, lo: int, hi: int, *, backward: bool = False,
@@ -336,3 +512,63 @@ def count_nodes(sl: Slices, energies, P, U) -> np.ndarray:
     n_osc = np.floor((phi0 + k * sl.h_nm[:, None]) / np.pi)
     n_ev = ((p0 * p1 < 0) | ((p1 == 0) & (p0 != 0))).astype(float)
     return np.where(osc, n_osc, n_ev).sum(axis=0).astype(np.int64)
+
+
+def sample_in_slices(sl: Slices, energy, psi_b, u_b, j, x, join=None):
+    """Envelope at distance ``x`` into slice ``j`` from the state at the slice boundaries.
+
+    Pure function over arrays (one energy, any number of points).
+
+    Parameters
+    ----------
+    sl : Slices
+    energy : float
+        Carrier energy [eV].
+    psi_b, u_b : arrays (ns+1,)
+        ``psi`` and ``u = psi'/m`` of the solution at every slice boundary.
+    j : array of int
+        Slice of each point.
+    x : array
+        Distance from the start of slice ``j`` [nm], ``0 <= x <= h_j``.
+    join : tuple ``(j_m, psi, u)``, optional
+        Boundary ``j_m`` where two solutions were joined and the values of the
+        later one there: slice ``j_m`` starts from these instead of
+        ``psi_b[j_m]``, ``u_b[j_m]`` (every slice is then one solution).
+
+    Notes
+    -----
+    Oscillatory slice: carried from its left boundary,
+    ``psi = cos(k x) psi_j + (m/k) sin(k x) u_j`` (bounded).  Evanescent slice:
+    interpolated between the two boundary values,
+    ``psi = [psi_j sinh(kappa (h - x)) + psi_{j+1} sinh(kappa x)] / sinh(kappa h)``
+    in scaled form (no growth in either direction, so a thick barrier between
+    two lobes is evaluated as accurately as its end values); ``kappa = 0``
+    gives the straight line.
+    """
+    j = np.asarray(j)
+    x = np.asarray(x, dtype=float)
+    v, m0, g, h = sl.v_eV[j], sl.m_m0[j], sl.g_eV[j], sl.h_nm[j]
+    m = eff_mass(m0, v, g, energy)
+    q = m * (energy - v) / HBAR2_2M0_EV_NM2
+    k = np.sqrt(np.abs(q))
+    p0, u0 = psi_b[j], u_b[j]
+    if join is not None:
+        at = j == join[0]
+        p0, u0 = np.where(at, join[1], p0), np.where(at, join[2], u0)
+    out = np.empty(x.shape)
+    osc = q > 0
+    if osc.any():
+        ko, xo = k[osc], x[osc]
+        out[osc] = np.cos(ko * xo) * p0[osc] + m[osc] * np.sin(ko * xo) / ko * u0[osc]
+    ev = ~osc
+    if ev.any():
+        ke, xe, he, je = k[ev], x[ev], h[ev], j[ev]
+        pos = ke * he > 0
+        kp = np.where(pos, ke, 1.0)
+        den = np.where(pos, -np.expm1(-2.0 * kp * he), 1.0)
+        w0 = np.where(pos, np.exp(-kp * xe) * -np.expm1(-2.0 * kp * (he - xe)) / den,
+                      (he - xe) / np.where(he > 0, he, 1.0))
+        w1 = np.where(pos, np.exp(-kp * (he - xe)) * -np.expm1(-2.0 * kp * xe) / den,
+                      xe / np.where(he > 0, he, 1.0))
+        out[ev] = w0 * p0[ev] + w1 * psi_b[je + 1]
+    return out

@@ -28,6 +28,16 @@ Method
 * Stability: evanescent slices use scaled hyperbolic functions; states are
   renormalised slice by slice, so barriers of hundreds of nm neither overflow
   nor lose the count.
+* Long stacks: energies come first and need no stored solution.  The count is
+  one streaming pass per batch of energies (memory linear in the number of
+  energies, not slices x energies); an exactly repeating block (same slices in
+  every period) reuses one period's slice coefficients for every period, and
+  the mismatch crosses it with one period's transfer matrix raised to the
+  number of periods by repeated squaring (rescaled at every step).  Each state
+  is then stored as its solution at the slice boundaries (``State.envelope``,
+  two numbers per slice); ``psi``, ``z_nm`` and ``layer_probability`` are
+  sampled on first use, on one grid shared by all states of the solve, with the
+  step ``grid_step_nm`` widened so that it holds at most 20,000 points.
 * Quasi-bound states (above the lower cladding): poles of the outgoing-wave
   mismatch in the complex energy plane, started from the real eigenvalues of
   the stack closed at its ends; ``E = E_r - i Gamma/2``, lifetime ``hbar/Gamma``.
@@ -38,7 +48,7 @@ Method
   exactly one Dirichlet eigenvalue of the period, which brackets every band
   edge uniquely.
 
-Units: eV, nm, m0 inside; ``hbar^2/(2 m0)`` and ``hbar`` from :mod:`qwell.constants`.
+Units: eV, nm, m0 inside; ``hbar^2/(2 m0)`` and ``hbar`` from scipy.constants.
 
 References
 ----------
@@ -53,6 +63,9 @@ References
 
 from __future__ import annotations
 
+import sys
+import time
+
 import numpy as np
 
 from ..bands import Band, RepeatInfo
@@ -66,6 +79,13 @@ _MAX_LEVEL = 9          # finest slice step 0.5 nm / 512 ~ 1 pm
 _DEFAULT_COUNT_LEVEL = 2
 _TAIL_DECAY = 5.0       # cladding tail on the grid: 5 decay lengths of psi
 _TAIL_MIN_NM, _TAIL_MAX_NM = 2.0, 60.0
+#: wavefunction grids hold at most this many points over the listed layers (the
+#: step grows beyond ``grid_step_nm`` on stacks longer than this times the step)
+_MAX_GRID_POINTS = 20000
+#: mismatch: above this many (slice, energy) pairs, carry in bounded blocks
+_BLOCK = 2_000_000
+#: boundary states of at most this many (boundary, energy) pairs at once
+_STATE_BLOCK = 500_000
 
 
 # ---------------------------------------------------------------- helpers
@@ -76,21 +96,29 @@ def _cladding(band: Band, side: str):
     return v, m, g
 
 
+def _slices(band: Band, level: int, **window) -> tr.Slices:
+    """Slices of ``band`` at ``level`` with its exactly repeating blocks recorded."""
+    sl = tr.build_slices(band, level, **window)
+    if not band.repeats or window:
+        return sl
+    return tr.find_periods(sl, [(r.z_start_nm, r.period_nm, r.count) for r in band.repeats])
+
+
 def _count(sl: tr.Slices, E: np.ndarray, clad_l, clad_r) -> np.ndarray:
-    """N(E) of the sliced problem with decaying claddings ``clad_l/clad_r`` (V, m, g)."""
+    """N(E) of the sliced problem with decaying claddings ``clad_l/clad_r`` (V, m, g).
+
+    The zeros of the left-decaying solution are counted in one streaming pass
+    (:func:`~qwell.solvers._transfer.count_zeros`, memory O(len(E)), periods
+    reusing one period's coefficients); one more eigenvalue lies below E when
+    the final angle passes that of the right-decaying cladding solution.
+    """
     E = np.atleast_1d(np.asarray(E, dtype=float))
-    out = np.empty(E.size, dtype=np.int64)
-    chunk = max(1, 400000 // max(sl.n, 1))
-    for i in range(0, E.size, chunk):
-        e = E[i:i + chunk]
-        kl, ml = tr.cladding_kappa(*clad_l, e)
-        kr, mr = tr.cladding_kappa(*clad_r, e)
-        P, U, _, _ = tr.propagate_states(sl, e, 1.0, kl / ml)
-        n = tr.count_nodes(sl, e, P, U)
-        phi = np.mod(np.arctan2(P[-1], U[-1]), np.pi)
-        beta = np.arctan2(1.0, -kr / mr)
-        out[i:i + chunk] = n + (phi > beta)
-    return out
+    kl, ml = tr.cladding_kappa(*clad_l, E)
+    kr, mr = tr.cladding_kappa(*clad_r, E)
+    n, p, u = tr.count_zeros(sl, E, 1.0, kl / ml)
+    phi = np.mod(np.arctan2(p, u), np.pi)
+    beta = np.arctan2(1.0, -kr / mr)
+    return n + (phi > beta)
 
 
 def _split_index(sl: tr.Slices) -> int:
@@ -104,13 +132,19 @@ def _mismatch(sl: tr.Slices, E: np.ndarray, clad_l, clad_r) -> np.ndarray:
 
     Both solutions are carried from their cladding to the start of the deepest
     slice, so neither is propagated against its decay (smooth in E, no step).
+    Across the exactly repeating blocks of ``sl`` one period's transfer matrix
+    is raised to the number of periods by repeated squaring.
     """
     kl, ml = tr.cladding_kappa(*clad_l, E)
     kr, mr = tr.cladding_kappa(*clad_r, E)
     jm = _split_index(sl)
-    coef = tr.coefficients(sl, E)
-    pl, ul = tr.carry(sl, E, 1.0, kl / ml, 0, jm, coef=coef)
-    pr, ur = tr.carry(sl, E, 1.0, -kr / mr, jm, sl.n, backward=True, coef=coef)
+    if sl.periods or sl.n * E.size > _BLOCK:
+        pl, ul = tr.carry_runs(sl, E, 1.0, kl / ml, 0, jm)
+        pr, ur = tr.carry_runs(sl, E, 1.0, -kr / mr, jm, sl.n, backward=True)
+    else:
+        coef = tr.coefficients(sl, E)
+        pl, ul = tr.carry(sl, E, 1.0, kl / ml, 0, jm, coef=coef)
+        pr, ur = tr.carry(sl, E, 1.0, -kr / mr, jm, sl.n, backward=True, coef=coef)
     # weight making u comparable with psi in the matching slice
     j = min(jm, sl.n - 1)
     mj = tr.eff_mass(sl.m_m0[j], sl.v_eV[j], sl.g_eV[j], E)
@@ -255,68 +289,77 @@ def count_states_below(band: Band, energies_eV: np.ndarray) -> np.ndarray:
     E = np.asarray(energies_eV, dtype=float)
     lim = band.confinement_limit_eV
     level = 0 if all(p.kind == "flat" for p in band.pieces) else _DEFAULT_COUNT_LEVEL
-    sl = tr.build_slices(band, level)
+    sl = _slices(band, level)
     out = _count(sl, np.minimum(E.ravel(), lim), _cladding(band, "left"), _cladding(band, "right"))
     return out.reshape(E.shape)
 
 
 # ---------------------------------------------------------------- wavefunctions
-def _waves_on(sl: tr.Slices, E: np.ndarray, z: np.ndarray, clad_l, clad_r):
-    """Bounded two-sided evaluation of the sliced solutions at energies E (nS,) on z (nz,).
 
-    The left-decaying solution is used left of a matching interface and the
-    right-decaying one right of it; they are joined by least squares on the
-    state vector (psi, u) at that interface (chosen next to the deepest slice).
-    All energies are evaluated together.
+def _boundary_states(sl: tr.Slices, E: np.ndarray, clad_l, clad_r, at_peak=True):
+    """The joined solution at every slice boundary, for energies E (nS,).
+
+    The left-decaying solution (carried forward from the left cladding) is used
+    up to a matching boundary and the right-decaying one (carried backward)
+    beyond it; they are joined by least squares on the weighted state vector
+    ``(psi, w u)`` there.  With ``at_peak`` (eigenvalues) the matching boundary
+    is where the product of the two amplitudes is largest, i.e. at the state's
+    maximum, where both are accurate (each solution is carried in the direction
+    in which it grows up to there); otherwise (real parts of resonances, where
+    the two solutions do not match and the join defines the function) it is
+    the start of the deepest slice.
 
     Returns
     -------
-    psi : array (nS, nz)
-        Unnormalised values on the z points inside the sliced range
-        (``z`` is expected inside it; points outside are treated by the tails).
-    tails : tuple of arrays
-        ``(c_l, k_l, c_r, k_r)``: the left tail is ``c_l * exp(k_l (z - z_a))`` for
-        ``z < z_a`` and the right tail ``c_r * exp(-k_r (z - z_b))`` for ``z > z_b``
-        (z_a, z_b the ends of the slices), same normalisation as ``psi``.
+    psi, u : arrays (ns+1, nS)
+        Unnormalised boundary values (max |psi| of order 1 at the matching point);
+        at the matching boundary those of the left solution.
+    tails : tuple ``(c_l, k_l, c_r, k_r)``
+        Left tail ``c_l exp(k_l (z - z_a))``, right tail ``c_r exp(-k_r (z - z_b))``.
+    join : tuple ``(j_m, psi_r, u_r)``
+        Matching boundary and the right solution's values there: slices from
+        ``j_m`` on are evaluated from the right solution only (at a resonance's
+        real part the two differ, and each slice keeps one of them).
     """
-    e = np.asarray(E, dtype=float)
+    e = np.atleast_1d(np.asarray(E, dtype=float))
     kl, ml = tr.cladding_kappa(*clad_l, e)
     kr, mr = tr.cladding_kappa(*clad_r, e)
-    PL, UL, LL, _ = tr.propagate_states(sl, e, 1.0, kl / ml)
-    PR, UR, LR, _ = tr.propagate_states(sl, e, 1.0, -kr / mr, backward=True)
     ns = sl.n
-    jdeep = int(np.argmin(sl.v_eV))
-    jm = jdeep if jdeep > 0 else min(1, ns)
-    jw = min(jm, ns - 1)
-    # weight making u comparable with psi
-    m_here = tr.eff_mass(sl.m_m0[jw], sl.v_eV[jw], sl.g_eV[jw], e)
-    w = np.sqrt(HBAR2_2M0_EV_NM2 * m_here / np.maximum(np.abs(e - sl.v_eV[jw]), 1e-4))
-    vl0, vl1 = PL[jm], w * UL[jm]
-    vr0, vr1 = PR[jm], w * UR[jm]
-    lam = (vr0 * vl0 + vr1 * vl1) / (vl0 * vl0 + vl1 * vl1)  # vr ~ lam * vl
+    psi = np.empty((ns + 1, e.size))
+    u = np.empty((ns + 1, e.size))
+    join = (np.empty(e.size, dtype=np.int64), np.empty(e.size), np.empty(e.size))
+    step = max(1, _STATE_BLOCK // (ns + 1))
+    for lo in range(0, e.size, step):
+        sel = slice(lo, lo + step)
+        ee = e[sel]
+        PL, UL, LL, _ = tr.propagate_states(sl, ee, 1.0, kl[sel] / ml[sel])
+        PR, UR, LR, _ = tr.propagate_states(sl, ee, 1.0, -kr[sel] / mr[sel], backward=True)
+        with np.errstate(divide="ignore"):
+            amp = (LL + np.log(np.hypot(PL, UL)) + LR + np.log(np.hypot(PR, UR)))
+        jm = (np.argmax(amp, axis=0) if at_peak else
+              np.full(ee.size, int(np.argmin(sl.v_eV)) or min(1, ns)))
+        cols = np.arange(ee.size)
+        jw = np.minimum(jm, ns - 1)
+        m_here = tr.eff_mass(sl.m_m0[jw], sl.v_eV[jw], sl.g_eV[jw], ee)
+        w = np.sqrt(HBAR2_2M0_EV_NM2 * m_here / np.maximum(np.abs(ee - sl.v_eV[jw]), 1e-4))
+        vl0, vl1 = PL[jm, cols], w * UL[jm, cols]
+        vr0, vr1 = PR[jm, cols], w * UR[jm, cols]
+        lam = (vr0 * vl0 + vr1 * vl1) / (vl0 * vl0 + vl1 * vl1)  # vr ~ lam * vl
+        left = np.arange(ns + 1)[:, None] <= jm[None, :]
+        fl = np.exp(np.minimum(LL - LL[jm, cols], 700))
+        fr = np.exp(np.minimum(LR - LR[jm, cols], 700)) / lam
+        psi[:, sel] = np.where(left, PL * fl, PR * fr)
+        u[:, sel] = np.where(left, UL * fl, UR * fr)
+        join[0][sel], join[1][sel], join[2][sel] = jm, (PR * fr)[jm, cols], (UR * fr)[jm, cols]
+    return psi, u, (psi[0].copy(), kl, psi[-1].copy(), kr), join
+
+
+def _sample(sl: tr.Slices, E: float, psi_b, u_b, z: np.ndarray, join) -> np.ndarray:
+    """One state's envelope on points ``z`` inside the sliced range."""
     bounds = np.concatenate([sl.z0_nm, [sl.z_end_nm]])
-    zb = bounds[jm]
-    z = np.asarray(z, dtype=float)
-    j = np.clip(np.searchsorted(bounds, z, side="right") - 1, 0, ns - 1)
-    left = z < zb
-    res = np.empty((e.size, z.size))
-    Ec = e[:, None]
-    if left.any():
-        jl = j[left]
-        x = z[left] - bounds[jl]
-        a, b, c, d, ls = tr.coefficients(sl, Ec, lengths=x, sl_index=jl)
-        res[:, left] = (a * PL[jl].T + b * UL[jl].T) * np.exp(
-            np.minimum(ls + LL[jl].T - LL[jm][:, None], 700))
-    right = ~left
-    if right.any():
-        jr = j[right]
-        x = bounds[jr + 1] - z[right]
-        a, b, c, d, ls = tr.coefficients(sl, Ec, lengths=x, sl_index=jr)
-        res[:, right] = (a * PR[jr + 1].T - b * UR[jr + 1].T) / lam[:, None] * np.exp(
-            np.minimum(ls + LR[jr + 1].T - LR[jm][:, None], 700))
-    c_l = PL[0] * np.exp(np.minimum(LL[0] - LL[jm], 700))
-    c_r = PR[-1] / lam * np.exp(np.minimum(LR[-1] - LR[jm], 700))
-    return res, (c_l, kl, c_r, kr)
+    j = np.clip(np.searchsorted(bounds, z, side="right") - 1, 0, sl.n - 1)
+    x = np.clip(z - bounds[j], 0.0, sl.h_nm[j])
+    return tr.sample_in_slices(sl, float(E), psi_b, u_b, j, x, join)
 
 
 def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarray:
@@ -324,9 +367,10 @@ def _wave_on(sl: tr.Slices, E: float, z: np.ndarray, clad_l, clad_r) -> np.ndarr
     z = np.asarray(z, dtype=float)
     za, zb = float(sl.z0_nm[0]), sl.z_end_nm
     inside = (z >= za) & (z <= zb)
-    res, (c_l, kl, c_r, kr) = _waves_on(sl, np.array([float(E)]), z[inside], clad_l, clad_r)
+    psi_b, u_b, (c_l, kl, c_r, kr), join = _boundary_states(sl, np.array([float(E)]), clad_l,
+                                                            clad_r, at_peak=False)
     out = np.zeros_like(z)
-    out[inside] = res[0]
+    out[inside] = _sample(sl, E, psi_b[:, 0], u_b[:, 0], z[inside], tuple(x[0] for x in join))
     m = z < za
     out[m] = c_l[0] * np.exp(np.minimum(kl[0] * (z[m] - za), 700))
     m = z > zb
@@ -362,84 +406,111 @@ def _interior_grid(band: Band, step_nm: float) -> np.ndarray:
     return np.concatenate(segs)
 
 
-def _grid(band: Band, E: float, step_nm: float, clad_l, clad_r):
-    kl, _ = tr.cladding_kappa(*clad_l, np.array([E]))
-    kr, _ = tr.cladding_kappa(*clad_r, np.array([E]))
-    tails = [_tail_length(kl[0]), _tail_length(kr[0])]
-    segs = [np.linspace(band.z_start_nm - tails[0], band.z_start_nm,
-                        max(2, int(np.ceil(tails[0] / step_nm)) + 1))[:-1]]
-    segs.append(_interior_grid(band, step_nm)[:-1])
-    segs.append(np.linspace(band.z_end_nm, band.z_end_nm + tails[1],
-                            max(2, int(np.ceil(tails[1] / step_nm)) + 1)))
-    return np.concatenate(segs), kl[0], kr[0]
+def output_step_nm(band: Band, grid_step_nm: float) -> float:
+    """Wavefunction grid step for ``band``: ``grid_step_nm``, coarser on long stacks.
 
-
-def _trapz(y, x):
-    return float(np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(x))) if x.size > 1 else 0.0
-
-
-def _normalised_states(band: Band, sl: tr.Slices, energies, step_nm: float, clad_l, clad_r,
-                       closed_tails: bool = True):
-    """Normalised wavefunctions of several states at once: list of (z, psi, probabilities).
-
-    Each state gets the grid of :func:`_grid` (interior shared by all states,
-    cladding tails of ``_TAIL_DECAY`` decay lengths of the density); the
-    density is normalised with the trapezoid rule plus the analytic tails
-    ``psi_end^2 / (2 kappa)`` beyond the grid (bound states).
+    At most :data:`_MAX_GRID_POINTS` points over the listed layers, so that the
+    sampled states of a long stack cost memory linear in its length.
     """
-    E = np.atleast_1d(np.asarray(energies, dtype=float))
-    if E.size == 0:
-        return []
-    zi = _interior_grid(band, step_nm)
-    za, zb = band.z_start_nm, band.z_end_nm
-    psi_i, (c_l, kl, c_r, kr) = _waves_on(sl, E, zi, clad_l, clad_r)
-    dzi = np.diff(zi)
-    dens_i = psi_i ** 2
-    seg = 0.5 * (dens_i[:, 1:] + dens_i[:, :-1]) * dzi
-    cum = np.concatenate([np.zeros((E.size, 1)), np.cumsum(seg, axis=1)], axis=1)
-    # interface positions on the interior grid (exact floats, see _interior_grid)
-    edge_idx = np.searchsorted(zi, band.boundaries_nm)
-    n_layers = (len(band.layer_names) if band.layer_names else
-                1 + max(p.layer_index for p in band.pieces))
-    out = []
-    for i in range(E.size):
-        tl, tr_ = _tail_length(kl[i]), _tail_length(kr[i])
-        zl = np.linspace(za - tl, za, max(2, int(np.ceil(tl / step_nm)) + 1))[:-1]
-        zr = np.linspace(zb, zb + tr_, max(2, int(np.ceil(tr_ / step_nm)) + 1))[1:]
-        pl = c_l[i] * np.exp(np.minimum(kl[i] * (zl - za), 700))
-        pr = c_r[i] * np.exp(np.minimum(-kr[i] * (zr - zb), 700))
-        z = np.concatenate([zl, zi, zr])
-        psi = np.concatenate([pl, psi_i[i], pr])
-        dl = np.concatenate([pl, psi_i[i, :1]]) ** 2
-        dr = np.concatenate([psi_i[i, -1:], pr]) ** 2
-        zl1 = np.concatenate([zl, zi[:1]])
-        zr1 = np.concatenate([zi[-1:], zr])
-        int_l = float(np.sum(0.5 * (dl[1:] + dl[:-1]) * np.diff(zl1)))
-        int_r = float(np.sum(0.5 * (dr[1:] + dr[:-1]) * np.diff(zr1)))
-        tail_l = psi[0] ** 2 / (2 * kl[i]) if (closed_tails and kl[i] > 0) else 0.0
-        tail_r = psi[-1] ** 2 / (2 * kr[i]) if (closed_tails and kr[i] > 0) else 0.0
-        norm = int_l + float(cum[i, -1]) + int_r + tail_l + tail_r
+    return max(float(grid_step_nm), (band.z_end_nm - band.z_start_nm) / _MAX_GRID_POINTS)
+
+
+class _GridSpec:
+    """What sampling a state needs from its band (plain arrays, no callables).
+
+    Shared by all states of one solve, so that they all come on one grid (one
+    array in memory, no union of grids downstream): the interior grid (every
+    interface), cladding tails long enough for the slowest-decaying state
+    (``tail_l_nm``, ``tail_r_nm``), the interface positions and the layer of
+    each piece.
+    """
+
+    def __init__(self, band: Band, step_nm: float, tail_l_nm: float, tail_r_nm: float):
+        self.step_nm = step_nm
+        self.zi = _interior_grid(band, step_nm)
+        self.za, self.zb = za, zb = band.z_start_nm, band.z_end_nm
+        self.zl = np.linspace(za - tail_l_nm, za,
+                              max(2, int(np.ceil(tail_l_nm / step_nm)) + 1))[:-1]
+        self.zr = np.linspace(zb, zb + tail_r_nm, max(2, int(np.ceil(tail_r_nm / step_nm)) + 1))[1:]
+        self.z = np.concatenate([self.zl, self.zi, self.zr])
+        self.edge_idx = np.searchsorted(self.zi, band.boundaries_nm)
+        self.layer_of_piece = np.array([p.layer_index for p in band.pieces])
+        self.n_layers = (len(band.layer_names) if band.layer_names else
+                         1 + int(self.layer_of_piece.max()))
+
+
+class _Envelope:
+    """Compact storage of one state: its solution at every slice boundary.
+
+    ``sample()`` gives the normalised ``(z_nm, psi, layer_probability)`` on the
+    output grid (the interior grid of :class:`_GridSpec` plus cladding tails of
+    ``_TAIL_DECAY`` decay lengths of the density), normalised with the trapezoid
+    rule plus the analytic tails ``psi_end^2 / (2 kappa)`` beyond the grid
+    (bound states; ``closed_tails=False`` for resonances, normalised over their
+    own tail lengths).
+    """
+
+    def __init__(self, sl: tr.Slices, energy_eV: float, psi_b, u_b, join, kl: float, kr: float,
+                 spec: _GridSpec, closed_tails: bool = True):
+        self.sl, self.energy_eV = sl, float(energy_eV)
+        self.psi_b, self.u_b, self.join = psi_b, u_b, join
+        self.kl, self.kr = float(kl), float(kr)
+        self.spec, self.closed_tails = spec, closed_tails
+
+    def sample(self):
+        sp, kl, kr = self.spec, self.kl, self.kr
+        zi, zl, zr, za, zb = sp.zi, sp.zl, sp.zr, sp.za, sp.zb
+        psi_i = _sample(self.sl, self.energy_eV, self.psi_b, self.u_b, zi, self.join)
+        c_l, c_r = self.psi_b[0], self.psi_b[-1]
+        seg = 0.5 * (psi_i[1:] ** 2 + psi_i[:-1] ** 2) * np.diff(zi)
+        cum = np.concatenate([[0.0], np.cumsum(seg)])
+        pl = c_l * np.exp(np.minimum(kl * (zl - za), 700))
+        pr = c_r * np.exp(np.minimum(-kr * (zr - zb), 700))
+        if not self.closed_tails:
+            # a resonance is normalised over its own tails (5 decay lengths, or the
+            # longest tail on an open side) and is zero beyond them on the shared grid
+            pl = np.where(zl >= za - _tail_length(kl) - 1e-9, pl, 0.0)
+            pr = np.where(zr <= zb + _tail_length(kr) + 1e-9, pr, 0.0)
+        psi = np.concatenate([pl, psi_i, pr])
+        dl = np.concatenate([pl, psi_i[:1]]) ** 2
+        dr = np.concatenate([psi_i[-1:], pr]) ** 2
+        int_l = float(np.sum(0.5 * (dl[1:] + dl[:-1]) * np.diff(np.concatenate([zl, zi[:1]]))))
+        int_r = float(np.sum(0.5 * (dr[1:] + dr[:-1]) * np.diff(np.concatenate([zi[-1:], zr]))))
+        tail_l = psi[0] ** 2 / (2 * kl) if (self.closed_tails and kl > 0) else 0.0
+        tail_r = psi[-1] ** 2 / (2 * kr) if (self.closed_tails and kr > 0) else 0.0
+        norm = int_l + float(cum[-1]) + int_r + tail_l + tail_r
         psi = psi / np.sqrt(norm)
         if psi[np.argmax(np.abs(psi))] < 0:
             psi = -psi
-        probs = np.zeros(n_layers)
-        piece_int = np.diff(cum[i, edge_idx])
-        for k, p in enumerate(band.pieces):
-            val = float(piece_int[k])
-            if k == 0:
-                val += int_l + tail_l
-            if k == len(band.pieces) - 1:
-                val += int_r + tail_r
-            if p.layer_index < probs.size:
-                probs[p.layer_index] += val / norm
-        out.append((z, psi, tuple(float(x) for x in probs)))
-    return out
+        piece_p = np.diff(cum[sp.edge_idx])
+        piece_p[0] += int_l + tail_l
+        piece_p[-1] += int_r + tail_r
+        probs = np.zeros(sp.n_layers)
+        ok = sp.layer_of_piece < probs.size
+        np.add.at(probs, sp.layer_of_piece[ok], piece_p[ok] / norm)
+        return sp.z, psi, tuple(float(x) for x in probs)
 
 
-def _normalised_state(band: Band, sl: tr.Slices, E: float, step_nm: float, clad_l, clad_r,
-                      closed_tails: bool = True):
-    """One normalised state (see :func:`_normalised_states`)."""
-    return _normalised_states(band, sl, [E], step_nm, clad_l, clad_r, closed_tails)[0]
+def _envelopes(band: Band, sl: tr.Slices, bound_E, quasi_E, step_nm: float, clad_l,
+               clad_r) -> tuple[list, list]:
+    """Compact :class:`_Envelope` of each bound and quasi-bound energy, on one shared grid."""
+    E = np.concatenate([np.atleast_1d(np.asarray(bound_E, dtype=float)),
+                        np.atleast_1d(np.asarray(quasi_E, dtype=float))])
+    if E.size == 0:
+        return [], []
+    nb = np.atleast_1d(bound_E).size
+    psi_b, u_b, (_, kl, _, kr), join = _boundary_states(sl, E[:nb], clad_l, clad_r)
+    if nb < E.size:
+        q = _boundary_states(sl, E[nb:], clad_l, clad_r, at_peak=False)
+        psi_b, u_b = np.hstack([psi_b, q[0]]), np.hstack([u_b, q[1]])
+        kl, kr = np.concatenate([kl, q[2][1]]), np.concatenate([kr, q[2][3]])
+        join = tuple(np.concatenate([a, b]) for a, b in zip(join, q[3]))
+    spec = _GridSpec(band, step_nm, max(_tail_length(k) for k in kl),
+                     max(_tail_length(k) for k in kr))
+    env = [_Envelope(sl, E[i], psi_b[:, i].copy(), u_b[:, i].copy(),
+                     (int(join[0][i]), float(join[1][i]), float(join[2][i])), kl[i], kr[i], spec,
+                     closed_tails=i < nb) for i in range(E.size)]
+    return env[:nb], env[nb:]
 
 
 # ---------------------------------------------------------------- resonances
@@ -623,7 +694,6 @@ def minibands(band: Band, repeat: RepeatInfo, *, max_bands: int = 10) -> tuple[M
     Kronig and Penney, Proc. R. Soc. A 130, 499 (1931); Bastard, Phys. Rev. B
     24, 5693 (1981).
     """
-    # scipy.optimize is heavy and only needed for minibands: imported on first use
     from scipy.optimize import brentq
 
     z0, d = repeat.z_start_nm, repeat.period_nm
@@ -693,6 +763,55 @@ def _repeat_index(band: Band, repeat: RepeatInfo) -> int:
     return 0
 
 
+# ---------------------------------------------------------------- progress
+#: a terminal progress line is shown for solves expected to take longer than this [s]
+PROGRESS_AFTER_S = 2.0
+
+
+def _expected_seconds(band: Band, sl: tr.Slices, clad_l, clad_r, e_lo: float, lim: float,
+                      flat: bool, quasi_bound: bool) -> tuple[float, int]:
+    """Rough duration of a solve [s] and its bound-state count, from one timed count.
+
+    One count of two energies costs about one pass over the slices; a solve takes
+    ~40 such passes per refinement level (three levels, 7x the slices, when
+    pieces are sliced) plus, for resonances, ~2.5 passes per closed-box level
+    (0.5 on flat stacks).  Measured on the example stacks; good to a factor ~2.
+    """
+    t0 = time.perf_counter()
+    n = _count(sl, np.array([e_lo, lim]), clad_l, clad_r)
+    probe = time.perf_counter() - t0
+    est = probe * 40 * (1 if flat else 7)
+    if quasi_bound:
+        top = max(float(np.max(sl.v_eV)), clad_l[0], clad_r[0])
+        if top > lim + 1e-9:
+            wall = top + 1.0
+            nb = _count(sl, np.array([lim, top]), (wall, clad_l[1], np.inf),
+                        (wall, clad_r[1], np.inf))
+            est += probe * min(200, int(nb[1] - nb[0])) * (0.5 if flat else 2.5)
+    return est, int(n[1] - n[0])
+
+
+def _on_terminal() -> bool:
+    return bool(getattr(sys.stderr, "isatty", lambda: False)())
+
+
+class _Progress:
+    """One line on a terminal's stderr for a long solve: what, the expected time, then done."""
+
+    def __init__(self, band: Band, n_states: int, n_slices: int, expected_s: float):
+        self.on = expected_s > PROGRESS_AFTER_S and _on_terminal()
+        self.t0 = time.perf_counter()
+        if self.on:
+            sys.stderr.write(f"qwell: solving {band.name} band: {n_states} bound states over "
+                             f"{n_slices} slices, expected ~{expected_s:.0f} s ...")
+            sys.stderr.flush()
+
+    def done(self):
+        if self.on:
+            sys.stderr.write(f" done in {time.perf_counter() - self.t0:.1f} s\n")
+            sys.stderr.flush()
+
+
 # ---------------------------------------------------------------- main solver
 def _deepest(band: Band):
     best = None
@@ -731,9 +850,14 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
     max_states : int, optional
         Keep only the lowest ``max_states`` bound states.
     grid_step_nm : float
-        Wavefunction grid step [nm].
+        Wavefunction grid step [nm]; on stacks longer than ``20000 * grid_step_nm``
+        the step grows so that the grid keeps 20,000 points (see
+        :func:`output_step_nm`).
     wavefunctions : bool
-        Compute normalised wavefunctions and layer probabilities.
+        Provide normalised wavefunctions and layer probabilities.  Each state
+        stores its solution at the slice boundaries (``State.envelope``);
+        ``z_nm``, ``psi`` and ``layer_probability`` are sampled from it on first
+        access.
     quasi_bound : bool
         Also look for localised resonances above the confinement limit.
 
@@ -759,8 +883,12 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
 
     vmin_carrier, deep_name = _deepest(band)
     levels_E = []   # per level: energies
-    sl = tr.build_slices(band, 0)
+    sl = _slices(band, 0)
     e_lo = min(float(np.min(sl.v_eV)), vmin_carrier) - 1e-6
+    progress = None
+    if _on_terminal():
+        est_s, n_est = _expected_seconds(band, sl, clad_l, clad_r, e_lo, lim, flat, quasi_bound)
+        progress = _Progress(band, n_est, sl.n, est_s)
     E, half, iso, _ = _eigenvalues(band, sl, clad_l, clad_r, e_lo, lim, max_states, xtol)
     levels_E.append(E)
     tol = np.maximum(half, 0.0)
@@ -770,7 +898,7 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         rich_prev = None
         est = np.full(E.size, np.inf)
         for level in range(1, _MAX_LEVEL + 1):
-            sl = tr.build_slices(band, level)
+            sl = _slices(band, level)
             e_lo = min(e_lo, float(np.min(sl.v_eV)) - 1e-6)
             seeds = np.concatenate([levels_E[-1], 0.5 * (levels_E[-1][1:] + levels_E[-1][:-1])])
             En, half, iso, _ = _eigenvalues(band, sl, clad_l, clad_r, e_lo, lim, max_states, xtol,
@@ -801,16 +929,7 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         notes.append("an eigenvalue pair could not be separated (splitting below 1e-13 eV)")
 
     states = []
-    waves = (_normalised_states(band, final_sl, final_E[:E.size], grid_step_nm, clad_l, clad_r)
-             if wavefunctions else None)
-    for i in range(E.size):
-        z = psi = None
-        probs = ()
-        if wavefunctions:
-            z, psi, probs = waves[i]
-        states.append(dict(energy=float(E[i]), tol=float(tol[i]), conv=bool(converged[i]),
-                           bound=True, life=None, z=z, psi=psi, probs=probs, msg=""))
-
+    poles, ptol = np.zeros(0, complex), np.zeros(0)
     if quasi_bound:
         xq = max(min(tolerance_eV / 10, 1e-9), 1e-13)
         poles, steps, _ = _quasi_bound(band, final_sl, xq)
@@ -818,18 +937,21 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         if not flat and len(poles):
             poles, ptol = _refine_poles(band, poles, len(levels_E) - 1, clad_l, clad_r, xq,
                                         tolerance_eV)
-        qwaves = (_normalised_states(band, final_sl, np.real(poles), grid_step_nm, clad_l, clad_r,
-                                     closed_tails=False) if wavefunctions else None)
+    if wavefunctions:
+        waves, qwaves = _envelopes(band, final_sl, final_E[:E.size], np.real(poles),
+                                   output_step_nm(band, grid_step_nm), clad_l, clad_r)
+    else:
+        waves, qwaves = [None] * E.size, [None] * len(poles)
+    for i in range(E.size):
+        states.append(dict(energy=float(E[i]), tol=float(tol[i]), conv=bool(converged[i]),
+                           bound=True, life=None, env=waves[i], msg=""))
+    if quasi_bound:
         for iq, (p, t) in enumerate(zip(poles, ptol)):
             gamma = max(-2 * p.imag, 0.0)
             life = HBAR_EV_S / gamma if gamma > 0 else np.inf
-            z = psi = None
-            probs = ()
-            if wavefunctions:
-                z, psi, probs = qwaves[iq]
             t = float(max(t, xq))
             states.append(dict(energy=float(p.real), tol=t, conv=t <= tolerance_eV, bound=False,
-                               life=float(life), z=z, psi=psi, probs=probs,
+                               life=float(life), env=qwaves[iq],
                                msg=f"quasi-bound: width {gamma:.3g} eV (normalised over the grid)"))
 
     states.sort(key=lambda s: s["energy"])
@@ -838,9 +960,11 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
         out.append(State(band=band.name, label=f"{band.prefix}{n}", index=n,
                          energy_eV=float(band.profile_energy(s["energy"])),
                          carrier_energy_eV=s["energy"], bound=s["bound"], lifetime_s=s["life"],
-                         tolerance_eV=s["tol"], converged=s["conv"], z_nm=s["z"], psi=s["psi"],
-                         layer_probability=s["probs"], message=s["msg"]))
+                         tolerance_eV=s["tol"], converged=s["conv"], envelope=s["env"],
+                         message=s["msg"]))
 
+    if progress is not None:
+        progress.done()
     n_bound = sum(1 for s in out if s.bound)
     message = f"{n_bound} bound state{'s' if n_bound != 1 else ''}"
     if n_bound == 0:

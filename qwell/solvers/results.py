@@ -14,6 +14,37 @@ import numpy as np
 __all__ = ["State", "Miniband", "Levels"]
 
 
+class _FromEnvelope:
+    """A State attribute given at construction or computed on first use from its envelope.
+
+    The exact solver stores each state compactly (its state vector at every
+    slice boundary, see ``State.envelope``); the sampled ``z_nm``, ``psi`` and
+    ``layer_probability`` are built from it on first access and then kept.
+    A value passed to the constructor always wins.
+    """
+
+    def __init__(self, name: str, default):
+        self.name, self.default = name, default
+
+    def __get__(self, obj, owner=None):
+        if obj is None:
+            return self.default
+        d = obj.__dict__
+        val = d.get(self.name, self.default)
+        if val is self.default and d.get("envelope") is not None:
+            sampled = d["envelope"].sample()
+            for attr, v, dflt in zip(("z_nm", "psi", "layer_probability"), sampled,
+                                     (None, None, ())):
+                if d.get(attr, dflt) is dflt:
+                    d[attr] = v
+            val = d[self.name]
+        return val
+
+    def __set__(self, obj, value):
+        # frozen dataclass: written once by __init__ (object.__setattr__)
+        obj.__dict__[self.name] = self.default if value is self else value
+
+
 @dataclass(frozen=True)
 class State:
     """One subband state.
@@ -56,6 +87,10 @@ class State:
         Semiclassical validity figure (max |d lambda/dz|, << 1 is good).
     message : str
         Notes on this state (empty when nothing to say).
+    envelope : object or None
+        Compact storage the exact solver leaves instead of sampled arrays: an
+        object whose ``sample()`` returns ``(z_nm, psi, layer_probability)``;
+        those three attributes are computed from it on first access (and kept).
     """
 
     band: str
@@ -67,12 +102,15 @@ class State:
     lifetime_s: float | None = None
     tolerance_eV: float = 0.0
     converged: bool = True
-    z_nm: np.ndarray | None = field(default=None, repr=False, compare=False)
-    psi: np.ndarray | None = field(default=None, repr=False, compare=False)
-    layer_probability: tuple = ()
+    z_nm: np.ndarray | None = field(default=_FromEnvelope("z_nm", None), repr=False,
+                                    compare=False)
+    psi: np.ndarray | None = field(default=_FromEnvelope("psi", None), repr=False,
+                                   compare=False)
+    layer_probability: tuple = field(default=_FromEnvelope("layer_probability", ()))
     region: int | None = None
     validity: float | None = None
     message: str = ""
+    envelope: object = field(default=None, repr=False, compare=False)
 
 
 @dataclass(frozen=True)
