@@ -17,6 +17,7 @@ File format (every dimensional value carries its unit)::
     nonparabolicity: true          # default true
     self_consistent: false         # default false
     fermi_level: 0.05 eV           # optional
+    line: {transition: e1-e2, target: 8.5 um}   # optional design line (target optional)
     materials:                     # optional user materials (keys of USER_KEYS)
       wall: {conduction_edge: 0.30 eV, electron_mass: 0.067}
     layers:
@@ -61,7 +62,8 @@ import yaml
 
 from . import materials as _materials
 from .errors import MaterialError, StackError, UnitError
-from .units import expected_words, parse_quantity, thickness_nm as _thickness_nm, to_float, ureg
+from .units import (expected_words, parse_quantity, spectral_to_eV, thickness_nm as _thickness_nm,
+                    to_float, ureg)
 
 __all__ = [
     "Grade",
@@ -69,6 +71,7 @@ __all__ = [
     "Layer",
     "RepeatBlock",
     "Stack",
+    "DeclaredLine",
     "load_stack",
     "stack_from_text",
     "stack_from_mapping",
@@ -100,7 +103,9 @@ MAX_YAML_NODES = 1_000_000
 _DEFAULT_TEMPERATURE_K = 300.0
 
 _TOP_KEYS = ("name", "temperature", "substrate", "field", "nonparabolicity",
-             "self_consistent", "fermi_level", "materials", "layers")
+             "self_consistent", "fermi_level", "line", "materials", "layers")
+_LINE_KEYS = ("transition", "target")
+_LINE_NAME_RE = re.compile(r"^(e|hh|lh)([1-9]\d*)-(e|hh|lh)([1-9]\d*)$")
 _UNIFORM_KEYS = ("material", "thickness", "name", "doping")
 _GRADE_LAYER_KEYS = ("grade", "thickness", "name", "doping")
 _GRADE_KEYS = ("from", "to", "shape", "vertex")
@@ -257,6 +262,28 @@ class RepeatBlock:
 
 
 @dataclass(frozen=True)
+class DeclaredLine:
+    """The design line a stack names in its ``line:`` block.
+
+    Attributes
+    ----------
+    transition : str
+        Transition name, e.g. ``'e1-hh1'`` or ``'e3-e2'``.
+    target_eV : float or None
+        Target photon energy [eV], if the stack gives ``target``.
+    target_text : str or None
+        The target as written (``'980 nm'``).
+    line : int or None
+        Line of the ``line:`` key in the file.
+    """
+
+    transition: str
+    target_eV: float | None = None
+    target_text: str | None = None
+    line: int | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True)
 class Stack:
     """A validated, expanded layer stack (see the module docstring).
 
@@ -281,6 +308,8 @@ class Stack:
     raw : Mapping
         The parsed YAML (plain Python) for writing modified stacks; change a
         copy and load it with :func:`stack_from_mapping`.
+    declared_line : DeclaredLine or None
+        The design line named by the stack's ``line:`` block.
     """
 
     name: str
@@ -296,6 +325,7 @@ class Stack:
     layers: tuple
     repeats: tuple
     raw: Mapping = field(repr=False, compare=False)
+    declared_line: DeclaredLine | None = None
 
     @property
     def total_thickness_nm(self) -> float:
@@ -1142,6 +1172,9 @@ class _Builder:
             fermi = self.finite(self.quantity(top, "fermi_level", "eV", "fermi_level"), top,
                                 "fermi_level", "fermi_level", expected_words("eV"))
 
+        declared = self.declared_line(top) if "line" in top and top["line"] is not None \
+            else None
+
         entries = top["layers"]
         self.count_layers(entries, "layers", 0, top, "layers")
         templates: dict = {}
@@ -1158,7 +1191,50 @@ class _Builder:
                      substrate=substrate, field_kV_per_cm=float(field_kV), nonparabolicity=nonpar,
                      self_consistent=selfc, fermi_level_eV=fermi,
                      user_materials=MappingProxyType(dict(self.user_materials)),
-                     layers=tuple(layers), repeats=tuple(repeats), raw=top)
+                     layers=tuple(layers), repeats=tuple(repeats), raw=top,
+                     declared_line=declared)
+
+    def declared_line(self, top) -> DeclaredLine:
+        """The ``line:`` block: a transition name and an optional spectral target."""
+        block = top["line"]
+        if isinstance(block, str):
+            block = {"transition": block}
+            mapping, key = top, "line"
+        elif isinstance(block, Mapping):
+            self.check_keys(block, _LINE_KEYS, "line")
+            mapping, key = block, "transition"
+            if "transition" not in block:
+                raise self.error("missing required key 'transition'; expected a transition "
+                                 "name such as e1-hh1 or e1-e2", block, None, "line")
+        else:
+            raise self.error(f"got {_type_word(block)}; expected a mapping such as "
+                             "{transition: e1-hh1, target: 980 nm}", top, "line", "line")
+        name = block["transition"]
+        if not isinstance(name, str) or not _LINE_NAME_RE.match(name.strip()):
+            raise self.error(f"got {_short(name)}; expected a transition name of two state "
+                             "labels such as e1-hh1, e1-lh1 or e3-e2", mapping, key,
+                             "line.transition")
+        target_eV = target_text = None
+        if "target" in block and block["target"] is not None:
+            value = block["target"]
+            where = ("line.target", block, "target")
+            if isinstance(value, bool) or not isinstance(value, str):
+                what = ("bare number has no unit" if isinstance(value, (int, float))
+                        else f"got {_type_word(value)}")
+                raise self.error(f"{what}; expected a wavelength, photon energy, wavenumber "
+                                 "or frequency such as '980 nm', '1.265 eV', '1100 cm^-1'",
+                                 where[1], where[2], where[0])
+            try:
+                target_eV = spectral_to_eV(value)
+            except UnitError as exc:
+                raise self.error(f"{_one_line(str(exc))}", block, "target", "line.target") \
+                    from None
+            if not (math.isfinite(target_eV) and target_eV > 0):
+                raise self.error(f"target {value!r} is not a positive spectral value; expected "
+                                 "e.g. '980 nm'", block, "target", "line.target")
+            target_text = value.strip()
+        return DeclaredLine(transition=name.strip(), target_eV=target_eV,
+                            target_text=target_text, line=self.line(top, "line"))
 
 
 def _spec_text(value) -> str:

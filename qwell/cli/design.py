@@ -15,6 +15,7 @@ import numpy as np
 
 from ..constants import HC_EV_UM
 from ..design import get_parameter, parse_parameter_value, size, sweep, tolerance
+from ..design.line import design_line
 from ..errors import ParameterError, QwellError
 from ..fileio import atomic_write_text
 from ..stack import dump_stack_yaml
@@ -32,9 +33,11 @@ def register(subparsers) -> None:
     s.add_argument("stack", help="stack YAML file")
     s.add_argument("--vary", required=True, metavar="PATH",
                    help="parameter, e.g. well.thickness, barrier.x, field, temperature")
-    s.add_argument("--target", required=True,
-                   help="wavelength, energy, wavenumber or frequency, e.g. 4.6um, 270meV")
-    s.add_argument("--transition", default="e1-e2", help="transition (default e1-e2)")
+    s.add_argument("--target",
+                   help="wavelength, energy, wavenumber or frequency, e.g. 4.6um, 270meV "
+                        "(default: the target of the stack's declared line)")
+    s.add_argument("--transition",
+                   help="transition (default: the stack's design line; see 'qwell levels')")
     s.add_argument("--from", dest="lo", metavar="VALUE", help="search range start (with units)")
     s.add_argument("--to", dest="hi", metavar="VALUE", help="search range end (with units)")
     s.add_argument("--json", action="store_true", help="machine-readable output")
@@ -56,7 +59,7 @@ def register(subparsers) -> None:
     w.add_argument("--step", action="append", metavar="STEP",
                    help="step with units instead of --points, e.g. 1ML")
     w.add_argument("--transition", action="append", metavar="e1-e2",
-                   help="transition to follow (repeatable; default e1-e2 if it exists)")
+                   help="transition to follow (repeatable; default: the stack's design line)")
     w.add_argument("--sensitivity", default="grid", choices=["grid", "local"],
                    help="dλ/dp from the sweep grid (default) or by local central differences")
     w.add_argument("--json", action="store_true")
@@ -68,7 +71,8 @@ def register(subparsers) -> None:
 
     t = subparsers.add_parser("tolerance", help="wavelength spread from growth tolerances")
     t.add_argument("stack", help="stack YAML file")
-    t.add_argument("--transition", default="e1-e2", help="transition (default e1-e2)")
+    t.add_argument("--transition",
+                   help="transition (default: the stack's design line; see 'qwell levels')")
     t.add_argument("--thickness", action="append", metavar="[LAYER=]TOL",
                    help="thickness tolerance of every layer (or of LAYER): 1ML, 0.3nm, 2%% "
                         "(default 1ML; repeatable)")
@@ -115,7 +119,14 @@ def cmd_size(args) -> int:
     """Run ``qwell size``; returns the exit status."""
     stack = load(args.stack, args.self_consistent)
     p = get_parameter(stack, args.vary)
-    target = spectral_to_eV(args.target)
+    line = design_line(stack, args.transition, check=False)
+    if args.target is not None:
+        target = spectral_to_eV(args.target)
+    elif line.target_eV is not None:
+        target = line.target_eV
+    else:
+        raise QwellError(f"no target: give --target (e.g. 4.6um) or declare one in "
+                         f"{args.stack} (line: {{transition: {line.transition}, target: ...}})")
     bounds = None
     if args.lo is not None or args.hi is not None:
         if args.lo is None or args.hi is None:
@@ -124,12 +135,13 @@ def cmd_size(args) -> int:
     if args.write:
         if Path(args.write).exists() and Path(args.write).resolve() == Path(args.stack).resolve():
             raise QwellError(f"--write {args.write}: refusing to overwrite the input stack file")
-    res = size(stack, p.path, target, args.transition, bounds=bounds, **_parallel_kw(args))
+    res = size(stack, p.path, target, line.transition, bounds=bounds, **_parallel_kw(args))
     if args.write:
         atomic_write_text(args.write, dump_stack_yaml(res.stack.raw), protect=[args.stack])
     if args.json:
-        print_json(size_json(res))
+        print_json({**size_json(res), "design_line": line.to_json()})
         return 0
+    print(line.headline())
     print_size(stack, p, target, res)
     if args.write:
         print(f"wrote {args.write}")
@@ -141,6 +153,10 @@ def print_size(stack, p, target_eV: float, res) -> None:
     print(f"{stack.name}: {res.transition} at {HC_EV_UM / target_eV:.6g} µm ({target_eV:.6g} eV)")
     print(f"  {p.path} = {res.value:.6f}{unit_text(p.unit)}  ->  {res.wavelength_um:.6f} µm "
           f"({res.energy_eV:.6f} eV, {100 * res.relative_error:+.2g} % from the target)")
+    if res.depolarised:
+        print(f"  with the depolarisation shift of "
+              f"{1e3 * (res.energy_eV - res.bare_energy_eV):.3f} meV; bare line "
+              f"{res.bare_wavelength_um:.6f} µm ({res.bare_energy_eV:.6f} eV)")
     if res.monolayer_options:
         rows = [[o.monolayers, f"{o.thickness_nm:.4f}", fmt(o.wavelength_um, ".5f"),
                  fmt(o.energy_eV, ".6f")] for o in res.monolayer_options]
@@ -207,15 +223,18 @@ def cmd_sweep(args) -> int:
     axes = _sweep_axes(stack, args)
     (p1, v1) = axes[0]
     p2, v2 = (axes[1] if len(axes) > 1 else (None, None))
-    res = sweep(stack, p1.path, v1, args.transition, parameter2=None if p2 is None else p2.path,
+    line = design_line(stack, args.transition[0] if args.transition else None, check=False)
+    followed = list(args.transition) if args.transition else [line.transition]
+    res = sweep(stack, p1.path, v1, followed, parameter2=None if p2 is None else p2.path,
                 values2=v2, sensitivity=args.sensitivity, **_parallel_kw(args))
     if args.csv:
         atomic_write_text(args.csv, res.to_csv(), protect=[args.stack])
     if args.png:
         res.plot(args.png, protect=[args.stack], title=stack.name)
     if args.json:
-        print_json(sweep_json(res))
+        print_json({**sweep_json(res), "design_line": line.to_json()})
         return 0
+    print(line.headline())
     if p2 is None:
         print_sweep(stack, p1, v1, res)
     else:
@@ -243,6 +262,18 @@ def print_sweep(stack, p1, v1, res) -> None:
         rows.append(row)
     print(f"{stack.name}: sweep of {p1.path} (state energies in eV)")
     print(table(rows, heads, aligns))
+    print_bare(res)
+
+
+def print_bare(res) -> None:
+    """Where lines carry the depolarisation shift: say so, with the bare line's range."""
+    for t in res.transitions:
+        if t in res.bare_wavelength_um:
+            bare = np.asarray(res.bare_wavelength_um[t], dtype=float)
+            ok = bare[np.isfinite(bare)]
+            span = (f"{ok.min():.5f} .. {ok.max():.5f} µm" if ok.size else "—")
+            print(f"{t}: depolarisation-shifted absorption line (Ando, Fowler, Stern 1982); "
+                  f"bare line {span}")
 
 
 def print_map(stack, p1, v1, p2, v2, res) -> None:
@@ -254,6 +285,7 @@ def print_map(stack, p1, v1, p2, v2, res) -> None:
         rows = [[f"{v:.4g}"] + [fmt(res.wavelength_um[t][i, j], ".4f") for j in range(len(v2))]
                 for i, v in enumerate(v1)]
         print(table(rows, heads, [">"] * len(heads)))
+    print_bare(res)
 
 
 # ---------------------------------------------------------------------------
@@ -294,12 +326,14 @@ def cmd_tolerance(args) -> int:
     extra = _extra_tolerances(args.vary)
     if args.monte_carlo is not None and args.monte_carlo < 0:
         raise QwellError(f"--monte-carlo {args.monte_carlo}: expected a count >= 0")
-    res = tolerance(stack, args.transition, thick, comp, extra,
+    line = design_line(stack, args.transition, check=False)
+    res = tolerance(stack, line.transition, thick, comp, extra,
                     monte_carlo=args.monte_carlo or 0, seed=args.seed,
                     distribution=args.distribution, **_parallel_kw(args))
     if args.json:
-        print_json(tolerance_json(res))
+        print_json({**tolerance_json(res), "design_line": line.to_json()})
         return 0
+    print(line.headline())
     print_tolerance(stack, res)
     return 0
 
@@ -308,6 +342,9 @@ def print_tolerance(stack, res) -> None:
     """Contributions, worst case, root-sum-square, Monte Carlo statistics, notes."""
     print(f"{stack.name}: {res.transition} at {res.nominal_wavelength_um:.5f} µm "
           f"({res.nominal_energy_eV:.6f} eV)")
+    if res.depolarised:
+        print(f"  depolarisation-shifted; bare line {res.bare_wavelength_um:.5f} µm "
+              f"({res.bare_energy_eV:.6f} eV)")
     rows = [[c.parameter, f"{c.value:.6g}{unit_text(c.unit)}",
              f"±{c.delta:.4g}{unit_text(c.unit)} ({c.spec})",
              fmt(c.wavelength_minus_um, ".5f"), fmt(c.wavelength_plus_um, ".5f"),

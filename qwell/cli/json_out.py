@@ -229,6 +229,8 @@ def size_json(res) -> dict:
         "target_wavelength_um": res.target_wavelength_um,
         "relative_error": _finite(res.relative_error), "bracket": list(res.bracket),
         "evaluations": res.evaluations, "notes": list(res.notes),
+        "depolarised": res.depolarised, "bare_energy_eV": _finite(res.bare_energy_eV),
+        "bare_wavelength_um": _finite(res.bare_wavelength_um),
     }
 
 
@@ -255,7 +257,11 @@ def sweep_json(res) -> dict:
         sens = {p: _grid(res.sensitivity[t][p]) for p in res.parameters}
         trans[t] = {"energy_eV": _grid(res.energy_eV[t]),
                     "wavelength_um": _grid(res.wavelength_um[t]),
-                    "sensitivity_nm_per_unit": sens[first] if one else sens}
+                    "sensitivity_nm_per_unit": sens[first] if one else sens,
+                    "depolarised": t in res.bare_energy_eV}
+        if t in res.bare_energy_eV:
+            trans[t]["bare_energy_eV"] = _grid(res.bare_energy_eV[t])
+            trans[t]["bare_wavelength_um"] = _grid(res.bare_wavelength_um[t])
     return {
         "parameter": first if one else list(res.parameters),
         "unit": res.units[0] if one else list(res.units),
@@ -285,7 +291,10 @@ def tolerance_json(res) -> dict:
     return {
         "transition": res.transition,
         "nominal": {"energy_eV": _finite(res.nominal_energy_eV),
-                    "wavelength_um": _finite(res.nominal_wavelength_um)},
+                    "wavelength_um": _finite(res.nominal_wavelength_um),
+                    "bare_energy_eV": _finite(res.bare_energy_eV),
+                    "bare_wavelength_um": _finite(res.bare_wavelength_um),
+                    "depolarised": res.depolarised},
         "contributions": [{"parameter": c.parameter, "unit": c.unit, "value": c.value,
                            "delta": c.delta, "spec": c.spec,
                            "wavelength_plus_um": _finite(c.wavelength_plus_um),

@@ -4,10 +4,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
+from ..design.line import ALLOWED_OVERLAP, design_line
 from ..errors import QwellError
 from ..levels import compare_methods, depolarised_lines, solve_profile
 from ..optics import plot_spectrum, select_transitions, spectrum, strength
-from .common import add_self_consistent_option, load, print_json, profile_and_charge, table
+from .common import (add_self_consistent_option, load, print_json, print_self_consistent,
+                     profile_and_charge, table)
 from .json_out import levels_json
 
 __all__ = ["register", "cmd_levels", "LevelsOptions"]
@@ -96,20 +98,35 @@ def cmd_levels(args) -> int:
     """Run ``qwell levels``; returns the exit status."""
     opts = LevelsOptions.from_args(args)
     stack = load(opts.stack_path, opts.self_consistent)
-    prof, sc = profile_and_charge(stack, quiet=opts.json)
+    prof, sc = profile_and_charge(stack, quiet=True)
     sols = {m: solve_profile(prof, bands=opts.band, method=m, transitions=(m == "exact"),
                              hole_intersubband=opts.hole_intersubband) for m in opts.methods}
     if sc is not None:
         sols = {m: replace(s, self_consistent=sc) for m, s in sols.items()}
+    line = _line(stack, sols, opts)
     chosen = {m: (select_transitions(s.transitions, list(opts.transitions)) if opts.transitions
                   else s.transitions) for m, s in sols.items()}
     spec = write_spectrum(stack, sols, chosen, opts) if opts.png else None
     if opts.json:
-        print_json(levels_json(stack, sols, chosen, spectrum=spec,
-                               wavefunctions=opts.wavefunctions))
+        doc = levels_json(stack, sols, chosen, spectrum=spec, wavefunctions=opts.wavefunctions)
+        doc["design_line"] = line.to_json()
+        print_json(doc)
     else:
-        print_levels(stack, sols, chosen, opts)
+        print_levels(stack, sols, chosen, opts, line)
     return 0
+
+
+def _line(stack, sols: dict, opts: LevelsOptions):
+    """The design line (:func:`qwell.design.line.design_line`) on the solved bands.
+
+    The exact all-band solution is used when this invocation has it; else (one
+    band, or the semiclassical method) the stack is solved once more for it.
+    """
+    exact = sols.get("exact")
+    full = exact if exact is not None and opts.band == "all" else None
+    first = opts.transitions[0] if len(opts.transitions) == 1 else None
+    return design_line(stack, first, solution=full,
+                       check=full is not None or opts.band == "all")
 
 
 # ---------------------------------------------------------------------------
@@ -146,6 +163,14 @@ def write_spectrum(stack, sols: dict, chosen: dict, opts: LevelsOptions):
     if exact is None or not chosen.get("exact"):
         raise QwellError("--png: the spectrum needs transitions from the exact method")
     lines, what = spectrum_lines(exact, chosen["exact"], opts)
+    shifted = {d["transition"]: d for d in depolarised_lines(exact)}
+    if shifted:
+        lines = [replace(t, energy_eV=d["shifted_energy_eV"],
+                         wavelength_um=d["shifted_wavelength_um"],
+                         wavenumber_cm1=t.wavenumber_cm1 * d["shifted_energy_eV"] / t.energy_eV,
+                         frequency_THz=t.frequency_THz * d["shifted_energy_eV"] / t.energy_eV)
+                 if (d := shifted.get(t.name)) else t for t in lines]
+        what += " (depolarisation-shifted)"
     spec = spectrum(lines, linewidth_meV=opts.linewidth_meV, shape=opts.lineshape)
     plot_spectrum(spec, opts.png, axis=opts.axis, title=f"{stack.name}: {what}",
                   protect=[opts.stack_path])
@@ -155,12 +180,17 @@ def write_spectrum(stack, sols: dict, chosen: dict, opts: LevelsOptions):
 # ---------------------------------------------------------------------------
 # text
 # ---------------------------------------------------------------------------
-def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions) -> None:
-    """Header, states (or the method comparison), notes, transitions, depolarisation, warnings."""
+def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions, line) -> None:
+    """Design line, header, charge, states (or the method comparison), notes, transitions,
+    depolarisation, warnings."""
+    print(line.headline())
     head = f"{stack.name}  (T = {stack.temperature_K:g} K"
     if stack.field_kV_per_cm:
         head += f", field {stack.field_kV_per_cm:g} kV/cm"
     print(head + ")")
+    sc = next(iter(sols.values())).self_consistent
+    if sc is not None:
+        print_self_consistent(sc)
     if len(sols) == 1:
         (m, sol), = sols.items()
         print_states(m, sol)
@@ -169,9 +199,9 @@ def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions) -> None:
     for m, sol in sols.items():
         print_notes(m, sol)
     trans = chosen.get("exact", ())
-    print_transitions(trans, show_all=bool(opts.transitions))
+    print_transitions(trans, show_all=bool(opts.transitions), line=line.transition)
     if "exact" in sols:
-        print_depolarisation(sols["exact"], trans)
+        print_depolarisation(sols["exact"], trans, line=line.transition)
     for w in next(iter(sols.values())).profile.warnings:
         print(f"warning: {w}")
     if opts.png:
@@ -239,48 +269,70 @@ def _hidden_note(hidden: int, kind: str, criterion: str, capped: int = 0) -> Non
               f"{MAX_TABLE_LINES} strongest not shown; --json lists all)")
 
 
-def print_transitions(trans, show_all: bool = False) -> None:
-    """Intersubband then interband tables, each strongest first; forbidden lines counted."""
+def emission_order(band) -> list:
+    """Interband lines in the order an emitter designer reads them.
+
+    The lowest-energy allowed line (|<e|h>|² >= :data:`ALLOWED_OVERLAP`: the
+    emission line) first, then the others by TE/TM strength.
+    """
+    band = sorted(band, key=lambda t: -strength(t))
+    allowed = [t for t in band if (t.overlap or 0.0) >= ALLOWED_OVERLAP]
+    if not allowed:
+        return band
+    first = min(allowed, key=lambda t: (round(t.energy_eV, 9), -strength(t)))
+    return [first] + [t for t in band if t is not first]
+
+
+def print_transitions(trans, show_all: bool = False, line: str | None = None) -> None:
+    """Intersubband table (strongest first) and interband table (emission line first);
+    weak lines counted, long tables capped with a count; the design line marked."""
     inter = sorted((t for t in trans if t.kind == "intersubband"), key=lambda t: -strength(t))
-    band = sorted((t for t in trans if t.kind == "interband"), key=lambda t: -strength(t))
+    band = emission_order([t for t in trans if t.kind == "interband"])
     if inter:
-        shown_i = inter if show_all else [t for t in inter if (t.oscillator_strength or 0) >= 1e-3]
+        shown_i = inter if show_all else [t for t in inter if (t.oscillator_strength or 0) >= 1e-3
+                                          or t.name == line]
         capped_i = 0 if show_all else max(0, len(shown_i) - MAX_TABLE_LINES)
         hidden_i = len(inter) - len(shown_i)
         shown_i = shown_i if show_all else shown_i[:MAX_TABLE_LINES]
         rows = [[t.name, f"{t.energy_eV:.6f}", f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}",
-                 f"{t.frequency_THz:.3f}", f"{t.dipole_nm:.4f}", f"{t.oscillator_strength:.4f}"]
+                 f"{t.frequency_THz:.3f}", f"{t.dipole_nm:.4f}", f"{t.oscillator_strength:.4f}",
+                 "design line" if t.name == line else ""]
                 for t in shown_i]
         print("\nIntersubband transitions (absorption from the lower state, strongest first)")
-        print(table(rows, ["transition", "energy eV", "λ µm", "cm⁻¹", "THz", "|z| nm", "f"],
-                    ["<", ">", ">", ">", ">", ">", ">"]))
+        print(table(rows, ["transition", "energy eV", "λ µm", "cm⁻¹", "THz", "|z| nm", "f", ""],
+                    ["<", ">", ">", ">", ">", ">", ">", "<"]))
         _hidden_note(hidden_i, "intersubband", "f < 0.001", capped_i)
     if band:
-        shown = band if show_all else [t for t in band if (t.overlap or 0.0) >= 1e-3]
+        shown = band if show_all else [t for t in band if (t.overlap or 0.0) >= ALLOWED_OVERLAP
+                                       or t.name == line]
         capped = 0 if show_all else max(0, len(shown) - MAX_TABLE_LINES)
         hidden = len(band) - len(shown)
         shown = shown if show_all else shown[:MAX_TABLE_LINES]
-        lowest = min(band, key=lambda t: t.energy_eV)
+        emission = band[0] if (band[0].overlap or 0.0) >= ALLOWED_OVERLAP else None
         rows = [[t.name, f"{t.energy_eV:.6f}", f"{1e3 * t.wavelength_um:.2f}",
                  f"{t.overlap:.4f}", f"{t.te:.4f}", f"{t.tm:.4f}",
-                 ", ".join(x for x in ("Δn=0" if t.strongest else "",
-                                       "lowest energy" if t is lowest else "") if x)]
+                 ", ".join(x for x in ("emission line" if t is emission else "",
+                                       "Δn=0" if t.strongest else "",
+                                       "design line" if t.name == line else "") if x)]
                 for t in shown]
-        print("\nInterband transitions (strongest first; excitonic binding not included)")
+        print("\nInterband transitions (emission line first, then strongest; excitonic binding "
+              "not included)")
         print(table(rows, ["transition", "energy eV", "λ nm", "|<e|h>|²", "TE", "TM", ""],
                     ["<", ">", ">", ">", ">", ">", "<"]))
         _hidden_note(hidden, "interband", "|<e|h>|² < 0.001", capped)
 
 
-def print_depolarisation(sol, trans) -> None:
+def print_depolarisation(sol, trans, line: str | None = None) -> None:
     """Depolarisation-shifted lines of a doped solution (among the shown transitions)."""
     if sol.self_consistent is None:
         return
     names = {t.name for t in trans}
-    rows = [[d["transition"], f"{d['sheet_density_cm2']:.4g}", f"{1e3 * d['shift_eV']:.3f}",
-             f"{d['shifted_energy_eV']:.6f}", f"{d['shifted_wavelength_um']:.5f}"]
+    rows = [[d["transition"], f"{d['sheet_density_cm2']:.4g}", f"{d['energy_eV']:.6f}",
+             f"{1e3 * d['shift_eV']:.3f}", f"{d['shifted_energy_eV']:.6f}",
+             f"{d['shifted_wavelength_um']:.5f}",
+             "design line" if d["transition"] == line else ""]
             for d in depolarised_lines(sol) if d["transition"] in names]
     if rows:
         print("\nIntersubband absorption with the depolarisation shift (Ando, Fowler, Stern 1982)")
-        print(table(rows, ["transition", "Δn cm⁻²", "shift meV", "energy eV", "λ µm"],
-                    ["<", ">", ">", ">", ">"]))
+        print(table(rows, ["transition", "Δn cm⁻²", "bare eV", "shift meV", "energy eV", "λ µm",
+                           ""], ["<", ">", ">", ">", ">", ">", "<"]))

@@ -16,7 +16,7 @@ import copy
 import math
 import re
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import partial
 from typing import Mapping
 
@@ -25,7 +25,7 @@ import numpy as np
 from .. import parallel
 from ..bands import BAND_NAMES
 from ..errors import ParameterError, QwellError, QwellWarning
-from ..levels import solve_profile, stack_profile
+from ..levels import depolarised_lines, prepare_profile, solve_profile
 from ..stack import stack_from_mapping
 from ..stack_edit import Parameter, apply_parameters
 
@@ -49,7 +49,10 @@ class DesignPoint:
     states : tuple of (label, energy_eV, bound)
         Every state of the solved bands; band-diagram energies [eV].
     transitions : tuple of (name, energy_eV, wavelength_um)
-        Every transition of the solution.
+        Every transition of the solution: the line a designer works with.  In
+        a self-consistent (doped) design an intersubband absorption line is
+        the depolarisation-shifted one (Ando, Fowler, Stern 1982); its bare
+        energy is in ``bare_transitions``.
     notes : tuple of str
         Warnings raised while solving (re-emitted by the caller).
     warning_categories : tuple
@@ -58,6 +61,9 @@ class DesignPoint:
         Why the design could not be built or solved, when the evaluation was
         asked to record errors instead of raising them (then ``states`` and
         ``transitions`` are empty).
+    bare_transitions : tuple of (name, energy_eV, wavelength_um)
+        The depolarisation-shifted lines before the shift (empty when no line
+        is shifted).
     """
 
     values: tuple
@@ -66,6 +72,27 @@ class DesignPoint:
     notes: tuple = ()
     warning_categories: tuple = field(default=(), repr=False)
     error: str | None = None
+    bare_transitions: tuple = ()
+
+    def bare_energy(self, name: str) -> float:
+        """Energy of a line before the depolarisation shift [eV] (the line's energy when it
+        is not shifted; NaN if absent)."""
+        for n, e, _ in self.bare_transitions:
+            if n == name:
+                return e
+        return self.transition_energy(name)
+
+    def bare_wavelength(self, name: str) -> float:
+        """Wavelength of a line before the depolarisation shift [um] (NaN if absent)."""
+        for n, _, lam in self.bare_transitions:
+            if n == name:
+                return lam
+        return self.wavelength(name)
+
+    @property
+    def shifted(self) -> bool:
+        """Whether some intersubband line carries the depolarisation shift."""
+        return bool(self.bare_transitions)
 
     def state_energy(self, label: str) -> float:
         """Energy of a state [eV], NaN if the design has no such state."""
@@ -119,8 +146,14 @@ def bands_for_transitions(transitions, extra=()) -> tuple:
 def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV):
     """Solve one design; with ``needed`` state labels, skip the resonance search when
     every needed state is truly bound (quasi-bound states lie above all bound ones,
-    so the bound labels do not change) and fall back to the full solve otherwise."""
-    prof = stack_profile(stack)
+    so the bound labels do not change) and fall back to the full solve otherwise.
+
+    Returns ``(states, transitions, bare)``: in a self-consistent design the
+    intersubband lines of ``transitions`` carry the depolarisation shift and
+    ``bare`` lists them unshifted (the shift needs the wavefunctions)."""
+    prof, sc = prepare_profile(stack)
+    if sc is not None:
+        wavefunctions = True
     sol = None
     if needed:
         sol = solve_profile(prof, bands=bands, method="exact", transitions=True,
@@ -134,7 +167,15 @@ def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV):
                             wavefunctions=wavefunctions, tolerance_eV=tolerance_eV)
     states = tuple((s.label, float(s.energy_eV), bool(s.bound)) for s in sol.states)
     trans = tuple((t.name, float(t.energy_eV), float(t.wavelength_um)) for t in sol.transitions)
-    return states, trans
+    bare = ()
+    if sc is not None:
+        shifted = {d["transition"]: d for d in depolarised_lines(replace(sol, self_consistent=sc))}
+        if shifted:
+            bare = tuple(t for t in trans if t[0] in shifted)
+            trans = tuple((n, float(shifted[n]["shifted_energy_eV"]),
+                           float(shifted[n]["shifted_wavelength_um"])) if n in shifted
+                          else (n, e, lam) for n, e, lam in trans)
+    return states, trans, bare
 
 
 def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("conduction",),
@@ -179,13 +220,13 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
         warnings.simplefilter("always")
         try:
             s = apply_parameters(stack, values)
-            states, trans = _solve_design(s, tuple(bands), wavefunctions,
-                                          tuple(needed) if needed else None, tolerance_eV)
+            states, trans, bare = _solve_design(s, tuple(bands), wavefunctions,
+                                                tuple(needed) if needed else None, tolerance_eV)
             error = None
         except QwellError as exc:
             if not record_errors:
                 raise
-            states, trans, error = (), (), str(exc)
+            states, trans, bare, error = (), (), (), str(exc)
     notes, cats = [], []
     for w in caught:
         msg = str(w.message)
@@ -193,7 +234,8 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
             notes.append(msg)
             cats.append(w.category if issubclass(w.category, QwellWarning) else None)
     return DesignPoint(values=tuple(values.items()), states=states, transitions=trans,
-                       notes=tuple(notes), warning_categories=tuple(cats), error=error)
+                       notes=tuple(notes), warning_categories=tuple(cats), error=error,
+                       bare_transitions=bare)
 
 
 _BASE_CACHE: dict = {}
@@ -269,8 +311,9 @@ def check_transitions(point: DesignPoint, names, where: str):
     have = point.transition_names
     for n in names:
         if n not in have:
-            raise ParameterError(f"transition {n!r} does not exist at {where}; available there: "
-                                 + (", ".join(have) or "none"))
+            states = ", ".join(lab for lab, _, _ in point.states) or "none"
+            raise ParameterError(f"transition {n!r} does not exist at {where}; states there: "
+                                 f"{states}; transitions there: " + (", ".join(have) or "none"))
 
 
 def jump_notes(p: Parameter, values, state_energy, transition_energy,

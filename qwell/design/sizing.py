@@ -65,6 +65,11 @@ class SizeResult:
     stack : Stack
         The sized stack.
     notes : tuple of str
+    bare_energy_eV, bare_wavelength_um : float
+        The line before the depolarisation shift (doped stacks; else the same
+        as ``energy_eV``, ``wavelength_um``).
+    depolarised : bool
+        The sized line is the depolarisation-shifted one.
     """
 
     parameter: str
@@ -80,6 +85,9 @@ class SizeResult:
     evaluations: int = 0
     stack: object = field(default=None, repr=False, compare=False)
     notes: tuple = ()
+    bare_energy_eV: float = math.nan
+    bare_wavelength_um: float = math.nan
+    depolarised: bool = False
 
     @property
     def relative_error(self) -> float:
@@ -99,6 +107,8 @@ class SizeResult:
             "target_wavelength_um": self.target_wavelength_um,
             "relative_error": f(self.relative_error), "bracket": list(self.bracket),
             "evaluations": self.evaluations, "notes": list(self.notes),
+            "bare_energy_eV": f(self.bare_energy_eV),
+            "bare_wavelength_um": f(self.bare_wavelength_um), "depolarised": self.depolarised,
         }
 
 
@@ -301,4 +311,7 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
                       target_energy_eV=e_target, target_wavelength_um=lam_t, energy_eV=e,
                       wavelength_um=final.wavelength(transition),
                       monolayer_options=tuple(options), bracket=(a, b), evaluations=evals[0],
-                      stack=apply_parameters(stack, {p.path: value}), notes=tuple(notes))
+                      stack=apply_parameters(stack, {p.path: value}), notes=tuple(notes),
+                      bare_energy_eV=final.bare_energy(transition),
+                      bare_wavelength_um=final.bare_wavelength(transition),
+                      depolarised=transition in {n for n, _, _ in final.bare_transitions})

@@ -53,6 +53,9 @@ class SweepResult:
     points : tuple of DesignPoint
         Flat, C order.
     notes : tuple of str
+    bare_energy_eV, bare_wavelength_um : Mapping[str, ndarray]
+        Depolarisation-shifted lines (doped stacks) before the shift; only the
+        transitions that carry the shift.
     """
 
     parameters: tuple
@@ -69,6 +72,8 @@ class SweepResult:
     sensitivity_method: str
     points: tuple = field(repr=False, default=())
     notes: tuple = ()
+    bare_energy_eV: Mapping = field(default_factory=dict)
+    bare_wavelength_um: Mapping = field(default_factory=dict)
 
     @property
     def shape(self) -> tuple:
@@ -98,7 +103,11 @@ class SweepResult:
             sens = {p: nulls(lst(self.sensitivity[t][p])) for p in self.parameters}
             trans[t] = {"energy_eV": nulls(lst(self.energy_eV[t])),
                         "wavelength_um": nulls(lst(self.wavelength_um[t])),
-                        "sensitivity_nm_per_unit": sens[self.parameters[0]] if one else sens}
+                        "sensitivity_nm_per_unit": sens[self.parameters[0]] if one else sens,
+                        "depolarised": t in self.bare_energy_eV}
+            if t in self.bare_energy_eV:
+                trans[t]["bare_energy_eV"] = nulls(lst(self.bare_energy_eV[t]))
+                trans[t]["bare_wavelength_um"] = nulls(lst(self.bare_wavelength_um[t]))
         return {
             "parameter": self.parameters[0] if one else list(self.parameters),
             "unit": self.units[0] if one else list(self.units),
@@ -298,6 +307,10 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
                           ).reshape(shape) for lab in labels}
     en = {t: np.array([pt.transition_energy(t) for pt in points]).reshape(shape) for t in names}
     lam = {t: np.array([pt.wavelength(t) for pt in points]).reshape(shape) for t in names}
+    shifted = [t for t in names if any(t in {b[0] for b in pt.bare_transitions} for pt in points)]
+    bare_en = {t: np.array([pt.bare_energy(t) for pt in points]).reshape(shape) for t in shifted}
+    bare_lam = {t: np.array([pt.bare_wavelength(t) for pt in points]).reshape(shape)
+                for t in shifted}
     sens: dict = {}
     for t in names:
         sens[t] = {}
@@ -333,4 +346,5 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
                        state_bound=st_b, transitions=tuple(names), energy_eV=en,
                        wavelength_um=lam, sensitivity=sens,
                        sensitivity_units={p.path: p.sensitivity_unit for p in ps},
-                       sensitivity_method=method, points=tuple(points), notes=tuple(notes))
+                       sensitivity_method=method, points=tuple(points), notes=tuple(notes),
+                       bare_energy_eV=bare_en, bare_wavelength_um=bare_lam)

@@ -110,6 +110,11 @@ class ToleranceResult:
         Root-sum-square of the contributions [nm].
     monte_carlo : MonteCarloSummary or None
     notes : tuple of str
+    bare_energy_eV, bare_wavelength_um : float
+        The nominal line before the depolarisation shift (doped stacks; else
+        the nominal line itself).
+    depolarised : bool
+        The line is the depolarisation-shifted one.
     """
 
     transition: str
@@ -122,6 +127,9 @@ class ToleranceResult:
     rss_nm: float
     monte_carlo: MonteCarloSummary | None = None
     notes: tuple = ()
+    bare_energy_eV: float = math.nan
+    bare_wavelength_um: float = math.nan
+    depolarised: bool = False
 
     def to_json(self) -> dict:
         def f(v):
@@ -138,7 +146,10 @@ class ToleranceResult:
         return {
             "transition": self.transition,
             "nominal": {"energy_eV": f(self.nominal_energy_eV),
-                        "wavelength_um": f(self.nominal_wavelength_um)},
+                        "wavelength_um": f(self.nominal_wavelength_um),
+                        "bare_energy_eV": f(self.bare_energy_eV),
+                        "bare_wavelength_um": f(self.bare_wavelength_um),
+                        "depolarised": self.depolarised},
             "contributions": [{"parameter": c.parameter, "unit": c.unit, "value": c.value,
                                "delta": c.delta, "spec": c.spec,
                                "wavelength_plus_um": f(c.wavelength_plus_um),
@@ -397,7 +408,10 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
                            nominal_energy_eV=nominal.transition_energy(transition),
                            nominal_wavelength_um=lam0, contributions=tuple(contributions),
                            worst_case_nm=worst, corner_min_um=corner_min, corner_max_um=corner_max,
-                           rss_nm=rss, monte_carlo=mc, notes=tuple(notes))
+                           rss_nm=rss, monte_carlo=mc, notes=tuple(notes),
+                           bare_energy_eV=nominal.bare_energy(transition),
+                           bare_wavelength_um=nominal.bare_wavelength(transition),
+                           depolarised=transition in {n for n, _, _ in nominal.bare_transitions})
 
 
 # ---------------------------------------------------------------------------
