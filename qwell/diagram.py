@@ -87,6 +87,7 @@ class DiagramInfo:
     transition_labels: tuple
     unlabelled_layers: tuple
     axes: tuple
+    fermi_label: str | None = None
 
 
 # ---------------------------------------------------------------------------
@@ -267,7 +268,8 @@ def _panel_plan(profile, levels, bands_shown, transitions):
 
 
 def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1.0, 1.0),
-                      title=None, show_holes=None, fontsize: float = _FONT) -> DiagramInfo:
+                      title=None, show_holes=None, fontsize: float = _FONT,
+                      fermi_level_eV: float | None = None) -> DiagramInfo:
     """Draw the band diagram with states into ``rect`` of ``fig``.
 
     Parameters
@@ -289,6 +291,10 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
         Force the hole edges on or off; default :func:`hole_bands_shown`.
     fontsize : float
         Font size of labels [pt] (>= 7 for print).
+    fermi_level_eV : float, optional
+        Fermi level of a doped (self-consistent) stack [eV, band-diagram
+        scale]: drawn as a dashed line across the conduction panel and
+        labelled.
 
     Returns
     -------
@@ -383,6 +389,8 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
                 if b in levels:
                     states += [(b, s) for s in levels[b].states]
             e_all = edges + [s.energy_eV for _, s in states]
+            if fermi_level_eV is not None and "conduction" in pbands:
+                e_all.append(fermi_level_eV)
             lo, hi = (min(e_all), max(e_all)) if e_all else (0.0, 1.0)
             span0 = max(hi - lo, 1e-3)
             amp = wavefunction_amplitude_eV([s.energy_eV for _, s in states], span0)
@@ -493,6 +501,22 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
                     bbox=dict(boxstyle="square,pad=0.1", fc="white", ec="none"))
             drawn_labels.append(txt.rstrip("*"))
 
+    # -- Fermi level of a doped stack ---------------------------------------------
+    fermi_label = None
+    if fermi_level_eV is not None and math.isfinite(fermi_level_eV):
+        for p in plan:
+            if "conduction" in p["bands"]:
+                fermi_label = f"E_F {fermi_level_eV:.4f} eV"
+                p["ax"].axhline(fermi_level_eV, color="#CC79A7", ls=(0, (5, 3)), lw=1.1, zorder=5)
+                p["ax"].text(0.01, fermi_level_eV, fermi_label,
+                             transform=p["ax"].get_yaxis_transform(), fontsize=fontsize,
+                             color="#CC79A7", va="bottom", ha="left", zorder=10,
+                             parse_math=False,
+                             bbox=dict(boxstyle="square,pad=0.1", fc="white", ec="none"))
+                handles.append(Line2D([], [], color="#CC79A7", ls=(0, (5, 3)), lw=1.1,
+                                      label="Fermi level (self-consistent)"))
+                break
+
     # -- transitions --------------------------------------------------------------
     tr_labels = []
     if transitions:
@@ -530,7 +554,8 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     return DiagramInfo(panels=tuple(p["name"] for p in plan),
                        bands=tuple(b for p in plan for b in p["bands"]),
                        state_labels=tuple(drawn_labels), transition_labels=tuple(tr_labels),
-                       unlabelled_layers=tuple(unlabelled), axes=tuple(axes))
+                       unlabelled_layers=tuple(unlabelled), axes=tuple(axes),
+                       fermi_label=fermi_label)
 
 
 def _sign(band: str) -> int:
@@ -660,7 +685,8 @@ def _break_marks(ax_top, ax_bottom):
 # ---------------------------------------------------------------------------
 # stand-alone figure
 # ---------------------------------------------------------------------------
-def band_diagram_figure(profile, levels, *, transitions=(), title=None, show_holes=None):
+def band_diagram_figure(profile, levels, *, transitions=(), title=None, show_holes=None,
+                        fermi_level_eV=None):
     """A new figure (:data:`DIAGRAM_SIZE_IN`, :data:`DIAGRAM_DPI`) holding the diagram.
 
     Returns
@@ -676,16 +702,18 @@ def band_diagram_figure(profile, levels, *, transitions=(), title=None, show_hol
 
     fig = plt.figure(figsize=DIAGRAM_SIZE_IN, dpi=DIAGRAM_DPI)
     info = draw_band_diagram(fig, profile, levels, transitions=transitions,
-                             rect=(0.01, 0.01, 0.98, 0.97), title=title, show_holes=show_holes)
+                             rect=(0.01, 0.01, 0.98, 0.97), title=title, show_holes=show_holes,
+                             fermi_level_eV=fermi_level_eV)
     return fig, info
 
 
-def band_diagram_png(profile, levels, *, transitions=(), title=None, show_holes=None) -> bytes:
-    """PNG bytes (1200 x 750 pixels) of the band diagram."""
+def band_diagram_png(profile, levels, *, transitions=(), title=None, show_holes=None,
+                     fermi_level_eV=None) -> bytes:
+    """PNG bytes (1200 x 750 pixels) of the band diagram (see :func:`draw_band_diagram`)."""
     import matplotlib.pyplot as plt  # heavy: imported on first use
 
     fig, _ = band_diagram_figure(profile, levels, transitions=transitions, title=title,
-                                 show_holes=show_holes)
+                                 show_holes=show_holes, fermi_level_eV=fermi_level_eV)
     try:
         buf = io.BytesIO()
         fig.savefig(buf, format="png", dpi=DIAGRAM_DPI)
@@ -694,7 +722,9 @@ def band_diagram_png(profile, levels, *, transitions=(), title=None, show_holes=
         plt.close(fig)
 
 
-def save_band_diagram(profile, levels, path, *, transitions=(), title=None, protect=()):
+def save_band_diagram(profile, levels, path, *, transitions=(), title=None, protect=(),
+                      fermi_level_eV=None):
     """Write the band diagram to ``path`` (PNG) atomically; returns the path."""
-    data = band_diagram_png(profile, levels, transitions=transitions, title=title)
+    data = band_diagram_png(profile, levels, transitions=transitions, title=title,
+                            fermi_level_eV=fermi_level_eV)
     return atomic_write_bytes(path, data, protect=protect)

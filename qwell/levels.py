@@ -24,7 +24,8 @@ from .solvers import METHODS, Levels, solve
 from .stack import Stack
 from .units import HC_EV_UM
 
-__all__ = ["Solution", "solve_stack", "solve_profile", "BAND_CHOICES"]
+__all__ = ["Solution", "solve_stack", "solve_profile", "BAND_CHOICES", "depolarised_lines",
+           "shifted_transitions"]
 
 BAND_CHOICES = BAND_NAMES + ("all",)
 
@@ -301,3 +302,25 @@ def depolarised_lines(solution: Solution) -> list[dict]:
                     "sheet_density_cm2": n})
     return out
 
+
+
+def shifted_transitions(solution: Solution, transitions=None) -> tuple:
+    """``transitions`` (default: all of the solution) with each depolarisation-shifted line
+    (:func:`depolarised_lines`) at its shifted energy; other lines unchanged.
+
+    This is the line a doped stack's absorption shows, used by every plot and
+    design workflow; the bare line stays in :attr:`Solution.transitions`.
+    """
+    trans = solution.transitions if transitions is None else tuple(transitions)
+    shifted = {d["transition"]: d for d in depolarised_lines(solution)}
+    out = []
+    for t in trans:
+        d = shifted.get(t.name)
+        if d is None:
+            out.append(t)
+            continue
+        r = d["shifted_energy_eV"] / t.energy_eV
+        out.append(replace(t, energy_eV=d["shifted_energy_eV"],
+                           wavelength_um=d["shifted_wavelength_um"],
+                           wavenumber_cm1=t.wavenumber_cm1 * r, frequency_THz=t.frequency_THz * r))
+    return tuple(out)

@@ -6,7 +6,7 @@ from dataclasses import dataclass, replace
 
 from ..design.line import ALLOWED_OVERLAP, design_line
 from ..errors import QwellError
-from ..levels import compare_methods, depolarised_lines, solve_profile
+from ..levels import compare_methods, depolarised_lines, shifted_transitions, solve_profile
 from ..optics import plot_spectrum, select_transitions, spectrum, strength
 from .common import (add_self_consistent_option, load, print_json, print_self_consistent,
                      profile_and_charge, table)
@@ -163,13 +163,8 @@ def write_spectrum(stack, sols: dict, chosen: dict, opts: LevelsOptions):
     if exact is None or not chosen.get("exact"):
         raise QwellError("--png: the spectrum needs transitions from the exact method")
     lines, what = spectrum_lines(exact, chosen["exact"], opts)
-    shifted = {d["transition"]: d for d in depolarised_lines(exact)}
-    if shifted:
-        lines = [replace(t, energy_eV=d["shifted_energy_eV"],
-                         wavelength_um=d["shifted_wavelength_um"],
-                         wavenumber_cm1=t.wavenumber_cm1 * d["shifted_energy_eV"] / t.energy_eV,
-                         frequency_THz=t.frequency_THz * d["shifted_energy_eV"] / t.energy_eV)
-                 if (d := shifted.get(t.name)) else t for t in lines]
+    if depolarised_lines(exact):
+        lines = list(shifted_transitions(exact, lines))
         what += " (depolarisation-shifted)"
     spec = spectrum(lines, linewidth_meV=opts.linewidth_meV, shape=opts.lineshape)
     plot_spectrum(spec, opts.png, axis=opts.axis, title=f"{stack.name}: {what}",

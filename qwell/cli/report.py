@@ -20,7 +20,8 @@ def register(subparsers) -> None:
     r.add_argument("-o", "--output-dir", dest="out_dir", metavar="DIR", default=None,
                    help="output folder (must exist; default reports/, created if missing)")
     r.add_argument("--transition", action="append", metavar="e1-e2",
-                   help="transition to review (repeatable); default: the strongest ones")
+                   help="transition to review (repeatable); default: the stack's design line and the "
+                        "strongest ones")
     add_self_consistent_option(r)
     r.set_defaults(func=cmd_report)
 
@@ -32,6 +33,8 @@ def cmd_report(args) -> int:
     res = build_report(stack, transitions=args.transition,
                        out_dir=args.out_dir if given else DEFAULT_OUT_DIR,
                        create_out_dir=not given)
+    if res.line is not None:
+        print(res.line.headline())
     print(f"wrote {res.pdf_path}")
     print(f"wrote {res.png_path}")
     return 0

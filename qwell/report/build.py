@@ -43,6 +43,8 @@ class ReportResult:
         Wall time of the whole build [s].
     warnings : tuple of str
         Validity warnings raised while solving (also listed in the PDF).
+    line : qwell.design.line.DesignLine or None
+        The design line the report reviews (first of its transitions).
     """
 
     pdf_path: Path
@@ -50,6 +52,7 @@ class ReportResult:
     pages: int
     elapsed_s: float
     warnings: tuple[str, ...] = ()
+    line: object = None
 
 
 
@@ -117,7 +120,7 @@ def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
     pdf_bytes, pages = render_pdf(data)
     title = f"{stack.name}  (T = {stack.temperature_K:g} K)"
     png_bytes = band_diagram_png(data.profile, data.exact.levels, transitions=data.chosen,
-                                 title=title)
+                                 title=title, fermi_level_eV=data.fermi_level_eV)
     stem = _stem(stack)
     pdf_path, png_path = d / f"{stem}.pdf", d / f"{stem}.png"
     protect = [stack.path] if stack.path else []
@@ -143,4 +146,5 @@ def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
                       f"they are listed on the cautions page of {pdf_path}", ValidityWarning,
                       stacklevel=2)
     return ReportResult(pdf_path=pdf_path, png_path=png_path, pages=pages,
-                        elapsed_s=time.perf_counter() - t0, warnings=data.warnings)
+                        elapsed_s=time.perf_counter() - t0, warnings=data.warnings,
+                        line=data.line)

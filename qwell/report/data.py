@@ -15,12 +15,13 @@ from __future__ import annotations
 import datetime as _dt
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from .. import design
 from ..constants import HC_EV_UM
 from ..errors import QwellError, QwellWarning
-from ..levels import Solution, compare_methods, prepare_profile, solve_profile
+from ..design.line import DesignLine, design_line
+from ..levels import Solution, compare_methods, prepare_profile, shifted_transitions, solve_profile
 from ..optics import Transition, select_transitions
 from ..profile import Profile
 from ..selfconsistent import SelfConsistentResult
@@ -99,6 +100,10 @@ class ReportData:
     tolerance_eV : float
     charge : qwell.selfconsistent.SelfConsistentResult or None
         The Schrödinger–Poisson result when the stack is solved self-consistently.
+    line : qwell.design.line.DesignLine or None
+        The design line (the first reviewed transition), as every command
+        decides it (:func:`qwell.design.line.design_line`).  In a doped stack
+        the reviewed intersubband lines are the depolarisation-shifted ones.
     """
 
     stack: Stack
@@ -113,6 +118,15 @@ class ReportData:
     created_utc: _dt.datetime
     tolerance_eV: float = REPORT_TOLERANCE_EV
     charge: SelfConsistentResult | None = None
+    line: DesignLine | None = None
+
+    @property
+    def fermi_level_eV(self) -> float | None:
+        """Fermi level of a self-consistent stack [eV], else None."""
+        if self.charge is None:
+            return None
+        ef = self.charge.fermi_level_eV
+        return None if ef is None or math.isnan(ef) else float(ef)
 
 
 def default_transitions(solution) -> tuple:
@@ -199,7 +213,13 @@ def _evaluate(stack, value_sets, bands, needed, jobs):
 
 
 def _wavelength_um(point, transition) -> float | None:
-    """λ = hc/|E_f - E_i| [µm] from the design's state energies; None if a state is missing."""
+    """λ = hc/|E_f - E_i| [µm] from the design's state energies; None if a state is missing.
+
+    A depolarisation-shifted line (doped stack) takes the design's shifted wavelength.
+    """
+    if transition.name in {n for n, _, _ in point.bare_transitions}:
+        lam = point.wavelength(transition.name)
+        return lam if math.isfinite(lam) else None
     a, b = point.state_energy(transition.initial), point.state_energy(transition.final)
     if not (math.isfinite(a) and math.isfinite(b)) or a == b:
         return None
@@ -316,10 +336,15 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
         exact = solve_profile(prof, method="exact", transitions=True, tolerance_eV=tolerance_eV)
         semi = solve_profile(prof, method="semiclassical", transitions=False,
                              tolerance_eV=tolerance_eV)
+        if sc is not None:
+            exact = replace(exact, self_consistent=sc)
+        line = design_line(stack, transitions[0] if transitions else None, solution=exact)
         if transitions:
             chosen = select_transitions(exact.transitions, list(transitions))
         else:
-            chosen = default_transitions(exact)
+            rest = [t.name for t in default_transitions(exact) if t.name != line.transition]
+            chosen = select_transitions(exact.transitions, [line.transition] + rest)
+        chosen = shifted_transitions(exact, chosen)
         comparison = compare_methods(exact, semi)
         if sensitivity:
             sens, sens_notes = sensitivity_rows(stack, chosen)
@@ -335,4 +360,4 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
                       chosen=tuple(chosen), comparison=comparison, sensitivity=tuple(sens),
                       sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
                       created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
-                      tolerance_eV=tolerance_eV)
+                      tolerance_eV=tolerance_eV, line=line)

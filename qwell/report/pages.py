@@ -133,8 +133,11 @@ def diagram_blocks(data: ReportData) -> list:
                         color="0.25")]
 
     def draw(fig, rect):
-        draw_band_diagram(fig, data.profile, data.exact.levels, transitions=data.chosen, rect=rect)
+        draw_band_diagram(fig, data.profile, data.exact.levels, transitions=data.chosen, rect=rect,
+                          fermi_level_eV=data.fermi_level_eV)
 
+    if data.line is not None:
+        blocks.append(Paragraph("Reviewed " + data.line.headline() + "."))
     blocks.append(FigureBlock(470.0, draw))
     if data.chosen:
         rows = [[t.name, t.kind, _transition_energy_text(t), f"{t.wavelength_um:.5f}",
