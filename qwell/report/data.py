@@ -19,7 +19,7 @@ from dataclasses import dataclass, replace
 
 from .. import design
 from ..constants import HC_EV_UM
-from ..errors import QwellError, QwellWarning
+from ..errors import ParameterError, QwellError, QwellWarning
 from ..design.line import DesignLine, design_line
 from ..levels import Solution, compare_methods, prepare_profile, shifted_transitions, solve_profile
 from ..optics import Transition, select_transitions
@@ -338,12 +338,18 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
                              tolerance_eV=tolerance_eV)
         if sc is not None:
             exact = replace(exact, self_consistent=sc)
-        line = design_line(stack, transitions[0] if transitions else None, solution=exact)
+        try:
+            line = design_line(stack, transitions[0] if transitions else None, solution=exact)
+        except ParameterError:
+            if transitions or stack.declared_line is not None:
+                raise
+            line = None     # nothing to follow: the report says so
         if transitions:
             chosen = select_transitions(exact.transitions, list(transitions))
         else:
-            rest = [t.name for t in default_transitions(exact) if t.name != line.transition]
-            chosen = select_transitions(exact.transitions, [line.transition] + rest)
+            lead = [line.transition] if line is not None else []
+            rest = [t.name for t in default_transitions(exact) if t.name not in lead]
+            chosen = select_transitions(exact.transitions, lead + rest)
         chosen = shifted_transitions(exact, chosen)
         comparison = compare_methods(exact, semi)
         if sensitivity:
