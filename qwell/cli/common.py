@@ -52,8 +52,9 @@ def profile_and_charge(stack, *, quiet: bool):
     return prof, sc
 
 
-def print_self_consistent(sc) -> None:
-    """Iterations, residuals, Fermi level and occupied sheet densities, then a blank line."""
+def print_self_consistent(sc, blank: bool = True) -> None:
+    """Iterations, residuals, Fermi level and occupied sheet densities, then (``blank``) a
+    blank line."""
     ef = sc.fermi_level_eV
     print(f"self-consistent (Schrödinger–Poisson): {sc.iterations} iterations, residual "
           f"{sc.residual_meV:.3g} meV, charge residual {sc.charge_residual:.2g}, Fermi level "
@@ -61,7 +62,8 @@ def print_self_consistent(sc) -> None:
     occ = {k: v for k, v in sc.sheet_densities_cm2.items() if v > 0}
     if occ:
         print("sheet densities: " + ", ".join(f"{k} {v:.4g} cm⁻²" for k, v in occ.items()))
-    print()
+    if blank:
+        print()
 
 
 def print_json(obj) -> None:

@@ -185,7 +185,7 @@ def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions, line) -> 
     print(head + ")")
     sc = next(iter(sols.values())).self_consistent
     if sc is not None:
-        print_self_consistent(sc)
+        print_self_consistent(sc, blank=False)
     if len(sols) == 1:
         (m, sol), = sols.items()
         print_states(m, sol)

@@ -1,4 +1,4 @@
-"""Finite-difference BenDaniel–Duke eigen-solver (parabolic band-edge masses).
+"""Finite-difference BenDaniel–Duke eigen-solver (band-edge masses, or nonparabolic).
 
 The listed layers plus ``cladding_nm`` of each semi-infinite cladding are
 discretised with a uniform step; ``-hbar^2/2 d/dz (1/m) d/dz + V`` uses the
@@ -12,9 +12,10 @@ doublets of weakly coupled wells (:mod:`qwell.selfconsistent`).
 
 Model statements
 ----------------
-* Parabolic: the band-edge mass is used at every energy (no
-  nonparabolicity), so the energies differ from the exact solver's for a
-  nonparabolic band.
+* Parabolic by default: the band-edge mass is used at every energy.  With
+  ``nonparabolic=True`` each state uses the band's energy-dependent mass at
+  its own energy (the two-band model of :mod:`qwell.bands`, as the exact
+  solver), found as the fixed point ``E_k = k-th eigenvalue of H(E_k)``.
 * Only bound states (below the confinement limit); no quasi-bound resonances,
   no minibands.
 * The added claddings are closed by hard walls, which lifts states close to
@@ -57,19 +58,32 @@ DEFAULT_CLADDING_NM = 20.0
 DEFAULT_MAX_STATES = 10
 
 
-def _eigenpairs(band: Band, step_nm: float, cladding_nm: float, limit_eV: float,
-                count_inf: int = 10):
-    """Grid, eigenvalues (carrier scale, ascending) and grid-normalised eigenvectors."""
+def _grid(band: Band, step_nm: float, cladding_nm: float):
+    """Interior nodes, step and mid-points of the grid."""
     z0, z1 = band.z_start_nm - cladding_nm, band.z_end_nm + cladding_nm
     n = max(8, int(math.ceil((z1 - z0) / step_nm)))
     h = (z1 - z0) / n
     z = z0 + h * np.arange(1, n)                 # interior nodes (psi = 0 at z0, z1)
     zm = z0 + h * (np.arange(n) + 0.5)           # mid-points, one more than nodes
+    return z, h, zm
+
+
+def _matrix(band: Band, z, h, zm, energy_eV=None):
+    """Diagonal, off-diagonal, kept nodes (None: all) and V_min of the tridiagonal problem.
+
+    With ``energy_eV`` (carrier scale) the mass is the band's energy-dependent
+    mass at that energy (:meth:`Band.mass`), else the band-edge mass.
+    """
     c = HBAR2_2M0_EV_NM2
     # a node or mid-point that falls exactly on an interface takes the mean of both sides
     # (otherwise the piece look-up would favour one side and break mirror symmetry)
     d = 1e-9 * h
-    inv_m = 0.5 * (1.0 / band.edge_mass(zm - d) + 1.0 / band.edge_mass(zm + d))
+    if energy_eV is None:
+        inv_m = 0.5 * (1.0 / band.edge_mass(zm - d) + 1.0 / band.edge_mass(zm + d))
+    else:
+        with np.errstate(invalid="ignore"):
+            inv_m = 0.5 * (1.0 / band.mass(zm - d, energy_eV) + 1.0 / band.mass(zm + d, energy_eV))
+        inv_m = np.where(np.isfinite(inv_m), inv_m, 0.0)
     with np.errstate(invalid="ignore"):
         v_node = 0.5 * (band.potential(z - d) + band.potential(z + d))
     finite = np.isfinite(v_node)
@@ -84,6 +98,18 @@ def _eigenpairs(band: Band, step_nm: float, cladding_nm: float, limit_eV: float,
     else:
         keep = None
     v_min = float(np.min(v_node[finite])) if np.any(finite) else math.inf
+    return diag, off, keep, v_min
+
+
+def _eigenpairs(band: Band, step_nm: float, cladding_nm: float, limit_eV: float,
+                count_inf: int = 10, nonparabolic: bool = False):
+    """Grid, eigenvalues (carrier scale, ascending) and grid-normalised eigenvectors.
+
+    With ``nonparabolic`` (and a nonparabolic band) each state k is the fixed
+    point ``E_k = k-th eigenvalue of H(E_k)``, H built with the mass m(z, E_k).
+    """
+    z, h, zm = _grid(band, step_nm, cladding_nm)
+    diag, off, keep, v_min = _matrix(band, z, h, zm)
     if not limit_eV > v_min:
         return z, h, np.empty(0), np.empty((z.size, 0))
     if math.isfinite(limit_eV):
@@ -92,11 +118,43 @@ def _eigenpairs(band: Band, step_nm: float, cladding_nm: float, limit_eV: float,
         # hard walls on both sides: every state is bound; take the lowest count_inf
         w, v = eigh_tridiagonal(diag, off, select="i",
                                 select_range=(0, min(count_inf, diag.size) - 1))
+    if nonparabolic and band.nonparabolic and w.size:
+        w, v = _nonparabolic_pairs(band, z, h, zm, w, v)
     if keep is not None:
         full = np.zeros((z.size, w.size))
         full[keep] = v
         v = full
     return z, h, w, v
+
+
+#: Energy convergence of the nonparabolic fixed point [eV].
+_NONPARABOLIC_TOL_EV = 1e-11
+
+
+def _nonparabolic_pairs(band: Band, z, h, zm, w0, v0):
+    """Eigenpairs with the energy-dependent mass: secant iteration on E - E_k(H(E))."""
+    w = np.empty_like(w0)
+    v = np.empty_like(v0)
+    for k in range(w0.size):
+        def kth(e):
+            diag, off, _, _ = _matrix(band, z, h, zm, e)
+            wk, vk = eigh_tridiagonal(diag, off, select="i", select_range=(k, k))
+            return float(wk[0]), vk[:, 0]
+        e0 = float(w0[k])
+        e1, vec = kth(e0)
+        g0 = e1 - e0
+        for _ in range(60):
+            e2, vec = kth(e1)
+            g1 = e2 - e1
+            if abs(g1) <= _NONPARABOLIC_TOL_EV:
+                e1 = e2
+                break
+            # secant step on g(E) = E_k(H(E)) - E (plain fixed-point step when flat)
+            e_new = e1 - g1 * (e1 - e0) / (g1 - g0) if g1 != g0 else e2
+            e0, g0, e1 = e1, g1, e_new
+        w[k] = e1
+        v[:, k] = vec
+    return w, v
 
 
 def _layer_probability(band: Band, z: np.ndarray, p: np.ndarray, h: float) -> tuple:
@@ -112,7 +170,8 @@ def solve_finite_difference(band: Band, *, tolerance_eV: float = 1e-7,
                             max_energy_eV: float | None = None,
                             cladding_nm: float = DEFAULT_CLADDING_NM,
                             wavefunctions: bool = True,
-                            error_estimate: bool = True) -> Levels:
+                            error_estimate: bool = True,
+                            nonparabolic: bool = False) -> Levels:
     """Bound states of ``band`` from the finite-difference eigenproblem.
 
     Parameters
@@ -141,6 +200,11 @@ def solve_finite_difference(band: Band, *, tolerance_eV: float = 1e-7,
         where only the self-consistent potential matters and the final states
         come from another solver) each state carries the requested tolerance,
         unverified, and says so in its ``message``.
+    nonparabolic : bool
+        Use the band's energy-dependent mass (:meth:`Band.mass`, two-band
+        model) for each state at its own energy, as the exact solver does;
+        default False (band-edge masses).  Each state is the self-consistent
+        root of ``E = E_k(H(E))`` (secant iteration to 1e-11 eV).
 
     Returns
     -------
@@ -167,14 +231,15 @@ def solve_finite_difference(band: Band, *, tolerance_eV: float = 1e-7,
     if max_energy_eV is not None:
         limit = min(limit, float(max_energy_eV))
     count = max_states if max_states is not None else DEFAULT_MAX_STATES
-    z, h, w, v = _eigenpairs(band, grid_step_nm, cladding_nm, limit, count)
+    z, h, w, v = _eigenpairs(band, grid_step_nm, cladding_nm, limit, count, nonparabolic)
     if max_states is not None:
         w, v = w[:max_states], v[:, :max_states]
     err = np.full(w.size, float(tolerance_eV))
     if error_estimate and w.size:
         # coarse window a little wider: a state just below the limit at h may lie above it at 2h
         _, _, w2, _ = _eigenpairs(band, 2.0 * grid_step_nm, cladding_nm,
-                                  limit + max(1e-3, 0.1 * (limit - float(w[0]))), w.size)
+                                  limit + max(1e-3, 0.1 * (limit - float(w[0]))), w.size,
+                                  nonparabolic)
         k = min(w.size, w2.size)
         err = np.full(w.size, math.inf)
         err[:k] = np.abs(w[:k] - w2[:k])
