@@ -107,9 +107,8 @@ def default_line(solution) -> tuple[str, str]:
              if t.kind == "interband" and (t.overlap or 0.0) >= ALLOWED_OVERLAP]
     if inter:
         low = min(inter, key=lambda t: (round(t.energy_eV, 9), -strength(t)))
-        hole = low.final
-        which = ("light holes lie highest (tensile well)" if hole.startswith("lh")
-                 else "heavy holes lie highest (compressive or unstrained well)")
+        which = ("light holes lie highest (lh1 above hh1: a tensile well)"
+                 if low.final.startswith("lh") else "heavy holes lie highest (hh1 above lh1)")
         return low.name, f"default: the lowest-energy allowed interband line; {which}"
     if "e1-e2" in names:
         return "e1-e2", "default: the lowest intersubband line (e2 not bound)"
