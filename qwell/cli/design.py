@@ -8,6 +8,7 @@ stderr, exit status 2.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from pathlib import Path
 
@@ -122,6 +123,7 @@ def cmd_size(args) -> int:
     line = design_line(stack, args.transition, check=False)
     if args.target is not None:
         target = spectral_to_eV(args.target)
+        line = dataclasses.replace(line, target_eV=target, target_text=f"{args.target} (--target)")
     elif line.target_eV is not None:
         target = line.target_eV
     else:
