@@ -34,7 +34,7 @@ from scipy.interpolate import CubicSpline
 from .bands import BAND_NAMES, Band, Piece, RepeatInfo
 from .errors import MaterialError, StackError
 from .materials import get_material, grade_function
-from .strain import critical_thickness_nm, strain as _strain
+from .strain import critical_thickness_nm, critical_thickness_of_misfit_nm, strain as _strain
 
 __all__ = ["LayerProfile", "Profile", "band_profile", "FIELD_EV_PER_NM_PER_KV_CM"]
 
@@ -392,7 +392,10 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
                     hc = min(critical_thickness_nm(m, substrate_mat, capped=capped) for m in mats)
                 except (TypeError, ValueError, MaterialError):
                     hc = math.inf
-                if layer.thickness_nm > hc:
+                # the first and last layers are the semi-infinite claddings (substrate side
+                # and cap), not strained layers of finite thickness: no relaxation warning
+                cladding = layer.index in (0, len(stack.layers) - 1) and len(stack.layers) > 1
+                if layer.thickness_nm > hc and not cladding:
                     lw.append(f"thicker ({layer.thickness_nm:.3g} nm) than its Matthews–Blakeslee "
                               f"critical thickness ({hc:.3g} nm): it may relax by misfit dislocations")
         for m in mats:
@@ -485,30 +488,106 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
                     f"layers {', '.join(labels[:6])}{' …' if len(labels) > 6 else ''}: {msg}")
                    for msg, labels in grouped.items())
     prof = replace(prof, warnings=merged)
-    extra = _offset_warnings(prof, families)
+    extra = _offset_warnings(prof, families) + _net_strain_warnings(stack, prof, substrate_mat)
     if extra:
         prof = replace(prof, warnings=prof.warnings + tuple(extra))
     return prof
 
 
+#: Families of pairs whose interpolated offset split is known to disagree with measurements.
+_OFFSET_CAUTION_PAIRS = {
+    frozenset({"InGaAs", "GaAs"}): "measurements on InGaAs/GaAs give about 60-70 %",
+    frozenset({"InGaAs", "InGaAsP"}): "measured splits of InGaAs/InGaAsP differ from the "
+                                     "interpolated ones",
+    frozenset({"InGaAsP", "InP"}): "measured splits of InGaAsP/InP differ from the "
+                                  "interpolated ones",
+    frozenset({"InGaAs", "InP"}): "measured splits of InGaAs/InP differ from the "
+                                 "interpolated ones",
+}
+
+
 def _offset_warnings(prof: Profile, families: list) -> list[str]:
-    """Flag the known InGaAs/GaAs offset-split problem of interpolated tables.
+    """Offset cautions at interfaces: type-II or broken-gap alignment, and the pairs whose
+    interpolated offset split is known to disagree with measurements.
 
     The valence-offset bowing of InGaAs in interpolated tables puts only about
     a third of the In(x)Ga(1-x)As/GaAs offset in the conduction band, while
     measurements give roughly 60-70 % (physics notes of this project; e.g.
-    Huang et al., Appl. Phys. Lett. (1989), from memory).  Users can override
-    ``conduction_edge`` per layer.
+    Huang et al., Appl. Phys. Lett. (1989), from memory); the phosphide pairs
+    (InGaAs/InGaAsP, InGaAsP/InP) are the other common case (common practice,
+    no source).  Users can override ``conduction_edge`` per layer.  A
+    conduction share outside 0-100 % is a type-II (staggered) alignment; a
+    conduction edge on one side below the valence edge on the other is a
+    broken gap (type III): a single-band envelope model does not hold there.
     """
     out = []
+    named = {}
+    seen_pairs = set()
     for o in prof.band_offsets():
         i = next(lp.index for lp in prof.layers if lp.label == o["left"])
-        pair = {families[i], families[i + 1]}
-        if pair == {"InGaAs", "GaAs"} and o["conduction_share"] is not None \
-                and 0 < o["conduction_share"] < 0.5:
-            out.append(f"interface {o['left']} | {o['right']}: the tables put only "
-                       f"{100 * o['conduction_share']:.0f} % of the offset in the conduction band; "
-                       "measurements on InGaAs/GaAs give about 60-70 % — check it, and override "
-                       "conduction_edge on the layer if your design depends on it")
-            break
+        pair = frozenset({families[i], families[i + 1]})
+        share = o["conduction_share"]
+        where = f"interface {o['left']} | {o['right']}"
+        ia = prof.layer_samples(i)
+        ib = prof.layer_samples(i + 1)
+        top = np.fmax(prof.heavy_hole_edge_eV, prof.light_hole_edge_eV)
+        ec_a, ec_b = prof.conduction_edge_eV[ia][-1], prof.conduction_edge_eV[ib][0]
+        ev_a, ev_b = top[ia][-1], top[ib][0]
+        if np.isfinite(ev_a) and np.isfinite(ev_b) and (ec_a < ev_b or ec_b < ev_a):
+            out.append(f"{where}: broken-gap (type-III) alignment — the conduction edge on one "
+                       "side lies below the valence edge on the other; a single-band envelope "
+                       "model does not hold there")
+            continue
+        if share is not None and not 0.0 <= share <= 1.0:
+            named.setdefault(f"{where}: type-II (staggered) alignment, conduction share "
+                             f"{100 * share:.0f} % (outside 0-100 %): electrons and holes are "
+                             "confined on opposite sides, so interband lines are spatially "
+                             "indirect and weak", None)
+            continue
+        note = _OFFSET_CAUTION_PAIRS.get(pair)
+        if note and share is not None and 0 < share < 1 and pair not in seen_pairs:
+            if pair == frozenset({"InGaAs", "GaAs"}) and not share < 0.5:
+                continue
+            seen_pairs.add(pair)
+            a, b = sorted(pair, key=len, reverse=True)
+            out.append(f"{where}: the tables put {100 * share:.0f} % of the {a}/{b} offset in "
+                       f"the conduction band; {note} — check it, and override conduction_edge "
+                       "on the layer if your design depends on it")
+    return list(named) + out
+
+
+def _net_strain_warnings(stack, prof: Profile, substrate_mat) -> list[str]:
+    """Period-averaged strain of each strain-compensated repeat block, and whether it relaxes.
+
+    A block whose layers are strained both ways is stable when its net
+    (thickness-weighted) in-plane strain stays below the Matthews-Blakeslee
+    balance for the block's whole thickness taken as one layer (common practice,
+    no source); the warning gives the average and the two thicknesses.
+    """
+    out = []
+    if substrate_mat is None or substrate_mat.lattice_constant_nm is None:
+        return out
+    for r in stack.repeats:
+        lps = prof.layers[r.first_layer:r.first_layer + r.layers_per_period]
+        eps = np.array([lp.strain_xx for lp in lps])
+        t = np.array([lp.end_nm - lp.start_nm for lp in lps])
+        if not (np.any(eps > 1e-6) and np.any(eps < -1e-6)) or not t.sum() > 0:
+            continue
+        avg = float(np.sum(eps * t) / np.sum(t))
+        total = float(t.sum()) * r.count
+        try:
+            nus = [stack.material_of(stack.layers[lp.index]) for lp in lps]
+            nu = float(np.sum(t * np.array([m.c12_GPa / (m.c11_GPa + m.c12_GPa) for m in nus]))
+                       / t.sum())
+            capped = r.first_layer + r.layers_per_period * r.count < len(stack.layers)
+            hc = critical_thickness_of_misfit_nm(avg, substrate_mat.lattice_constant_nm, nu,
+                                                 capped=capped)
+        except (TypeError, ValueError, MaterialError, StackError):
+            continue
+        if total > hc:
+            names = ", ".join(lp.label for lp in lps)
+            out.append(f"strain-compensated repeat ({names}) x {r.count}: period-averaged "
+                       f"in-plane strain {100 * avg:+.3f} %; the block ({total:.4g} nm) is "
+                       f"thicker than the Matthews–Blakeslee critical thickness of that net strain "
+                       f"({hc:.4g} nm): it may relax")
     return out

@@ -183,6 +183,32 @@ def critical_thickness_nm(material: Material, substrate: Material, *, capped: bo
     if f < LATTICE_MATCH_TOLERANCE:
         return math.inf
     nu = material.c12_GPa / (material.c11_GPa + material.c12_GPa)
+    try:
+        return critical_thickness_of_misfit_nm(f, a, nu, capped=capped)
+    except ValueError:
+        raise MaterialError(
+            f"critical thickness of {material.name} on {substrate.name}: misfit {f:.3%} too "
+            "large for the Matthews-Blakeslee balance (no solution above one Burgers vector)"
+        ) from None
+
+
+def critical_thickness_of_misfit_nm(f: float, a_nm: float, nu: float, *,
+                                    capped: bool = False) -> float:
+    """Matthews-Blakeslee critical thickness [nm] for a misfit strain ``f`` (see
+    :func:`critical_thickness_nm`): lattice constant ``a_nm`` [nm] and Poisson ratio ``nu``.
+
+    Used as well for the net (period-averaged) strain of a strain-compensated
+    multilayer taken as one layer.
+
+    Raises
+    ------
+    ValueError
+        A misfit too large for a root above one Burgers vector.
+    """
+    f = abs(f)
+    if f < LATTICE_MATCH_TOLERANCE:
+        return math.inf
+    a = a_nm
     b = a / math.sqrt(2.0)
     cos_alpha = math.cos(math.radians(60.0))
     cos_lambda = math.cos(math.radians(60.0))
@@ -191,9 +217,7 @@ def critical_thickness_nm(material: Material, substrate: Material, *, capped: bo
         A *= 2.0
     k = A / b            # u = h/b solves u = k (ln u + 1)
     if k < 1.0:
-        raise MaterialError(
-            f"critical thickness of {material.name} on {substrate.name}: misfit {f:.3%} too "
-            "large for the Matthews-Blakeslee balance (no solution above one Burgers vector)")
+        raise ValueError(f"misfit {f:.3%} too large for the Matthews-Blakeslee balance")
     if k == 1.0:
         return b
 

@@ -14,9 +14,11 @@ from dataclasses import replace
 import numpy as np
 
 from ..levels import prepare_profile
+from ..profile import band_profile
 from ..stack import load_stack
 
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
+           "print_warnings", "print_stack_warnings",
            "table", "fmt", "unit_text", "add_self_consistent_option"]
 
 #: Exit status of every user error (bad input, bad option).
@@ -64,6 +66,17 @@ def print_self_consistent(sc, blank: bool = True) -> None:
         print("sheet densities: " + ", ".join(f"{k} {v:.4g} cm⁻²" for k, v in occ.items()))
     if blank:
         print()
+
+
+def print_warnings(messages) -> None:
+    """Model warnings of a profile: on stderr, each once, in the order given."""
+    for w in dict.fromkeys(messages):
+        print(f"warning: {w}", file=sys.stderr)
+
+
+def print_stack_warnings(stack) -> None:
+    """The flat-band profile's warnings of a stack (strain, offsets) on stderr, each once."""
+    print_warnings(band_profile(stack).warnings)
 
 
 def print_json(obj) -> None:

@@ -21,7 +21,8 @@ from ..errors import ParameterError, QwellError
 from ..fileio import atomic_write_text
 from ..stack import dump_stack_yaml
 from ..units import spectral_to_eV
-from .common import add_self_consistent_option, fmt, load, print_json, table, unit_text
+from .common import (add_self_consistent_option, fmt, load, print_json, print_stack_warnings,
+                     table, unit_text)
 from .json_out import size_json, sweep_json, tolerance_json
 
 __all__ = ["register", "cmd_size", "cmd_sweep", "cmd_tolerance"]
@@ -119,6 +120,7 @@ def _parallel_kw(args) -> dict:
 def cmd_size(args) -> int:
     """Run ``qwell size``; returns the exit status."""
     stack = load(args.stack, args.self_consistent)
+    print_stack_warnings(stack)
     p = get_parameter(stack, args.vary)
     line = design_line(stack, args.transition, check=False)
     if args.target is not None:
@@ -222,6 +224,7 @@ def _sweep_axes(stack, args) -> list:
 def cmd_sweep(args) -> int:
     """Run ``qwell sweep``; returns the exit status."""
     stack = load(args.stack, args.self_consistent)
+    print_stack_warnings(stack)
     axes = _sweep_axes(stack, args)
     (p1, v1) = axes[0]
     p2, v2 = (axes[1] if len(axes) > 1 else (None, None))
@@ -322,6 +325,7 @@ def _extra_tolerances(items) -> dict:
 def cmd_tolerance(args) -> int:
     """Run ``qwell tolerance``; returns the exit status."""
     stack = load(args.stack, args.self_consistent)
+    print_stack_warnings(stack)
     thick = _split_assignments(args.thickness, "--thickness") if args.thickness else {"*": "1 ML"}
     comp = (_split_assignments(args.composition, "--composition") if args.composition
             else {"*": "0.01"})

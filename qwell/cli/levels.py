@@ -9,6 +9,7 @@ from ..errors import QwellError
 from ..levels import compare_methods, depolarised_lines, shifted_transitions, solve_profile
 from ..optics import plot_spectrum, select_transitions, spectrum, strength
 from .common import (add_self_consistent_option, load, print_json, print_self_consistent,
+                     print_warnings,
                      profile_and_charge, table)
 from .json_out import levels_json
 
@@ -197,8 +198,7 @@ def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions, line) -> 
     print_transitions(trans, show_all=bool(opts.transitions), line=line.transition)
     if "exact" in sols:
         print_depolarisation(sols["exact"], trans, line=line.transition)
-    for w in next(iter(sols.values())).profile.warnings:
-        print(f"warning: {w}")
+    print_warnings(next(iter(sols.values())).profile.warnings)
     if opts.png:
         print(f"wrote {opts.png}")
 

@@ -32,8 +32,8 @@ def cmd_materials(args) -> int:
                 print(f"  {n}")
         return 0
     temperature_K = to_float(args.temperature, "K", "a temperature (e.g. '300 K')")
-    if temperature_K <= 0:
-        raise QwellError(f"--temperature {args.temperature!r}: must be above 0 K")
+    if not temperature_K >= 0:    # the published tables are at 0 K: 0 K is allowed
+        raise QwellError(f"--temperature {args.temperature!r}: must be 0 K or above")
     mat = get_material(args.name, temperature_K)
     if args.json:
         print_json(material_json(mat, temperature_K))

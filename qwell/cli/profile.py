@@ -7,7 +7,8 @@ import math
 import numpy as np
 
 from ..plots import plot_profile
-from .common import add_self_consistent_option, load, print_json, profile_and_charge, table
+from .common import (add_self_consistent_option, load, print_json, print_warnings,
+                     profile_and_charge, table)
 from .json_out import profile_json
 
 __all__ = ["register", "cmd_profile"]
@@ -85,5 +86,4 @@ def print_profile(stack, prof) -> None:
                 for lp in strained]
         print(table(rows, ["layer", "eps_xx %", "eps_zz %", "δEc meV", "δEhh meV", "δElh meV",
                            "h_c nm"], ["<", ">", ">", ">", ">", ">", ">"]))
-    for w in prof.warnings:
-        print(f"warning: {w}")
+    print_warnings(prof.warnings)

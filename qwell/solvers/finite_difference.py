@@ -136,7 +136,7 @@ def _nonparabolic_pairs(band: Band, z, h, zm, w0, v0):
     w = np.empty_like(w0)
     v = np.empty_like(v0)
     for k in range(w0.size):
-        def kth(e):
+        def kth(e, k=k):
             diag, off, _, _ = _matrix(band, z, h, zm, e)
             wk, vk = eigh_tridiagonal(diag, off, select="i", select_range=(k, k))
             return float(wk[0]), vk[:, 0]
