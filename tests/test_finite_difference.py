@@ -70,3 +70,40 @@ def test_hole_band_sign_window_and_options():
         solve_finite_difference(band, grid_step_nm=0.0)
     with pytest.raises(ParameterError, match="tolerance_eV"):
         solve_finite_difference(band, tolerance_eV=0.0)
+
+
+def test_nonparabolic_finite_well_meets_the_closed_form():
+    # BenDaniel-Duke matching of a symmetric square well with the two-band energy-dependent
+    # mass m(E) = m (1 + (E - V)/Eg) (Nelson, Miller, Kleinman, Phys. Rev. B 35, 7770 (1987)):
+    # even states satisfy k tan(k L/2) / m_w(E) = kappa / m_b(E), k = sqrt(2 m_w E)/hbar,
+    # kappa = sqrt(2 m_b (V - E))/hbar; solved here with scipy.optimize.brentq.
+    import math
+
+    from scipy.constants import e, hbar, m_e
+    from scipy.optimize import brentq
+
+    from qwell.bands import band_from_layers
+    from qwell.solvers.finite_difference import solve_finite_difference
+
+    v, length, mw, mb, gw, gb = 0.25, 8.0, 0.067, 0.092, 1.52, 1.80
+    band = band_from_layers([(30, v, mb, gb), (length, 0.0, mw, gw), (30, v, mb, gb)],
+                            nonparabolic=True)
+
+    def mismatch(E):
+        m_w = mw * (1 + E / gw)
+        m_b = mb * (1 + (E - v) / gb)
+        k = math.sqrt(2 * m_w * m_e * E * e) / hbar * 1e-9          # nm^-1
+        kap = math.sqrt(2 * m_b * m_e * (v - E) * e) / hbar * 1e-9
+        return k * math.tan(k * length / 2) / m_w - kap / m_b
+
+    def half_phase(E):     # k(E) L/2 - pi/2: the ground state lies below its zero
+        m_w = mw * (1 + E / gw)
+        return math.sqrt(2 * m_w * m_e * E * e) / hbar * 1e-9 * length / 2 - math.pi / 2
+
+    e_hi = min(brentq(half_phase, 1e-9, 10.0) * (1 - 1e-9), v - 1e-9)
+    e1 = brentq(mismatch, 1e-6, e_hi, xtol=1e-14)
+    lev = solve_finite_difference(band, grid_step_nm=0.02, nonparabolic=True, tolerance_eV=1e-5)
+    assert lev["e1"].energy_eV == pytest.approx(e1, abs=max(2 * lev["e1"].tolerance_eV, 1e-6))
+    # the parabolic (band-edge mass) solve misses it by far more than the discretisation error
+    par = solve_finite_difference(band, grid_step_nm=0.02, tolerance_eV=1e-5)
+    assert abs(par["e1"].energy_eV - e1) > 100 * abs(lev["e1"].energy_eV - e1)
