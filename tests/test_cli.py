@@ -254,7 +254,8 @@ def test_sub_monolayer_layer_warns(capsys, tmp_path):
                  "  - {material: GaAs, thickness: 0.1 nm, name: sliver}\n"
                  "  - {material: Al0.30Ga0.70As, thickness: 10 nm}\n")
     rc, out, err = run(capsys, "profile", str(f))
-    assert rc == 0 and "sliver: thinner (0.1 nm) than one monolayer" in out
+    assert rc == 0 and "sliver: thinner (0.1 nm) than one monolayer" in err   # stderr only
+    assert "warning:" not in out
 
 
 def test_hole_intersubband_on_request(capsys):

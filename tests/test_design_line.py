@@ -372,3 +372,20 @@ layers:
     avg = (6 * prof.layers[1].strain_xx + 3 * prof.layers[2].strain_xx) / 9
     assert f"{100 * avg:+.3f} %" in ws[0] and "360 nm" in ws[0]
     assert eps
+
+
+def test_offset_caution_covers_ingaas_ingaasp():
+    from qwell.profile import band_profile
+    # the interpolated split of InGaAs/InGaAsP is a known disagreement with measurements
+    # (common practice, no source): the caution names the pair and the tables' share
+    st = stack_from_text("""substrate: InP
+layers:
+  - {material: In0.72Ga0.28As0.61P0.39, thickness: 20 nm, name: lower}
+  - {material: In0.53Ga0.47As, thickness: 6 nm, name: well}
+  - {material: In0.72Ga0.28As0.61P0.39, thickness: 20 nm, name: upper}
+""", "q.yaml")
+    prof = band_profile(st)
+    share = prof.band_offsets()[0]["conduction_share"]
+    ws = [w for w in prof.warnings if "InGaAsP/InGaAs offset" in w]
+    assert 0 < share < 1 and len(ws) == 1
+    assert f"{100 * share:.0f} %" in ws[0] and "interface lower | well" in ws[0]
