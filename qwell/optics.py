@@ -191,27 +191,6 @@ class Transition:
         """Alias of :attr:`strongest` (Δn = 0 interband lines)."""
         return self.strongest
 
-    def to_json(self) -> dict:
-        """Plain dictionary (JSON contract keys); None becomes null."""
-        def _f(x):
-            return None if x is None else float(x)
-
-        return {
-            "from": self.initial,
-            "to": self.final,
-            "kind": self.kind,
-            "energy_eV": float(self.energy_eV),
-            "wavelength_um": float(self.wavelength_um),
-            "wavenumber_cm1": float(self.wavenumber_cm1),
-            "frequency_THz": float(self.frequency_THz),
-            "dipole_nm": _f(self.dipole_nm),
-            "oscillator_strength": _f(self.oscillator_strength),
-            "overlap": _f(self.overlap),
-            "te": _f(self.te),
-            "tm": _f(self.tm),
-            "strongest": bool(self.strongest),
-        }
-
 
 @dataclass(frozen=True)
 class MatrixElements:

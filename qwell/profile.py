@@ -94,17 +94,6 @@ class LayerProfile:
     def thickness_nm(self) -> float:
         return self.end_nm - self.start_nm
 
-    def to_json(self) -> dict:
-        return {"name": self.label, "material": self.material, "start_nm": self.start_nm,
-                "end_nm": self.end_nm, "thickness_nm": self.thickness_nm,
-                "strain_xx": self.strain_xx, "strain_zz": self.strain_zz,
-                "strain_shift_conduction_eV": self.strain_shift_conduction_eV,
-                "strain_shift_heavy_hole_eV": self.strain_shift_heavy_hole_eV,
-                "strain_shift_light_hole_eV": self.strain_shift_light_hole_eV,
-                "critical_thickness_nm": (None if math.isinf(self.critical_thickness_nm)
-                                          else self.critical_thickness_nm),
-                "warnings": list(self.warnings)}
-
 
 @dataclass(frozen=True)
 class Profile:
@@ -185,26 +174,6 @@ class Profile:
                         "delta_conduction_eV": dec, "delta_valence_eV": dev,
                         "conduction_share": share})
         return out
-
-    def to_json(self) -> dict:
-        def arr(a):
-            return [None if not np.isfinite(v) else round(float(v), 9) for v in a]
-        return {
-            "stack": self.stack.name,
-            "temperature_K": self.stack.temperature_K,
-            "field_kV_per_cm": self.stack.field_kV_per_cm,
-            "substrate": self.stack.substrate,
-            "z_nm": arr(self.z_nm),
-            "conduction_edge_eV": arr(self.conduction_edge_eV),
-            "heavy_hole_edge_eV": arr(self.heavy_hole_edge_eV),
-            "light_hole_edge_eV": arr(self.light_hole_edge_eV),
-            "electron_mass": arr(self.electron_mass),
-            "heavy_hole_mass": arr(self.heavy_hole_mass),
-            "light_hole_mass": arr(self.light_hole_mass),
-            "layers": [lay.to_json() for lay in self.layers],
-            "band_offsets": self.band_offsets(),
-            "warnings": list(self.warnings),
-        }
 
 
 # ---------------------------------------------------------------------------

@@ -86,21 +86,6 @@ class SizeResult:
         """(E - E_target) / E_target."""
         return (self.energy_eV - self.target_energy_eV) / self.target_energy_eV
 
-    def to_json(self) -> dict:
-        def f(v):
-            return None if v is None or not math.isfinite(v) else float(v)
-        return {
-            "parameter": self.parameter, "unit": self.unit, "value": self.value,
-            "wavelength_um": f(self.wavelength_um), "energy_eV": f(self.energy_eV),
-            "monolayer_options": [{"monolayers": o.monolayers, "thickness_nm": o.thickness_nm,
-                                   "wavelength_um": f(o.wavelength_um)}
-                                  for o in self.monolayer_options],
-            "transition": self.transition, "target_energy_eV": self.target_energy_eV,
-            "target_wavelength_um": self.target_wavelength_um,
-            "relative_error": f(self.relative_error), "bracket": list(self.bracket),
-            "evaluations": self.evaluations, "notes": list(self.notes),
-        }
-
 
 def _default_bounds(p: Parameter) -> tuple[float, float]:
     v = p.value

@@ -78,40 +78,6 @@ class SweepResult:
         """The design point at a grid index (``i`` or ``i, j``)."""
         return self.points[int(np.ravel_multi_index(index, self.shape))]
 
-    def to_json(self) -> dict:
-        def lst(a):
-            a = np.asarray(a, dtype=float)
-            return np.where(np.isfinite(a), a, np.nan).tolist()
-
-        def nulls(o):
-            if isinstance(o, float) and not math.isfinite(o):
-                return None
-            if isinstance(o, list):
-                return [nulls(v) for v in o]
-            return o
-
-        one = len(self.parameters) == 1
-        states = {lab: nulls(lst(self.state_energy_eV[lab])) for lab in self.state_labels}
-        bound = {lab: np.asarray(self.state_bound[lab]).tolist() for lab in self.state_labels}
-        trans = {}
-        for t in self.transitions:
-            sens = {p: nulls(lst(self.sensitivity[t][p])) for p in self.parameters}
-            trans[t] = {"energy_eV": nulls(lst(self.energy_eV[t])),
-                        "wavelength_um": nulls(lst(self.wavelength_um[t])),
-                        "sensitivity_nm_per_unit": sens[self.parameters[0]] if one else sens}
-        return {
-            "parameter": self.parameters[0] if one else list(self.parameters),
-            "unit": self.units[0] if one else list(self.units),
-            "values": lst(self.values[0]) if one else [lst(v) for v in self.values],
-            "states": states,
-            "bound": bound,
-            "transitions": trans,
-            "sensitivity_unit": (self.sensitivity_units[self.parameters[0]] if one
-                                 else dict(self.sensitivity_units)),
-            "sensitivity_method": self.sensitivity_method,
-            "notes": list(self.notes),
-        }
-
     def to_csv(self) -> str:
         """One row per grid point: parameters, state energies, transitions."""
         grids = np.meshgrid(*self.values, indexing="ij")

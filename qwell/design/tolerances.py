@@ -123,35 +123,6 @@ class ToleranceResult:
     monte_carlo: MonteCarloSummary | None = None
     notes: tuple = ()
 
-    def to_json(self) -> dict:
-        def f(v):
-            return None if v is None or not math.isfinite(v) else float(v)
-        mc = None
-        if self.monte_carlo is not None:
-            m = self.monte_carlo
-            mc = {"samples": m.samples, "valid": m.valid, "distribution": m.distribution,
-                  "sigma": ("tolerance = 1 sigma" if m.distribution == "normal"
-                            else "uniform on ±tolerance"),
-                  "seed": m.seed, "mean_um": f(m.mean_um), "std_nm": f(m.std_nm),
-                  "percentiles_um": {str(k): f(v) for k, v in m.percentiles_um.items()},
-                  "clipped": m.clipped}
-        return {
-            "transition": self.transition,
-            "nominal": {"energy_eV": f(self.nominal_energy_eV),
-                        "wavelength_um": f(self.nominal_wavelength_um)},
-            "contributions": [{"parameter": c.parameter, "unit": c.unit, "value": c.value,
-                               "delta": c.delta, "spec": c.spec,
-                               "wavelength_plus_um": f(c.wavelength_plus_um),
-                               "wavelength_minus_um": f(c.wavelength_minus_um),
-                               "contribution_nm": f(c.contribution_nm)}
-                              for c in self.contributions],
-            "worst_case": {"sum_nm": f(self.worst_case_nm), "corner_min_um": f(self.corner_min_um),
-                           "corner_max_um": f(self.corner_max_um)},
-            "rss_nm": f(self.rss_nm),
-            "monte_carlo": mc,
-            "notes": list(self.notes),
-        }
-
 
 def parse_parameter_value(p: Parameter, value, *, delta: bool = False) -> float:
     """A value (or tolerance) for ``p`` from text with units, a number or a Quantity.
