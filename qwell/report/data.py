@@ -209,16 +209,12 @@ def _wavelength_um(point, transition) -> float | None:
 def sensitivity_rows(stack, chosen, *, composition_step: float = 0.01, jobs=None):
     """Wavelength change of each chosen transition per layer thickness (±1 ML) and composition.
 
-    Every layer parameter of :func:`qwell.design.parameters` (the paths of
-    ``qwell tolerance``) is changed alone and the designs are solved by the
-    design engine, :func:`qwell.design.evaluate_many` (exact solver,
-    tolerance :data:`REPORT_TOLERANCE_EV`, in parallel where it pays).  A
-    named layer inside a repeat changes in every period.  Wavelengths come
-    from the state energies, ``λ = hc/|E_f - E_i|``.  Thickness steps are one
-    monolayer (a/2 of the layer's material); layers without a lattice
-    constant, and compositions of graded layers and user materials, are
-    skipped (with a note); a composition at the end of [0, 1] is changed on
-    one side only.
+    The rows come from the design engine's one-at-a-time sensitivities,
+    :func:`qwell.design.sensitivities` (the paths of ``qwell tolerance``, solved
+    by :func:`qwell.design.evaluate_many` at :data:`REPORT_TOLERANCE_EV`, in
+    parallel where it pays); this function only words them for the page.  A
+    named layer inside a repeat changes in every period.  Shifts below
+    5e-4 nm print as 0.00 and are stored as 0.
 
     Parameters
     ----------
@@ -237,54 +233,42 @@ def sensitivity_rows(stack, chosen, *, composition_step: float = 0.01, jobs=None
     chosen = tuple(chosen)
     if not chosen:
         return (), ("no transition chosen: no sensitivity computed",)
-    plan, notes = _sensitivity_plan(stack, composition_step)
-    names = [t.name for t in chosen]
-    bands = design.bands_for_transitions(names)
-    needed = tuple(dict.fromkeys(lab for t in chosen for lab in (t.initial, t.final)))
-    keys = [(j, sgn) for j, (*_, sides) in enumerate(plan) for sgn, _ in sides]
-    sets = [{}] + [values for *_, sides in plan for _, values in sides]
-    points = _evaluate(stack, sets, bands, needed, jobs)
-    base, results = points[0], dict(zip(keys, points[1:]))
-    for (j, sgn), r in results.items():
-        if isinstance(r, str):
-            label, pname, _step, text, _sides = plan[j]
-            notes.append(f"{label} {pname} {'+' if sgn > 0 else '−'}{text.lstrip('±')}: {r}")
+    res = design.sensitivities(stack, tuple(t.name for t in chosen), thickness_tol="1 ML",
+                               composition_tol=composition_step, jobs=jobs,
+                               tolerance_eV=REPORT_TOLERANCE_EV)
+    copies = {}
+    for L in stack.layers:
+        if L.name is not None:
+            copies[L.name] = copies.get(L.name, 0) + 1
+
+    def shown(v):
+        if not math.isfinite(v):
+            return None
+        return 0.0 if abs(v) < 5e-4 else float(v)
 
     rows = []
-    for t in chosen:
-        lam0 = None if isinstance(base, str) else _wavelength_um(base, t)
-        for j, (label, pname, step, text, _sides) in enumerate(plan):
-            shift = {}
-            note = ""
-            for sgn in (-1, 1):
-                r = results.get((j, sgn))
-                if r is None or isinstance(r, str):
-                    shift[sgn] = None
-                    continue
-                lam = _wavelength_um(r, t)
-                if lam is None or lam0 is None:
-                    shift[sgn] = None
-                    side = "+" if sgn > 0 else "−"
-                    note = (note + "; " if note else "") + f"{side}step: {t.name} not found " \
-                        "(a state left the well)"
-                else:
-                    d = 1e3 * (lam - lam0)
-                    shift[sgn] = 0.0 if abs(d) < 5e-4 else d
-            mi, pl = shift.get(-1), shift.get(1)
-            if mi is not None and pl is not None:
-                per = 0.5 * (pl - mi)
-            elif pl is not None:
-                per = pl
-                note = note or "one-sided (+ step only)"
-            elif mi is not None:
-                per = -mi
-                note = note or "one-sided (− step only)"
-            else:
-                per = None
-            rows.append(SensitivityRow(transition=t.name, layer=label, parameter=pname,
-                                       step=step, step_text=text, minus_nm=mi, plus_nm=pl,
-                                       per_unit_nm=per, note=note))
-    return tuple(rows), tuple(dict.fromkeys(notes))
+    for r in res.rows:
+        if r.kind not in ("thickness", "x", "y"):
+            continue
+        n = copies.get(r.layer, 1)
+        label = r.layer + (f" (×{n})" if n > 1 else "")
+        if r.kind == "thickness":
+            pname, text = "thickness", f"1 ML = {r.step:.4f} nm"
+        else:
+            pname, text = (f"{r.kind} ({r.family})" if r.family else r.kind), f"±{r.step:g}"
+        mi, pl = shown(r.minus_nm), shown(r.plus_nm)
+        if mi is not None and pl is not None:
+            per = 0.5 * (pl - mi)
+        elif pl is not None:
+            per = pl
+        elif mi is not None:
+            per = -mi
+        else:
+            per = None
+        rows.append(SensitivityRow(transition=r.transition, layer=label, parameter=pname,
+                                   step=r.step, step_text=text, minus_nm=mi, plus_nm=pl,
+                                   per_unit_nm=per, note=r.note))
+    return tuple(rows), tuple(dict.fromkeys(res.notes))
 
 
 # ---------------------------------------------------------------------------
