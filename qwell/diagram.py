@@ -698,3 +698,54 @@ def save_band_diagram(profile, levels, path, *, transitions=(), title=None, prot
     """Write the band diagram to ``path`` (PNG) atomically; returns the path."""
     data = band_diagram_png(profile, levels, transitions=transitions, title=title)
     return atomic_write_bytes(path, data, protect=protect)
+
+
+def plot_band_diagram(ax, solution, *, transitions=(), title=None, show_holes=None,
+                      fontsize: float = _FONT) -> DiagramInfo:
+    """Draw a solved stack's band diagram in the place of a caller's Axes.
+
+    The diagram may need two panels (conduction and valence bands with a broken
+    axis between them) and a label column, so it takes over the area of ``ax``:
+    ``ax`` is removed from its figure and the diagram's own axes fill its
+    position (returned in :attr:`DiagramInfo.axes`).
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Axes whose area the diagram fills; its figure must have a canvas with a
+        renderer (e.g. ``matplotlib.pyplot.subplots()`` or an Agg figure).
+    solution : qwell.levels.Solution
+        An exact solve with wavefunctions (:func:`qwell.solve_stack`).
+    transitions : sequence of str or qwell.optics.Transition
+        Lines drawn as arrows, by name (``'e1-e2'``) or as transitions of
+        ``solution``.
+    title : str, optional
+    show_holes : bool, optional
+        Force the hole edges on or off (default: when a hole line is drawn or
+        no conduction state exists).
+    fontsize : float
+        Label font size [pt].
+
+    Returns
+    -------
+    DiagramInfo
+
+    Examples
+    --------
+    >>> import matplotlib
+    >>> matplotlib.use("Agg")
+    >>> import matplotlib.pyplot as plt
+    >>> import qwell
+    >>> sol = qwell.solve_stack(qwell.load_stack("layers/lwir-detector.yaml"))
+    >>> fig, ax = plt.subplots(figsize=(7, 4.5))
+    >>> info = qwell.plot_band_diagram(ax, sol, transitions=["e1-e2"])
+    >>> info.state_labels[:2]
+    ('e1', 'e2')
+    """
+    fig = ax.figure
+    box = ax.get_position()
+    ax.remove()
+    chosen = tuple(solution.transition(t) if isinstance(t, str) else t for t in transitions)
+    return draw_band_diagram(fig, solution.profile, solution.levels, transitions=chosen,
+                             rect=(box.x0, box.y0, box.width, box.height), title=title,
+                             show_holes=show_holes, fontsize=fontsize)

@@ -176,6 +176,15 @@ def solve_stack(stack, *, self_consistent: bool | None = None, **options) -> Sol
     With ``self_consistent`` (or the stack key) the states are those of the
     self-consistent potential and the solution carries the charge result in
     :attr:`Solution.self_consistent`.
+
+    Examples
+    --------
+    >>> from qwell import load_stack, solve_stack
+    >>> sol = solve_stack(load_stack("layers/lwir-detector.yaml"), bands="conduction")
+    >>> [s.label for s in sol.states]
+    ['e1', 'e2']
+    >>> round(sol.transition("e1-e2").wavelength_um, 3)
+    8.33
     """
     prof, sc = prepare_profile(stack, self_consistent=self_consistent)
     sol = solve_profile(prof, **options)

@@ -1237,6 +1237,16 @@ def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
     Raises
     ------
     StackError
+
+    Examples
+    --------
+    >>> from qwell import stack_from_mapping
+    >>> stack = stack_from_mapping({"name": "test well", "layers": [
+    ...     {"material": "Al0.3Ga0.7As", "thickness": "20 nm"},
+    ...     {"material": "GaAs", "thickness": "8 nm", "name": "well"},
+    ...     {"material": "Al0.3Ga0.7As", "thickness": "20 nm"}]})
+    >>> stack.layers[1].thickness_nm
+    8.0
     """
     raw = _plain_copy(data)
     builder = _Builder(raw, {}, None if file is None else str(file))
@@ -1310,6 +1320,15 @@ def load_stack(path) -> Stack:
     StackError
         Missing or unreadable file, oversized or binary file, invalid YAML or
         an invalid stack (see the module docstring).
+
+    Examples
+    --------
+    >>> from qwell import load_stack
+    >>> stack = load_stack("layers/lwir-detector.yaml")
+    >>> [layer.name for layer in stack.layers]
+    ['top_barrier', 'well', 'bottom_barrier']
+    >>> round(stack.layers[1].thickness_nm, 4)       # 19 ML of GaAs
+    5.3624
     """
     file = os.fspath(path)
     p = Path(file)

@@ -173,6 +173,14 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
         Unknown parameter, a transition missing at the start point, invalid
         bounds, or a target out of reach (the message gives the reachable
         range and why it ends).
+
+    Examples
+    --------
+    >>> from qwell import load_stack, size
+    >>> res = size(load_stack("layers/lwir-detector.yaml"), "well.thickness", "9 um",
+    ...            transition="e1-e2")
+    >>> round(res.value, 3)                 # nm
+    6.211
     """
     from scipy.optimize import brentq  # heavy; only sizing needs it
 

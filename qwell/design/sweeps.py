@@ -206,6 +206,14 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
     ParameterError
         Unknown path, a value outside the valid range (named), a transition
         missing at the start point.
+
+    Examples
+    --------
+    >>> from qwell import load_stack, sweep
+    >>> res = sweep(load_stack("layers/lwir-detector.yaml"), "well.thickness",
+    ...             [5.0, 5.5, 6.0], ["e1-e2"])
+    >>> [round(float(v), 2) for v in res.wavelength_um["e1-e2"]]
+    [8.24, 8.4, 8.79]
     """
     if sensitivity not in ("grid", "local"):
         raise ParameterError(f"sensitivity {sensitivity!r}: expected 'grid' or 'local'")

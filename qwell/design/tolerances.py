@@ -276,6 +276,14 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
     ParameterError
         Transition missing in the nominal design, unknown layers or paths,
         a ±tolerance design outside the valid range (named).
+
+    Examples
+    --------
+    >>> from qwell import load_stack, tolerance
+    >>> res = tolerance(load_stack("layers/lwir-detector.yaml"), "e1-e2",
+    ...                 thickness_tol="1 ML", composition_tol=0.01)
+    >>> round(res.worst_case_nm)
+    348
     """
     if thickness_tol is None:
         thickness_tol = {"*": "1 ML"}

@@ -106,6 +106,15 @@ def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
 
     Validity warnings raised while solving are listed in the report and, in
     summary, re-issued as one :class:`~qwell.errors.ValidityWarning`.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from qwell import build_report, load_stack
+    >>> res = build_report(load_stack("layers/lwir-detector.yaml"),
+    ...                    out_dir=tempfile.mkdtemp())   # doctest: +SKIP
+    >>> res.pdf_path.name                                 # doctest: +SKIP
+    'lwir-detector.pdf'
     """
     t0 = time.perf_counter()
     if isinstance(stack, (str, os.PathLike)):
