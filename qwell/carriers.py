@@ -253,7 +253,6 @@ def active_region(profile, ground_state, *, length_nm: float | None = None) -> A
     the ground subband: the well, or coupled wells with the thin barriers
     between them).
     """
-    stack = profile.stack
     if length_nm is not None:
         L = float(length_nm)
         if not (np.isfinite(L) and L > 0):
