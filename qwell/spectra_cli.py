@@ -233,7 +233,7 @@ def cmd_gain(args) -> int:
               f"peak gain {s.peak_gain_cm1:.4g} cm⁻¹ at {1e3 * s.peak_wavelength_um:.1f} nm "
               f"({s.peak_energy_eV:.4f} eV)")
     step = max(1, tab.densities_cm2.size // 12)
-    rows = [[f"{d:.3g}", f"{df:.4f}", f"{g:.4g}", f"{1e3 * w:.1f}"]
+    rows = [[f"{d:.3g}", f"{df:.4f}", f"{g:.4g}", f"{1e3 * w:.1f}" if g > 0 else "—"]
             for d, df, g, w in list(zip(tab.densities_cm2, tab.fermi_separation_eV,
                                         tab.peak_gain_cm1, tab.peak_wavelength_um))[::step]]
     shown = "all shown" if step == 1 else f"one in {step} shown; --json lists all"
