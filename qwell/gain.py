@@ -382,12 +382,12 @@ def model_from_levels(electrons, holes, *, kane_energy_eV: float, length_nm: flo
     hidx = {lab: k for k, lab in enumerate(hsub.labels)}
     pairs = []
     for hl in holes:
-        if hole_bands is not None:
+        if hole_bands is not None and hl.band in hole_bands:
             hb = hole_bands[hl.band]
         elif profile is not None:
             hb = profile.bands[hl.band]
         else:
-            hb = type("B", (), {"name": hl.band})()
+            raise ParameterError(f"no band for the {hl.band} levels: give profile or hole_bands")
         eb = electron_band if electron_band is not None else (
             profile.bands["conduction"] if profile is not None else None)
         for t in interband_transitions(electrons, eb, hl, hb):
