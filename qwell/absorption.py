@@ -60,8 +60,8 @@ import numpy as np
 from .carriers import active_region, check_density, fermi_level, fill, subbands_of
 from .constants import C_M_S, E_C, EPS0_F_PER_M, HBAR_J_S, HC_EV_UM, M0_KG
 from .errors import ParameterError
-from .optics import intersubband_matrices
-from .selfconsistent import depolarisation_shift
+from .levels import solve_stack
+from .optics import depolarisation_shift, intersubband_matrices
 
 __all__ = ["IntersubbandLine", "IntersubbandAbsorption", "PassAbsorption",
            "intersubband_absorption", "stack_absorption", "pass_absorption",
@@ -470,8 +470,6 @@ def stack_absorption(stack, *, density_cm2: float | None = None, populations: st
         For the combinations above, densities outside 0..1e14 cm^-2 or a
         linewidth <= 0; each message names the option and the accepted range.
     """
-    from .levels import solve_stack
-
     if populations not in POPULATIONS:
         raise ParameterError(f"populations: {populations!r}; expected one of "
                              + ", ".join(POPULATIONS))

@@ -66,6 +66,7 @@ import numpy as np
 from .carriers import Subbands, active_region, check_density, fermi_level, subbands_of
 from .constants import ALPHA_FS, HBAR_EV_S, HC_EV_UM, KB_EV_PER_K
 from .errors import ParameterError
+from .levels import solve_stack
 from .optics import interband_transitions
 
 __all__ = ["InterbandPair", "InterbandModel", "GainTable", "GainSpectrum", "interband_model",
@@ -445,8 +446,6 @@ def interband_model(stack, *, solution=None, refractive_index: float = DEFAULT_R
     length_nm : float, optional
         Active length [nm]; default :func:`qwell.carriers.active_region`.
     """
-    from .levels import solve_stack
-
     if solution is None:
         solution = solve_stack(stack)
     lev = solution.levels

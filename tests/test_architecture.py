@@ -27,11 +27,12 @@ LAYERS = (
     ("stack", "stack_edit"),
     ("bands", "profile"),
     ("solvers",),
-    ("optics", "poisson", "lifetimes", "absorption", "gain", "excitons"),
+    ("optics", "poisson", "lifetimes", "carriers", "excitons"),
     ("selfconsistent",),
     ("levels",),
+    ("absorption", "gain"),     # stack-level spectra: they solve a stack through levels
     ("design",),
-    ("plots", "diagram"),
+    ("plots", "diagram", "spectra_plots"),
     ("report",),
     ("cli",),
     ("qwell",),                 # the package itself: the public API imports everything

@@ -190,7 +190,8 @@ def test_charge_neutral_quasi_fermi_levels():
         h = model.holes
         ph = np.sum(h.mass_m0 * dos * kt * np.logaddexp(0, (-tab.hole_fermi_eV[k]
                                                             - h.carrier_energy_eV) / kt))
-        assert ne == pytest.approx(n, rel=1e-9) and ph == pytest.approx(n, rel=1e-9)
+        # qwell uses CODATA 2018, scipy its own release: they differ by ~1e-9
+        assert ne == pytest.approx(n, rel=1e-7) and ph == pytest.approx(n, rel=1e-7)
 
 
 @pytest.mark.parametrize("kwargs, match", [

@@ -42,7 +42,7 @@ from qwell.diagram import (
     spread_positions,
     wavefunction_amplitude_eV,
 )
-from qwell.errors import ParameterError, QwellError
+from qwell.errors import ParameterError, QwellError, ValidityWarning
 from qwell.stack import load_stack
 
 pypdf = pytest.importorskip("pypdf")
@@ -150,7 +150,10 @@ def laser_report(tmp_path_factory):
     src = d / "laser.yaml"
     src.write_text(LASER_YAML)
     stack = load_stack(src)
-    res = rp.build_report(stack, out_dir=d)
+    # the shallow InGaAs/GaAs conduction well: at the gain page's densities the quasi-Fermi
+    # levels reach the GaAs edge, a caution the report lists (continuum carriers not counted)
+    with pytest.warns(ValidityWarning, match="validity warning"):
+        res = rp.build_report(stack, out_dir=d)
     return {"src": src, "res": res, "stack": stack, "pages": _pdf_pages(res.pdf_path)}
 
 

@@ -10,7 +10,7 @@ import pytest
 
 from qwell.errors import ValidityWarning
 from qwell.levels import prepare_profile, solve_profile
-from qwell.spectra_report import (
+from qwell.report.spectra import (
     GAIN_DENSITIES_CM2,
     REFERENCE_DENSITY_CM2,
     report_spectra,

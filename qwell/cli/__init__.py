@@ -7,8 +7,8 @@ is half-written.
 
 One module per command group adds its sub-commands with ``register``:
 :mod:`~qwell.cli.materials`, :mod:`~qwell.cli.profile`,
-:mod:`~qwell.cli.levels`, :mod:`~qwell.cli.design` (size, sweep, tolerance)
-and :mod:`~qwell.cli.report`; :mod:`~qwell.cli.common` holds what they share.
+:mod:`~qwell.cli.levels`, :mod:`~qwell.cli.design` (size, sweep, tolerance),
+:mod:`~qwell.cli.report` and :mod:`~qwell.cli.spectra` (absorption, gain); :mod:`~qwell.cli.common` holds what they share.
 """
 
 from __future__ import annotations
@@ -21,7 +21,7 @@ import warnings
 
 from .. import __version__
 from ..errors import QwellError, QwellWarning
-from . import design, levels, materials, profile, report
+from . import design, levels, materials, profile, report, spectra
 from .common import EXIT_USAGE
 
 __all__ = ["main", "build_parser", "EXIT_USAGE"]
@@ -43,6 +43,7 @@ def build_parser() -> argparse.ArgumentParser:
     levels.register(sub)
     design.register(sub)
     report.register(sub)
+    spectra.register(sub)
     return p
 
 

@@ -25,6 +25,7 @@ from ..optics import Transition, select_transitions
 from ..profile import Profile
 from ..selfconsistent import SelfConsistentResult
 from ..stack import Stack
+from .spectra import ReportSpectra, report_spectra
 
 __all__ = [
     "REPORT_TOLERANCE_EV",
@@ -99,6 +100,9 @@ class ReportData:
     tolerance_eV : float
     charge : qwell.selfconsistent.SelfConsistentResult or None
         The Schrödinger–Poisson result when the stack is solved self-consistently.
+    spectra : qwell.report.spectra.ReportSpectra or None
+        Absolute spectra: alpha and per-pass absorption when an intersubband line
+        is reviewed, gain and transparency when an interband line is.
     """
 
     stack: Stack
@@ -113,6 +117,7 @@ class ReportData:
     created_utc: _dt.datetime
     tolerance_eV: float = REPORT_TOLERANCE_EV
     charge: SelfConsistentResult | None = None
+    spectra: ReportSpectra | None = None
 
 
 def default_transitions(solution) -> tuple:
@@ -305,6 +310,9 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
         else:
             chosen = default_transitions(exact)
         comparison = compare_methods(exact, semi)
+        kinds = {t.kind for t in chosen}
+        spectra = report_spectra(stack, exact, charge=sc, detector="intersubband" in kinds,
+                                 laser="interband" in kinds)
         if sensitivity:
             sens, sens_notes = sensitivity_rows(stack, chosen)
         else:
@@ -319,4 +327,4 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
                       chosen=tuple(chosen), comparison=comparison, sensitivity=tuple(sens),
                       sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
                       created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
-                      tolerance_eV=tolerance_eV)
+                      tolerance_eV=tolerance_eV, spectra=spectra)

@@ -18,14 +18,14 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
-import numpy as np
 
 from .. import __version__
-from ..diagram import draw_band_diagram, spread_positions
+from ..diagram import draw_band_diagram
 from ..errors import QwellError
 from ..materials import citation, get_material, parse_formula
-from ..optics import EXCITON_NOTE, spectrum
+from ..optics import EXCITON_NOTE
 from .data import ReportData
+from .spectra import spectra_draw, spectra_rows
 from .layout import FigureBlock, Flow, Heading, Item, PageBreak, Paragraph, Table, typeset_pdf
 
 __all__ = [
@@ -435,52 +435,6 @@ def transition_blocks(data: ReportData) -> list:
     return blocks
 
 
-def _spectrum_draw(data: ReportData):
-    """Draw function for the absorption spectra (one panel per transition kind)."""
-    trans = data.exact.transitions
-    kinds = [k for k in ("intersubband", "interband") if any(t.kind == k for t in trans)]
-    chosen = {t.name for t in data.chosen}
-
-    def draw(fig, rect):
-        left, bottom, width, height = rect
-        n = len(kinds)
-        gap = 0.06 * height
-        ph = (height - gap * (n - 1)) / max(n, 1)
-        styles = ("--", ":", "-.", (0, (5, 1, 1, 1)))
-        for i, kind in enumerate(kinds):
-            lines = [t for t in trans if t.kind == kind]
-            spec = spectrum(lines, linewidth_meV=10.0)
-            b = bottom + (n - 1 - i) * (ph + gap)
-            ax = fig.add_axes((left + 0.1 * width, b + 0.22 * ph, 0.86 * width, 0.68 * ph))
-            ax.plot(spec.wavelength_um, spec.absorption, color="black", lw=1.3)
-            ax.set_xlim(float(np.min(spec.wavelength_um)), float(np.max(spec.wavelength_um)))
-            ax.set_ylim(0, 1.25)
-            ax.set_xlabel("wavelength (µm)", fontsize=8)
-            ax.set_ylabel("absorption (peak = 1)", fontsize=8)
-            ax.tick_params(labelsize=8)
-            what = ("intersubband, weight f" if kind == "intersubband"
-                    else "interband, TE weight; excitons not included")
-            ax.set_title(f"{what}; Lorentzian lines, FWHM 10 meV", fontsize=8)
-            k = 0
-            marks = []
-            for t in lines:
-                if t.name not in chosen:
-                    continue
-                ax.axvline(t.wavelength_um, color="#0072B2", ls=styles[k % len(styles)], lw=1.0)
-                marks.append((t.wavelength_um, t.name))
-                k += 1
-            if marks:
-                xs = np.array([m[0] for m in marks])
-                lo, hi = ax.get_xlim()
-                ax_w_pt = 0.86 * width * fig.get_figwidth() * 72.0
-                gap_data = 60.0 / ax_w_pt * (hi - lo)
-                pos = spread_positions(xs, gap_data, lo + 0.5 * gap_data, hi - 0.5 * gap_data)
-                for (_x, name), px in zip(marks, pos):
-                    ax.text(px, 1.12, name, ha="center", va="center", fontsize=8,
-                            color="#0072B2", parse_math=False)
-    return draw, len(kinds)
-
-
 def sensitivity_blocks(data: ReportData) -> list:
     """Page 6: wavelength sensitivity table and the absorption spectrum."""
     blocks = [Heading("Sensitivity to growth errors")]
@@ -506,10 +460,46 @@ def sensitivity_blocks(data: ReportData) -> list:
         blocks.append(Paragraph("No sensitivity table."))
     for n in data.sensitivity_notes:
         blocks.append(Paragraph(n, size=8, bullet="•", color="0.25"))
-    draw, n = _spectrum_draw(data)
+    blocks += spectra_blocks(data)
+    return blocks
+
+
+def spectra_blocks(data: ReportData) -> list:
+    """Absolute spectra: alpha [cm^-1] and per-pass absorption, gain and transparency."""
+    spec = data.spectra
+    if spec is None or not (spec.panels or spec.notes):
+        return []
+    n = spec.panels
+    title = " and ".join(w for w, on in (("Absorption", spec.absorption is not None),
+                                        ("gain", spec.gain is not None)) if on) or "Spectra"
+    blocks = [Heading(title.capitalize(), 11.0, keep=190.0 * n + 60.0)]
+    rows = spectra_rows(spec)
+    if rows:
+        blocks.append(Table(["quantity", "value"], rows, ["l", "l"], wrap=(1,)))
     if n:
-        blocks.append(Heading("Absorption spectrum", 11.0, keep=190.0 * n))
-        blocks.append(FigureBlock(190.0 * n, draw))
+        blocks.append(FigureBlock(190.0 * n, spectra_draw(spec)))
+    text = []
+    if spec.absorption is not None:
+        a = spec.absorption
+        text.append(f"Intersubband α for light polarised along z, from the populated subbands "
+                    f"only ({spec.absorption_basis}); Lorentzian lines of "
+                    f"{a.lines[0].linewidth_meV:g} meV FWHM, depolarisation shift included, "
+                    f"refractive index {a.refractive_index:g}; α is averaged over the active "
+                    "length. The dashed curve is the fraction of p-polarised light absorbed in "
+                    "one pass through a 45° polished facet (unpolarised light: half).")
+    if spec.gain is not None:
+        g = spec.gain
+        text.append(f"Interband material gain (TE) from the step-shaped 2-D joint density of "
+                    f"states of each subband pair with quasi-Fermi levels of an injected n = p, "
+                    f"Lorentzian FWHM {g.linewidth_meV:.3g} meV, at "
+                    f"{g.model.temperature_K:g} K. Parabolic in-plane subbands: valence-band "
+                    "mixing is not included; carriers in barrier/guide states are not counted; "
+                    "excitons are not applied (screened at laser densities). Transparency: the "
+                    "density where the peak gain crosses zero.")
+    for t in text:
+        blocks.append(Paragraph(t, size=8, color="0.25"))
+    for note in spec.notes:
+        blocks.append(Paragraph(note, size=8, bullet="•", color="0.25"))
     return blocks
 
 

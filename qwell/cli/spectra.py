@@ -1,4 +1,4 @@
-"""Command-line commands of the absolute spectra: ``absorption`` and ``gain``.
+"""``qwell absorption`` and ``qwell gain``: absolute spectra on the command line.
 
 ``qwell absorption STACK [--density 4e11cm^-2] [--linewidth 8meV] [--geometry facet45]
 [--passes 4] [--json] [--png FILE]`` and ``qwell gain STACK [--density 3e12cm^-2]
@@ -10,7 +10,16 @@ from __future__ import annotations
 
 import math
 
-from .errors import QwellError
+import numpy as np
+
+from ..absorption import _is_doped, pass_absorption, stack_absorption
+from ..errors import QwellError
+from ..excitons import stack_excitons
+from ..gain import gain_table, interband_model
+from ..levels import solve_stack
+from ..spectra_plots import pick_densities, plot_absorption, plot_gain
+from ..units import to_float
+from .common import add_self_consistent_option, load, print_json, table
 
 __all__ = ["register", "cmd_absorption", "cmd_gain", "parse_density", "parse_linewidth",
            "parse_density_range"]
@@ -18,15 +27,8 @@ __all__ = ["register", "cmd_absorption", "cmd_gain", "parse_density", "parse_lin
 _MAX = 1e14
 
 
-def _cli():
-    from . import cli
-    return cli
-
-
 def parse_density(text: str, option: str = "--density") -> float:
     """A sheet density [cm^-2] from ``'4e11cm^-2'``; refused outside 0 < n <= 1e14 cm^-2."""
-    from .units import to_float
-
     try:
         v = to_float(text, "cm^-2")
     except QwellError as exc:
@@ -39,8 +41,6 @@ def parse_density(text: str, option: str = "--density") -> float:
 
 def parse_linewidth(text: str, option: str = "--linewidth") -> float:
     """A FWHM [meV] from ``'8meV'``; refused when <= 0 or above 1 eV."""
-    from .units import to_float
-
     try:
         v = to_float(text, "eV", "an energy (e.g. '8meV')") * 1e3
     except QwellError as exc:
@@ -53,8 +53,6 @@ def parse_linewidth(text: str, option: str = "--linewidth") -> float:
 
 def parse_density_range(text: str, option: str = "--densities"):
     """``FROM:TO:N`` -> N log-spaced densities [cm^-2]; a unit given on TO only applies to FROM."""
-    import numpy as np
-
     parts = str(text).split(":")
     if len(parts) != 3:
         raise QwellError(f"{option} {text!r}: expected FROM:TO:N, e.g. "
@@ -86,10 +84,7 @@ def _fmt(v, spec):
 # absorption
 # ---------------------------------------------------------------------------
 def cmd_absorption(args) -> int:
-    from .absorption import _is_doped, pass_absorption, stack_absorption
-
-    cli = _cli()
-    stack = cli._load(args.stack)
+    stack = load(args.stack, args.self_consistent)
     density = parse_density(args.density) if args.density is not None else None
     width = parse_linewidth(args.linewidth) if args.linewidth is not None else None
     doped = _is_doped(stack)
@@ -121,12 +116,11 @@ def cmd_absorption(args) -> int:
     geos = [pass_absorption(res, "facet45", passes=args.passes), pass_absorption(res, "brewster")]
     chosen = geos[0] if args.geometry == "facet45" else geos[1]
     if args.png:
-        from .spectra_plots import plot_absorption
         plot_absorption(res, args.png, passes=chosen,
                         title=f"{stack.name}: intersubband absorption", protect=[args.stack])
     if args.json:
         out = {"stack": stack.name, **res.to_json(), "geometries": [g.to_json() for g in geos]}
-        cli._print_json(out)
+        print_json(out)
         return 0
     print(f"{stack.name}  (T = {stack.temperature_K:g} K) — intersubband absorption, light "
           "polarised along z")
@@ -143,7 +137,7 @@ def cmd_absorption(args) -> int:
             for ln in res.lines if abs(ln.integrated_eV_per_cm) >= 1e-4 * abs(
                 res.lines[0].integrated_eV_per_cm)]
     print()
-    print(cli._table(rows, ["line", "E eV", "depol. meV", "peak λ µm", "f", "Δn cm⁻²",
+    print(table(rows, ["line", "E eV", "depol. meV", "peak λ µm", "f", "Δn cm⁻²",
                             "FWHM meV", "∫α dE eV/cm", "α peak cm⁻¹"],
                      ["<", ">", ">", ">", ">", ">", ">", ">", ">"]))
     hidden = len(res.lines) - len(rows)
@@ -157,7 +151,7 @@ def cmd_absorption(args) -> int:
     print("\nAbsorbed fraction at the peak, p-polarised light (unpolarised: half)")
     rows = [[g.geometry, f"{g.internal_angle_deg:.2f}", f"{g.path_factor:.4f}", str(g.passes),
              f"{100 * g.peak_per_pass:.3g} %", f"{100 * g.peak_total:.3g} %"] for g in geos]
-    print(cli._table(rows, ["geometry", "angle to z °", "sin²θ/cosθ", "passes", "per pass",
+    print(table(rows, ["geometry", "angle to z °", "sin²θ/cosθ", "passes", "per pass",
                             "all passes"], ["<", ">", ">", ">", ">", ">"]))
     for n in res.notes:
         print(f"note: {n}")
@@ -170,13 +164,7 @@ def cmd_absorption(args) -> int:
 # gain
 # ---------------------------------------------------------------------------
 def cmd_gain(args) -> int:
-    import numpy as np
-
-    from .gain import gain_table, interband_model
-    from .levels import solve_stack
-
-    cli = _cli()
-    stack = cli._load(args.stack)
+    stack = load(args.stack, args.self_consistent)
     density = parse_density(args.density) if args.density is not None else None
     dens = parse_density_range(args.densities)
     width = parse_linewidth(args.linewidth) if args.linewidth is not None else None
@@ -192,11 +180,9 @@ def cmd_gain(args) -> int:
     tab = gain_table(model, all_d, **gkw)
     excitons = ()
     if args.excitons:
-        from .excitons import stack_excitons
         excitons = stack_excitons(sol)
     idx_main = int(np.argmin(np.abs(tab.densities_cm2 - density))) if density is not None else None
     if args.png:
-        from .spectra_plots import pick_densities, plot_gain
         idx = pick_densities(tab)
         if idx_main is not None and idx_main not in idx:
             idx = sorted(set(idx[::2]) | {idx_main})
@@ -212,7 +198,7 @@ def cmd_gain(args) -> int:
                                     "edge and PL peak lie this much below the pair edge; the "
                                     "gain spectrum is not shifted (excitons screened at laser "
                                     "densities)")
-        cli._print_json(out)
+        print_json(out)
         return 0
     m = model
     lw = "unbroadened" if tab.linewidth_meV is None else f"Lorentzian FWHM {tab.linewidth_meV:.3g} meV"
@@ -224,7 +210,7 @@ def cmd_gain(args) -> int:
              f"{p.overlap:.4f}", f"{p.electron_mass_m0:.4f}", f"{p.hole_mass_m0:.4f}",
              f"{p.step_te_cm1:.4g}", f"{p.step_tm_cm1:.4g}"] for p in m.pairs]
     print("\nSubband pairs (step of the 2-D joint density of states, unfilled; in-plane masses)")
-    print(cli._table(rows, ["pair", "edge eV", "λ nm", "|<e|h>|²", "m_e", "m_h", "step TE cm⁻¹",
+    print(table(rows, ["pair", "edge eV", "λ nm", "|<e|h>|²", "m_e", "m_h", "step TE cm⁻¹",
                             "step TM cm⁻¹"], ["<", ">", ">", ">", ">", ">", ">", ">"]))
     if idx_main is not None:
         s = tab.spectrum(idx_main)
@@ -238,7 +224,7 @@ def cmd_gain(args) -> int:
                                         tab.peak_gain_cm1, tab.peak_wavelength_um))[::step]]
     shown = "all shown" if step == 1 else f"one in {step} shown; --json lists all"
     print(f"\nPeak gain versus injected density ({tab.densities_cm2.size} densities, {shown})")
-    print(cli._table(rows, ["n = p cm⁻²", "F_c-F_v eV", "peak gain cm⁻¹", "λ peak nm"],
+    print(table(rows, ["n = p cm⁻²", "F_c-F_v eV", "peak gain cm⁻¹", "λ peak nm"],
                      [">", ">", ">", ">"]))
     tr = tab.transparency_density_cm2
     print("\ntransparency density: "
@@ -250,7 +236,7 @@ def cmd_gain(args) -> int:
         rows = [[x.name, f"{x.binding_meV:.2f}", f"{x.radius_nm:.1f}", f"{x.pair_energy_eV:.5f}",
                  f"{x.exciton_energy_eV:.5f}", f"{1e3 * x.exciton_wavelength_um:.1f}"]
                 for x in excitons]
-        print(cli._table(rows, ["line", "binding meV", "radius nm", "pair edge eV",
+        print(table(rows, ["line", "binding meV", "radius nm", "pair edge eV",
                                 "exciton eV", "exciton λ nm"], ["<", ">", ">", ">", ">", ">"]))
         print("the absorption edge and the photoluminescence peak lie the binding below the "
               "pair edge")
@@ -282,6 +268,7 @@ def register(subparsers) -> None:
                    help="refractive index (default 3.3, GaAs near 10 µm)")
     a.add_argument("--json", action="store_true", help="machine-readable output")
     a.add_argument("--png", metavar="FILE", help="write α and the absorbed fraction")
+    add_self_consistent_option(a)
     a.set_defaults(func=cmd_absorption)
 
     g = subparsers.add_parser("gain", help="interband gain spectrum, peak gain and "
@@ -302,4 +289,5 @@ def register(subparsers) -> None:
                    help="also give the e-hh and e-lh exciton binding energies")
     g.add_argument("--json", action="store_true", help="machine-readable output")
     g.add_argument("--png", metavar="FILE", help="write gain spectra and peak gain vs density")
+    add_self_consistent_option(g)
     g.set_defaults(func=cmd_gain)

@@ -17,9 +17,10 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .absorption import _is_doped, pass_absorption, stack_absorption
-from .errors import QwellError
-from .gain import gain_table, interband_model
+from ..absorption import _is_doped, pass_absorption, stack_absorption
+from ..errors import QwellError
+from ..gain import gain_table, interband_model
+from ..spectra_plots import draw_absorption, draw_gain_spectra, draw_peak_gain
 
 __all__ = ["ReportSpectra", "report_spectra", "spectra_draw", "spectra_rows",
            "REFERENCE_DENSITY_CM2", "GAIN_DENSITIES_CM2"]
@@ -138,8 +139,6 @@ def spectra_rows(spec: ReportSpectra) -> list:
 
 def spectra_draw(spec: ReportSpectra):
     """A ``draw(fig, rect)`` for the report's figure block; one row per part."""
-    from .spectra_plots import draw_absorption, draw_gain_spectra, draw_peak_gain
-
     def draw(fig, rect):
         left, bottom, width, height = rect
         n = spec.panels
