@@ -112,7 +112,7 @@ def plot_absorption(res, path, *, passes=None, title=None, protect=()):
         sub = (f"populations: {res.populations}, n = {res.total_density_cm2:.3g} cm$^{{-2}}$, "
                f"T = {res.temperature_K:g} K, n_r = {res.refractive_index:g}\n"
                f"α over {res.active_length_rule}")
-        ax.set_title((title + "\n" if title else "") + sub, fontsize=9, pad=16)
+        ax.set_title((title + "\n" if title else "") + sub, fontsize=9, pad=24)
         fig.tight_layout()
         return atomic_savefig(fig, path, protect=protect)
     finally:

@@ -64,3 +64,16 @@ def test_laser_well_gain_and_transparency():
     fig = Figure(figsize=(8, 6))
     spectra_draw(spec)(fig, (0.05, 0.05, 0.9, 0.9))
     assert len(fig.axes) == 2
+
+
+def test_report_shows_alpha_for_a_detector_and_gain_for_a_laser_well():
+    from qwell.report import collect_report_data
+
+    det = collect_report_data(load_stack(ROOT / "layers" / "lwir-detector.yaml"),
+                              sensitivity=False)
+    assert det.spectra.absorption is not None and det.spectra.gain is None
+    laser = collect_report_data(load_stack(ROOT / "layers" / "pump-laser-well.yaml"),
+                                sensitivity=False)
+    assert laser.spectra.gain is not None and laser.spectra.absorption is None
+    # the continuum-carrier caution of the shallow InGaAs/GaAs well is listed, not lost
+    assert any("confinement limit" in w for w in laser.warnings)

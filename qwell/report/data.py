@@ -102,7 +102,7 @@ class ReportData:
         The Schrödinger–Poisson result when the stack is solved self-consistently.
     spectra : qwell.report.spectra.ReportSpectra or None
         Absolute spectra: alpha and per-pass absorption when an intersubband line
-        is reviewed, gain and transparency when an interband line is.
+        is reviewed (a detector), else gain and transparency (a laser well).
     """
 
     stack: Stack
@@ -311,8 +311,10 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
             chosen = default_transitions(exact)
         comparison = compare_methods(exact, semi)
         kinds = {t.kind for t in chosen}
+        # a reviewed intersubband line makes it a detector/emitter design (alpha, per pass);
+        # interband lines alone a laser well (gain, transparency)
         spectra = report_spectra(stack, exact, charge=sc, detector="intersubband" in kinds,
-                                 laser="interband" in kinds)
+                                 laser=kinds == {"interband"})
         if sensitivity:
             sens, sens_notes = sensitivity_rows(stack, chosen)
         else:

@@ -151,7 +151,7 @@ def spectra_draw(spec: ReportSpectra):
             draw_absorption(ax, spec.absorption, passes=spec.passes[0])
             _small(ax, fig)
             ax.set_title("intersubband absorption, only populated subbands absorb", fontsize=8,
-                         pad=16)
+                         pad=22)
             row += 1
         if spec.gain is not None:
             b = bottom + (n - 1 - row) * (ph + gap)
