@@ -36,7 +36,9 @@ def draw_absorption(ax, res, *, passes=None, label_lines: int = 4):
     lam = res.wavelength_um
     ax.plot(lam, res.absorption_cm1, color="black", lw=1.8, label="α (z-polarised)", zorder=3)
     ax.set_xlim(float(lam.min()), float(lam.max()))
-    ax.set_ylim(bottom=min(0.0, float(res.absorption_cm1.min()) * 1.05))
+    top = float(res.absorption_cm1.max())
+    # head room above the peak for the line labels
+    ax.set_ylim(min(0.0, float(res.absorption_cm1.min()) * 1.05), 1.25 * top if top > 0 else 1.0)
     ax.set_xlabel("wavelength (µm)")
     ax.set_ylabel("absorption coefficient α (cm$^{-1}$)")
     ax.grid(True, color="0.88", lw=0.6, zorder=0)
@@ -44,14 +46,15 @@ def draw_absorption(ax, res, *, passes=None, label_lines: int = 4):
         if lam.min() <= ln.peak_wavelength_um <= lam.max():
             ax.axvline(ln.peak_wavelength_um, color=_COLOURS[k % 5], ls=_STYLES[(k + 1) % 5],
                        lw=1.0, zorder=2)
-            ax.text(ln.peak_wavelength_um, 1.01, ln.name, rotation=90, ha="center", va="bottom",
-                    fontsize=8, color=_COLOURS[k % 5], transform=ax.get_xaxis_transform())
+            ax.text(ln.peak_wavelength_um, 0.97, ln.name + " ", rotation=90, ha="right",
+                    va="top", fontsize=8, color=_COLOURS[k % 5],
+                    transform=ax.get_xaxis_transform())
     if passes is not None:
         ax2 = ax.twinx()
         ax2.plot(lam, 100.0 * passes.total, color="#D55E00", ls="--", lw=1.3,
                  label=f"absorbed, {passes.passes} pass(es), {passes.geometry}")
         ax2.set_ylabel("absorbed fraction, p-polarised (%)", color="#D55E00")
-        ax2.set_ylim(bottom=0.0)
+        ax2.set_ylim(0.0, 125.0 * float(passes.total.max()) or 1.0)
         ax2.tick_params(axis="y", colors="#D55E00")
         h1, l1 = ax.get_legend_handles_labels()
         h2, l2 = ax2.get_legend_handles_labels()
@@ -112,7 +115,7 @@ def plot_absorption(res, path, *, passes=None, title=None, protect=()):
         sub = (f"populations: {res.populations}, n = {res.total_density_cm2:.3g} cm$^{{-2}}$, "
                f"T = {res.temperature_K:g} K, n_r = {res.refractive_index:g}\n"
                f"α over {res.active_length_rule}")
-        ax.set_title((title + "\n" if title else "") + sub, fontsize=9, pad=24)
+        ax.set_title((title + "\n" if title else "") + sub, fontsize=9)
         fig.tight_layout()
         return atomic_savefig(fig, path, protect=protect)
     finally:

@@ -150,8 +150,7 @@ def spectra_draw(spec: ReportSpectra):
             ax = fig.add_axes((left + 0.1 * width, b + 0.2 * ph, 0.78 * width, 0.66 * ph))
             draw_absorption(ax, spec.absorption, passes=spec.passes[0])
             _small(ax, fig)
-            ax.set_title("intersubband absorption, only populated subbands absorb", fontsize=8,
-                         pad=22)
+            ax.set_title("intersubband absorption, only populated subbands absorb", fontsize=8)
             row += 1
         if spec.gain is not None:
             b = bottom + (n - 1 - row) * (ph + gap)
