@@ -48,7 +48,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import exp1
 
-from .carriers import inplane_mass_m0
+from .carriers import fft_convolve, inplane_mass_m0
 from .constants import E_C, EPS0_F_PER_M, HBAR2_2M0_EV_NM2, HC_EV_UM
 from .errors import ParameterError
 
@@ -152,11 +152,9 @@ def exciton_binding(electron, hole, *, electron_mass_m0: float, hole_mass_m0: fl
         return HBAR2_2M0_EV_NM2 / np.asarray(m, dtype=float)
 
     te, th = kin(electron_z_mass, electron_mass_m0), kin(hole_z_mass, hole_mass_m0)
-    from scipy.signal import fftconvolve  # heavy import, only here
-
     # lag k: z = z_e - z_h = k h;  r[m] = sum_i a[i] b[i - (m - (n-1))]
-    P = fftconvolve(ce, ch[::-1]) * h
-    K = (fftconvolve(ce * te, ch[::-1]) + fftconvolve(ce, (ch * th)[::-1])) * h
+    P = fft_convolve(ce, ch[::-1]) * h
+    K = (fft_convolve(ce * te, ch[::-1]) + fft_convolve(ce, (ch * th)[::-1])) * h
     lag = np.abs((np.arange(2 * n - 1) - (n - 1)) * h)
     keep = P > 1e-14 * P.max()
     P, K, a = P[keep], np.maximum(K[keep], 0.0), lag[keep]

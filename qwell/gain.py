@@ -63,7 +63,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .carriers import Subbands, active_region, check_density, fermi_level, subbands_of
+from .carriers import (Subbands, active_region, check_density, fermi_level, fft_convolve,
+                       subbands_of)
 from .constants import ALPHA_FS, HBAR_EV_S, HC_EV_UM, KB_EV_PER_K
 from .errors import ParameterError
 from .levels import solve_stack
@@ -603,8 +604,6 @@ def _convolved_occupation(x, reach, hw, kt, D, occupation):
     ``CDF(x - u_a) - CDF(x - u_b)``.  The sum is a discrete convolution on the
     lattice x_k = k du (FFT), interpolated linearly onto ``x``.
     """
-    from scipy.signal import fftconvolve  # heavy import, only for broadened spectra
-
     du = min(max(kt, 1e-4), hw) / 8.0
     m = int(math.ceil(reach / du)) + 1
     mid = (np.arange(m) + 0.5) * du
@@ -614,7 +613,7 @@ def _convolved_occupation(x, reach, hw, kt, D, occupation):
     m0 = k_lo - m + 1
     lag = np.arange(m0, k_hi + 1) * du                           # x_k - u_j at cell starts
     kern = _lorentz_cdf(lag, hw) - _lorentz_cdf(lag - du, hw)
-    full = fftconvolve(occ, kern[None, :], mode="full", axes=1)
+    full = fft_convolve(occ, kern[None, :])
     rows = full[:, m - 1: m - 1 + (k_hi - k_lo) + 1]             # lattice k = k_lo .. k_hi
     xk = np.arange(k_lo, k_hi + 1) * du
     out = np.empty((D, x.size))

@@ -49,7 +49,7 @@ def main() -> None:
     t_solve, sol = timed(lambda: solve_stack(stack))
     t0 = time.perf_counter()
     model = interband_model(stack, solution=sol)
-    gain_table(model, [1e12])                                   # warm-up (scipy.signal import)
+    gain_table(model, [1e12])                                   # warm-up
     t_warm = time.perf_counter() - t0
     dens = np.geomspace(1e11, 1e13, 50)
     t_model, model = timed(lambda: interband_model(stack, solution=sol))

@@ -205,3 +205,13 @@ def test_bad_input(kwargs, match):
     model = infinite_well_model()
     with pytest.raises(ParameterError, match=match):
         gain_table(model, **kwargs)
+
+
+def test_fft_convolution_equals_direct_convolution():
+    # numpy.convolve (direct sum) is the reference for the FFT convolution used inside
+    from qwell.carriers import fft_convolve
+    rng = np.random.default_rng(3)
+    a, b = rng.normal(size=(3, 257)), rng.normal(size=100)
+    got = fft_convolve(a, b[None, :])
+    for row, want_row in zip(got, a):
+        np.testing.assert_allclose(row, np.convolve(want_row, b), atol=1e-10)
