@@ -62,6 +62,8 @@ import yaml
 from . import materials as _materials
 from .errors import MaterialError, StackError, UnitError
 from .units import expected_words, parse_quantity, thickness_nm as _thickness_nm, to_float, ureg
+from .yamlio import (MAX_ALIASES, MAX_YAML_NODES, decode_text, parse_marked_yaml,  # noqa: F401
+                     read_regular_file)
 
 __all__ = [
     "Grade",
@@ -92,10 +94,6 @@ MAX_FIELD_KV_PER_CM = 2000.0
 MAX_TOTAL_THICKNESS_NM = 100_000.0
 #: Deepest nesting of repeat blocks (a repeat inside a repeat is fine).
 MAX_REPEAT_DEPTH = 2
-#: Most YAML aliases (``*name``) in one document.
-MAX_ALIASES = 100
-#: Most YAML nodes in one document, as written and after alias expansion.
-MAX_YAML_NODES = 1_000_000
 
 _DEFAULT_TEMPERATURE_K = 300.0
 
@@ -431,175 +429,10 @@ def _is_monolayers_any(value) -> bool:
     return bool(q.check("[monolayer]"))
 
 
-# -- the YAML loader with line marks -----------------------------------------------
-class _Refused(Exception):
-    """Internal: the YAML document is refused (with a reason and a line)."""
-
-    def __init__(self, message: str, line: int | None = None):
-        self.message = message
-        self.line = line
-        super().__init__(message)
-
-
-_MERGE_TAG = "tag:yaml.org,2002:merge"
-
-
-class _MarkedLoader(yaml.SafeLoader):
-    """SafeLoader that records the line of every key and item, with alias limits."""
-
-    def __init__(self, stream):
-        super().__init__(stream)
-        self.qwell_marks: dict = {}  # id(container) -> (line, {key: line} | [line, ...])
-        self.keep: list = []  # keeps the marked containers alive (stable ids)
-        self.alias_count = 0
-        self.node_count = 0
-
-    def compose_node(self, parent, index):
-        if self.check_event(yaml.AliasEvent):
-            self.alias_count += 1
-            if self.alias_count > MAX_ALIASES:
-                event = self.peek_event()
-                raise _Refused(f"more than {MAX_ALIASES} YAML aliases; expected a plain stack "
-                               "file (write repeated layers with 'repeat:')",
-                               event.start_mark.line + 1)
-        else:
-            self.node_count += 1
-            if self.node_count > MAX_YAML_NODES:
-                event = self.peek_event()
-                raise _Refused(f"more than {MAX_YAML_NODES} YAML nodes; expected a smaller "
-                               "stack file", event.start_mark.line + 1)
-        return super().compose_node(parent, index)
-
-    def construct_marked_map(self, node):
-        data: dict = {}
-        yield data
-        own = set()
-        for key_node, _ in node.value:
-            if key_node.tag == _MERGE_TAG:
-                continue
-            key = self.construct_object(key_node, deep=True)
-            try:
-                hash(key)
-            except TypeError:
-                raise _Refused("a mapping key must be a plain value; expected 'key: value'",
-                               key_node.start_mark.line + 1) from None
-            if key in own:
-                raise _Refused(f"duplicate key {key!r}; expected each key once per mapping",
-                               key_node.start_mark.line + 1)
-            own.add(key)
-        self.flatten_mapping(node)
-        lines = {}
-        for key_node, value_node in node.value:
-            key = self.construct_object(key_node, deep=True)
-            try:
-                hash(key)
-            except TypeError:
-                raise _Refused("a mapping key must be a plain value; expected 'key: value'",
-                               key_node.start_mark.line + 1) from None
-            data[key] = self.construct_object(value_node, deep=False)
-            lines[key] = key_node.start_mark.line + 1
-        self.qwell_marks[id(data)] = (node.start_mark.line + 1, lines)
-        self.keep.append(data)
-
-    def construct_marked_seq(self, node):
-        data: list = []
-        yield data
-        data.extend(self.construct_object(child, deep=False) for child in node.value)
-        self.qwell_marks[id(data)] = (node.start_mark.line + 1,
-                                [child.start_mark.line + 1 for child in node.value])
-        self.keep.append(data)
-
-
-_MarkedLoader.add_constructor("tag:yaml.org,2002:map", _MarkedLoader.construct_marked_map)
-_MarkedLoader.add_constructor("tag:yaml.org,2002:seq", _MarkedLoader.construct_marked_seq)
-
-
-def _expanded_size(root) -> int:
-    """Node count of the document with every alias expanded (refuses cycles)."""
-    memo: dict = {}
-    active: set = set()
-    # iterative post-order walk: deep documents must not exhaust the C stack
-    stack = [(root, False)]
-    while stack:
-        node, done = stack.pop()
-        nid = id(node)
-        if done:
-            active.discard(nid)
-            if isinstance(node, yaml.MappingNode):
-                kids = [n for pair in node.value for n in pair]
-            elif isinstance(node, yaml.SequenceNode):
-                kids = node.value
-            else:
-                kids = ()
-            total = 1 + sum(memo[id(k)] for k in kids)
-            if total > MAX_YAML_NODES:
-                raise _Refused(f"the YAML aliases expand to more than {MAX_YAML_NODES} nodes; "
-                               "expected a plain stack file", node.start_mark.line + 1)
-            memo[nid] = total
-            continue
-        if nid in memo:
-            continue
-        if nid in active:
-            raise _Refused("a YAML alias refers to its own parent (recursive document); "
-                           "expected a plain stack file", node.start_mark.line + 1)
-        active.add(nid)
-        stack.append((node, True))
-        if isinstance(node, yaml.MappingNode):
-            kids = [n for pair in node.value for n in pair]
-        elif isinstance(node, yaml.SequenceNode):
-            kids = node.value
-        else:
-            kids = ()
-        for k in kids:
-            kid = id(k)
-            if kid in active:
-                raise _Refused("a YAML alias refers to its own parent (recursive document); "
-                               "expected a plain stack file", k.start_mark.line + 1)
-            if kid not in memo:
-                stack.append((k, False))
-    return memo[id(root)]
-
-
-def _reader_line(text: str, exc) -> int | None:
-    pos = getattr(exc, "position", None)
-    if isinstance(pos, int) and 0 <= pos <= len(text):
-        return text.count("\n", 0, pos) + 1
-    return None
-
-
+# -- the YAML reader ---------------------------------------------------------------
 def _parse_yaml(text: str, file: str | None):
     """Parse YAML text into (data, marks); StackError on anything refused."""
-    try:
-        loader = _MarkedLoader(text)
-    except yaml.YAMLError as exc:  # the reader refuses control characters at once
-        raise StackError(f"not valid YAML text ({_one_line(str(exc))}); expected a YAML text "
-                         "file", file=file, line=_reader_line(text, exc)) from None
-    try:
-        try:
-            node = loader.get_single_node()
-            if node is None:
-                return None, {}
-            _expanded_size(node)
-            data = loader.construct_document(node)
-            loader.qwell_marks["root"] = node.start_mark.line + 1
-            loader.qwell_marks["keep"] = loader.keep  # marked ids stay valid while marks live
-        except _Refused as exc:
-            raise StackError(exc.message, file=file, line=exc.line) from None
-        except yaml.MarkedYAMLError as exc:
-            mark = exc.problem_mark or exc.context_mark
-            line = mark.line + 1 if mark is not None else None
-            what = _one_line(exc.problem or exc.context or "syntax error")
-            raise StackError(f"not valid YAML ({what}); expected a YAML mapping of stack keys",
-                             file=file, line=line) from None
-        except yaml.YAMLError as exc:
-            raise StackError(f"not valid YAML ({_one_line(str(exc))}); expected a YAML text "
-                             "file", file=file, line=_reader_line(text, exc)) from None
-        except RecursionError:
-            raise StackError("YAML nested too deeply; expected a plain stack file",
-                             file=file) from None
-    finally:
-        loader.dispose()
-    return data, loader.qwell_marks
+    return parse_marked_yaml(text, file)
 
 
 # -- helpers -------------------------------------------------------------------
@@ -1254,18 +1087,7 @@ def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
 
 
 def _decode(data: bytes, file: str | None) -> str:
-    if len(data) > MAX_FILE_BYTES:
-        raise StackError(f"file is {len(data) / 1e6:.3g} MB, over the {MAX_FILE_BYTES / 1e6:.3g} "
-                         "MB limit; expected a stack file of a few kB", file=file)
-    if b"\x00" in data:
-        raise StackError("binary file (contains NUL bytes); expected a YAML text file",
-                         file=file)
-    try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = data[: exc.start].count(b"\n") + 1
-        raise StackError(f"not UTF-8 text (byte 0x{data[exc.start]:02x} at offset {exc.start}); "
-                         "expected a UTF-8 YAML text file", file=file, line=line) from None
+    return decode_text(data, file, MAX_FILE_BYTES)
 
 
 def _from_text(text: str, file: str | None, sha: str) -> Stack:
@@ -1331,22 +1153,7 @@ def load_stack(path) -> Stack:
     5.3624
     """
     file = os.fspath(path)
-    p = Path(file)
-    if not p.exists():
-        raise StackError("file does not exist; expected the path of a YAML stack file",
-                         file=file)
-    if p.is_dir():
-        raise StackError("is a directory; expected a YAML stack file", file=file)
-    try:
-        size = p.stat().st_size
-        if size > MAX_FILE_BYTES:
-            raise StackError(f"file is {size / 1e6:.3g} MB, over the {MAX_FILE_BYTES / 1e6:.3g} "
-                             "MB limit; expected a stack file of a few kB", file=file)
-        with open(p, "rb") as fh:
-            data = fh.read(MAX_FILE_BYTES + 1)
-    except OSError as exc:
-        raise StackError(f"cannot read the file ({_one_line(exc.strerror or exc)}); expected a "
-                         "readable YAML stack file", file=file) from None
+    data = read_regular_file(file, MAX_FILE_BYTES)
     text = _decode(data, file)
     return _from_text(text, file, hashlib.sha256(data).hexdigest())
 
