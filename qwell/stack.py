@@ -17,6 +17,8 @@ File format (every dimensional value carries its unit)::
     nonparabolicity: true          # default true
     self_consistent: false         # default false
     fermi_level: 0.05 eV           # optional
+    library: ../params/lab.yaml    # optional material library (or a list; later ones win),
+                                   # relative to this file (see qwell.materials.library)
     materials:                     # optional user materials (keys of USER_KEYS)
       wall: {conduction_edge: 0.30 eV, electron_mass: 0.067}
     layers:
@@ -61,6 +63,7 @@ import yaml
 
 from . import materials as _materials
 from .errors import MaterialError, StackError, UnitError
+from .materials.library import BUILTIN as _BUILTIN_SET, load_library, material_set as _material_set
 from .units import expected_words, parse_quantity, thickness_nm as _thickness_nm, to_float, ureg
 from .yamlio import (MAX_ALIASES, MAX_YAML_NODES, decode_text, parse_marked_yaml,  # noqa: F401
                      read_regular_file)
@@ -98,7 +101,7 @@ MAX_REPEAT_DEPTH = 2
 _DEFAULT_TEMPERATURE_K = 300.0
 
 _TOP_KEYS = ("name", "temperature", "substrate", "field", "nonparabolicity",
-             "self_consistent", "fermi_level", "materials", "layers")
+             "self_consistent", "fermi_level", "library", "materials", "layers")
 _UNIFORM_KEYS = ("material", "thickness", "name", "doping")
 _GRADE_LAYER_KEYS = ("grade", "thickness", "name", "doping")
 _GRADE_KEYS = ("from", "to", "shape", "vertex")
@@ -278,7 +281,13 @@ class Stack:
     repeats : tuple of RepeatBlock
     raw : Mapping
         The parsed YAML (plain Python) for writing modified stacks; change a
-        copy and load it with :func:`stack_from_mapping`.
+        copy and load it with :func:`stack_from_mapping`.  Libraries given
+        per call (``libraries=``) are appended to its ``library`` list as
+        absolute paths, so a stack rebuilt from ``raw`` uses them too.
+    material_set : MaterialSet
+        Built-in tables with the stack's material libraries applied
+        (:mod:`qwell.materials.library`); every material look-up of the
+        stack goes through it.
     """
 
     name: str
@@ -294,6 +303,12 @@ class Stack:
     layers: tuple
     repeats: tuple
     raw: Mapping = field(repr=False, compare=False)
+    material_set: Any = field(default=_BUILTIN_SET, repr=False, compare=False, hash=False)
+
+    @property
+    def libraries(self) -> tuple:
+        """The material libraries in the order they apply (later ones win)."""
+        return self.material_set.libraries
 
     @property
     def total_thickness_nm(self) -> float:
@@ -349,16 +364,12 @@ class Stack:
                              "expected a uniform layer", file=self.path, line=layer.line,
                              key=f"layers[{layer.index}]")
         return _resolved_material(layer.material, self.temperature_K, self.user_materials,
-                                  layer.overrides)
+                                  layer.overrides, self.material_set)
 
 
 # -- material look-ups (cached) -------------------------------------------------
-@lru_cache(maxsize=4096)
-def _is_builtin_name(name: str) -> bool:
-    return bool(_materials.is_known_material(name))
-
-
-def _lookup_material(name: str, temperature_K: float, user_materials: Mapping):
+def _lookup_material(name: str, temperature_K: float, user_materials: Mapping,
+                     material_set=_BUILTIN_SET):
     if user_materials and name in user_materials:
         return user_materials[name]
     # Built-in names are looked up without the user materials, so that a bad
@@ -366,7 +377,7 @@ def _lookup_material(name: str, temperature_K: float, user_materials: Mapping):
     # user-material names as suggestions.  get_material caches by (name,
     # temperature) and repeats its validity warnings on every call.
     try:
-        return _materials.get_material(name, temperature_K)
+        return material_set.get_material(name, temperature_K)
     except MaterialError as exc:
         text = _one_line(exc)
         if user_materials and text.startswith("unknown material"):
@@ -384,8 +395,10 @@ def _apply_overrides(mat, overrides: Mapping):
     return mat.with_overrides(**dict(overrides))
 
 
-def _resolved_material(name, temperature_K, user_materials, overrides):
-    return _apply_overrides(_lookup_material(name, temperature_K, user_materials), overrides)
+def _resolved_material(name, temperature_K, user_materials, overrides,
+                       material_set=_BUILTIN_SET):
+    return _apply_overrides(_lookup_material(name, temperature_K, user_materials, material_set),
+                            overrides)
 
 
 # -- quantity parsing (cached) ----------------------------------------------------
@@ -473,10 +486,12 @@ def _type_word(value) -> str:
 class _Builder:
     """Checks one parsed stack document and builds the :class:`Stack`."""
 
-    def __init__(self, data, marks: Mapping, file: str | None):
+    def __init__(self, data, marks: Mapping, file: str | None, libraries=()):
         self.data = data
         self.marks = marks
         self.file = file
+        self.call_libraries = tuple(os.fspath(p) for p in libraries)
+        self.material_set = _BUILTIN_SET
         self.temperature_K = _DEFAULT_TEMPERATURE_K
         self.user_materials: dict = {}
         self.user_keys: Mapping = {}
@@ -568,7 +583,8 @@ class _Builder:
         if mat is not None:
             return mat
         try:
-            mat = _lookup_material(name, self.temperature_K, self.user_materials)
+            mat = _lookup_material(name, self.temperature_K, self.user_materials,
+                                   self.material_set)
         except MaterialError as exc:
             raise self.error(_expecting(exc, "a material such as GaAs or Al0.30Ga0.70As, or a "
                                         "name under 'materials'"), mapping, key, path) from None
@@ -602,7 +618,7 @@ class _Builder:
             if not isinstance(name, str) or not _NAME_RE.match(name):
                 raise self.error(f"bad material name {name!r}; expected letters, digits, _ or - "
                                  "starting with a letter", spec, name, path)
-            if _is_builtin_name(name):
+            if self.material_set.is_builtin_name(name):
                 raise self.error(f"{name!r} is a built-in material; expected a new name (adjust "
                                  "a built-in material with per-layer overrides)", spec, name,
                                  path)
@@ -716,8 +732,8 @@ class _Builder:
     def check_grade_overrides(self, grade, overrides, entry, path):
         """Overrides of a graded layer must apply at both of its ends."""
         try:
-            along = _materials.grade_function(grade.start, grade.end, self.temperature_K,
-                                                    dict(self.user_materials) or None)
+            along = self.material_set.grade_function(grade.start, grade.end, self.temperature_K,
+                                                     dict(self.user_materials) or None)
             for f in (0.0, 1.0):
                 _apply_overrides(along(f), overrides)
         except (MaterialError, TypeError, ValueError) as exc:
@@ -787,8 +803,8 @@ class _Builder:
         if (start, end) in self.seen_grades:
             return Grade(start=start, end=end, shape=shape, vertex=vertex)
         try:
-            _materials.grade_function(start, end, self.temperature_K,
-                                            dict(self.user_materials) or None)
+            self.material_set.grade_function(start, end, self.temperature_K,
+                                             dict(self.user_materials) or None)
         except MaterialError as exc:
             raise self.error(_expecting(exc, "two materials that share band parameters"),
                              entry, "grade", gpath) from None
@@ -949,6 +965,7 @@ class _Builder:
                                  top, "temperature", "temperature")
             self.temperature_K = t
 
+        self.build_material_set(top)
         if "materials" in top:
             self.build_user_materials(top)
 
@@ -991,7 +1008,39 @@ class _Builder:
                      substrate=substrate, field_kV_per_cm=float(field_kV), nonparabolicity=nonpar,
                      self_consistent=selfc, fermi_level_eV=fermi,
                      user_materials=MappingProxyType(dict(self.user_materials)),
-                     layers=tuple(layers), repeats=tuple(repeats), raw=top)
+                     layers=tuple(layers), repeats=tuple(repeats), raw=top,
+                     material_set=self.material_set)
+
+    def build_material_set(self, top):
+        """Read the stack's ``library`` files (relative to the stack) and the per-call ones."""
+        libs = []
+        written = []
+        if "library" in top and top["library"] is not None:
+            spec = top["library"]
+            items = spec if isinstance(spec, list) else [spec]
+            base = Path(self.file).parent if self.file else Path(".")
+            for i, item in enumerate(items):
+                container, key = (spec, i) if isinstance(spec, list) else (top, "library")
+                kpath = f"library[{i}]" if isinstance(spec, list) else "library"
+                if not isinstance(item, str) or not item.strip():
+                    raise self.error(f"got {_type_word(item)}; expected the path of a material "
+                                     "library file (relative to the stack file) or a list of "
+                                     "them", container, key, kpath)
+                p = Path(item.strip()).expanduser()
+                path = p if p.is_absolute() else base / p
+                line = self.line(container, key)
+                libs.append(load_library(path, referenced_by=(self.file, line, kpath)))
+                written.append(item)
+        for item in self.call_libraries:
+            resolved = str(Path(item).expanduser().resolve())
+            if any(lib.resolved == resolved for lib in libs):
+                continue  # already named by the stack (e.g. a stack rebuilt from its raw)
+            libs.append(load_library(item, referenced_by=(None, None, "libraries")))
+            written.append(resolved)
+        if self.call_libraries:
+            top["library"] = written
+        if libs:
+            self.material_set = _material_set(libs)
 
 
 def _spec_text(value) -> str:
@@ -1025,8 +1074,8 @@ def _plain_copy(value, _depth: int = 0):
 def layer_fields(stack: Stack, entry: Mapping, path: str = "layer") -> dict:
     """Check one written (non-repeat) layer entry as the loader does and build its fields.
 
-    The entry is validated in the context of ``stack`` (its temperature and
-    user materials) by the same code that loads a file, so a caller that
+    The entry is validated in the context of ``stack`` (its temperature,
+    user materials and material libraries) by the same code that loads a file, so a caller that
     changes one layer of :attr:`Stack.raw` can rebuild only that layer.
 
     Parameters
@@ -1051,11 +1100,12 @@ def layer_fields(stack: Stack, entry: Mapping, path: str = "layer") -> dict:
     builder = _Builder(entry, {}, stack.path)
     builder.temperature_K = stack.temperature_K
     builder.user_materials = dict(stack.user_materials)
+    builder.material_set = getattr(stack, "material_set", None) or _BUILTIN_SET
     builder.user_keys = dict(_materials.USER_KEYS)
     return builder.parse_layer(entry, path, {})
 
 
-def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
+def stack_from_mapping(data: Mapping, file: str | None = None, libraries=()) -> Stack:
     """Build a :class:`Stack` from an already parsed mapping (no line numbers).
 
     Parameters
@@ -1065,7 +1115,10 @@ def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
         values are strings like ``'5 nm'`` or pint Quantities.  It is copied,
         so later changes to ``data`` do not affect the stack.
     file : str, optional
-        Name used in error messages and as the default stack name.
+        Name used in error messages and as the default stack name; a
+        relative ``library`` path is read relative to it.
+    libraries : iterable of path, optional
+        Material libraries applied after the stack's own (later ones win).
 
     Raises
     ------
@@ -1082,7 +1135,7 @@ def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
     8.0
     """
     raw = _plain_copy(data)
-    builder = _Builder(raw, {}, None if file is None else str(file))
+    builder = _Builder(raw, {}, None if file is None else str(file), libraries)
     return builder.build(None if file is None else str(file), None, _stem(file))
 
 
@@ -1090,13 +1143,13 @@ def _decode(data: bytes, file: str | None) -> str:
     return decode_text(data, file, MAX_FILE_BYTES)
 
 
-def _from_text(text: str, file: str | None, sha: str) -> Stack:
+def _from_text(text: str, file: str | None, sha: str, libraries=()) -> Stack:
     data, marks = _parse_yaml(text, file)
-    builder = _Builder(data, marks, file)
+    builder = _Builder(data, marks, file, libraries)
     return builder.build(file, sha, _stem(file))
 
 
-def stack_from_text(text: str, file: str | None = None) -> Stack:
+def stack_from_text(text: str, file: str | None = None, libraries=()) -> Stack:
     """Read a stack from YAML text.
 
     Parameters
@@ -1105,6 +1158,8 @@ def stack_from_text(text: str, file: str | None = None) -> Stack:
         The YAML document.
     file : str, optional
         File name for messages (and the default stack name).
+    libraries : iterable of path, optional
+        Material libraries applied after the stack's own (later ones win).
 
     Raises
     ------
@@ -1123,15 +1178,18 @@ def stack_from_text(text: str, file: str | None = None) -> Stack:
                          f"{MAX_FILE_BYTES / 1e6:.3g} MB limit; expected a stack of a few kB",
                          file=file)
     return _from_text(text, None if file is None else str(file),
-                      hashlib.sha256(encoded).hexdigest())
+                      hashlib.sha256(encoded).hexdigest(), libraries)
 
 
-def load_stack(path) -> Stack:
+def load_stack(path, libraries=()) -> Stack:
     """Read and check a stack file.
 
     Parameters
     ----------
     path : str or os.PathLike
+    libraries : iterable of path, optional
+        Material libraries applied after the stack's own ``library`` files
+        (later ones win), e.g. from ``--library`` on the command line.
 
     Returns
     -------
@@ -1155,7 +1213,7 @@ def load_stack(path) -> Stack:
     file = os.fspath(path)
     data = read_regular_file(file, MAX_FILE_BYTES)
     text = _decode(data, file)
-    return _from_text(text, file, hashlib.sha256(data).hexdigest())
+    return _from_text(text, file, hashlib.sha256(data).hexdigest(), libraries)
 
 
 # -- writing --------------------------------------------------------------------------
