@@ -292,14 +292,14 @@ class _Parser:
         self.issues.append(LibraryIssue(self.file, self.line(container, key), path,
                                         one_line(msg), severity))
 
-    def keys_ok(self, mapping, allowed, path, what) -> bool:
+    def keys_ok(self, mapping, allowed, path, what, skip=()) -> bool:
         ok = True
         for k in mapping:
-            if k in allowed:
+            if k in allowed or k in skip:
                 continue
             close = difflib.get_close_matches(str(k), [str(a) for a in allowed], n=1, cutoff=0.6)
             hint = f" (did you mean {close[0]!r}?)" if close else ""
-            self.error(f"unknown key {k!r}{hint}; expected one of {what}: "
+            self.error(f"unknown key {k!r}{hint}; expected a key of {what}: "
                        f"{', '.join(map(str, allowed))}", mapping, k, f"{path}.{k}" if path else str(k))
             ok = False
         return ok
@@ -439,8 +439,7 @@ class _Parser:
             self.error("libraries cannot define quaternaries (they follow from the binaries and "
                        "ternary bowings); expected binaries, ternaries or materials", top,
                        "quaternaries", "quaternaries")
-        self.keys_ok({k: v for k, v in top.items() if k != "quaternaries"}, _TOP_KEYS, "",
-                     "a library")
+        self.keys_ok(top, _TOP_KEYS, "", "a library", skip=("quaternaries",))
         if "name" in top:
             if not isinstance(top["name"], str) or not top["name"].strip():
                 self.error(f"got {_type_word(top['name'])}; expected a free-text library name",
@@ -455,7 +454,7 @@ class _Parser:
                                f"sources.{k}")
                 else:
                     self.sources[str(k)] = one_line(v)
-        if not any(k in top for k in ("binaries", "ternaries", "materials")):
+        if not any(k in top for k in ("binaries", "ternaries", "materials")) and not self.issues:
             self.error("the library defines nothing; expected binaries, ternaries or materials",
                        top, None, None)
         if "binaries" in top:
@@ -654,11 +653,29 @@ class _Parser:
             if len(values) != len(params):
                 continue
             try:
-                db.user_material(name, values)
+                mat = db.user_material(name, values)
             except MaterialError as exc:
                 self.error(f"{_strip_who(exc, name)}; expected consistent material parameters",
                            spec, name, path)
                 continue
+            mhh, mlh = mat.heavy_hole_mass, mat.light_hole_mass
+            if mhh is not None and mlh is not None and mlh > mhh:
+                self.error(f"light-hole mass {mlh:.4g} m0 above the heavy-hole mass {mhh:.4g} m0; "
+                           "expected m_lh < m_hh", spec, name, path)
+                continue
+            need = (mat.electron_mass, mat.band_gap_eV, mat.spin_orbit_eV, mat.kane_energy_eV)
+            if all(v is not None for v in need):
+                F = mat.kane_F if mat.kane_F is not None else 0.0
+                me_k = kane_electron_mass(mat.band_gap_eV, mat.spin_orbit_eV,
+                                          mat.kane_energy_eV, F)
+                dev = abs(mat.electron_mass - me_k) / me_k if math.isfinite(me_k) else math.inf
+                if dev > KANE_TOLERANCE:
+                    self.error(f"electron mass {mat.electron_mass:.4g} m0 disagrees by "
+                               f"{dev * 100:.0f} % with the Kane relation (F = {F:g}"
+                               f"{'' if mat.kane_F is not None else ', not given'}): "
+                               f"{me_k:.4g} m0; expected agreement within "
+                               f"{KANE_TOLERANCE * 100:.0f} % (Kane 1957; Vurgaftman et al. 2001)",
+                               spec, name, path, severity="warning")
             self.entries.append(LibraryEntry("material", name, None,
                                              {"values": values, "sources": keys},
                                              self.line(spec, name), path, "", ""))
@@ -698,7 +715,10 @@ def _convert(number: float, unit, target: str) -> float:
         q = Q_(number, unit.strip().replace("Å", "angstrom").replace("µ", "u"))
     except Exception:  # pint raises several unrelated types
         raise UnitError(f"cannot read unit {unit!r}") from None
-    return to_float(q, target)
+    try:
+        return float(q.to(target).magnitude)
+    except Exception:  # DimensionalityError, or an offset unit
+        raise UnitError(f"unit {unit!r} does not fit this value") from None
 
 
 def _convert_text(text: str, target: str) -> float:
@@ -1030,15 +1050,14 @@ def _checked(file, resolved, data) -> tuple[MaterialLibrary | None, list, _Parse
     except LibraryError as exc:
         return None, [LibraryIssue(exc.file or file, exc.line, exc.key, exc.message)], None
     issues = list(p.issues)
-    if any(i.severity == "error" for i in issues):
-        return None, issues, p
     db._register_sources(p.registry)
+    # the physics checks run on the entries that parsed, so one pass reports everything
     lib = MaterialLibrary(path=file, resolved=resolved, sha256=p.sha,
                           name=p.name or Path(file).stem, entries=tuple(p.entries))
     mset = MaterialSet((lib,))
-    found = _binary_checks(lib, mset) + _family_checks(lib, mset)
-    issues += found
-    if any(i.severity == "error" for i in found):
+    issues += _binary_checks(lib, mset) + _family_checks(lib, mset)
+    issues.sort(key=lambda i: (i.line is None, i.line or 0))
+    if any(i.severity == "error" for i in issues):
         return None, issues, p
     warn = tuple(i for i in issues if i.severity == "warning")
     return MaterialLibrary(path=file, resolved=resolved, sha256=p.sha, name=lib.name,
