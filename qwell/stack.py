@@ -283,7 +283,8 @@ class Stack:
         The parsed YAML (plain Python) for writing modified stacks; change a
         copy and load it with :func:`stack_from_mapping`.  Libraries given
         per call (``libraries=``) are appended to its ``library`` list as
-        absolute paths, so a stack rebuilt from ``raw`` uses them too.
+        absolute paths, so a stack rebuilt from ``raw`` uses them too (every
+        ``library`` entry is stored resolved to an absolute path).
     material_set : MaterialSet
         Built-in tables with the stack's material libraries applied
         (:mod:`qwell.materials.library`); every material look-up of the
@@ -1014,7 +1015,6 @@ class _Builder:
     def build_material_set(self, top):
         """Read the stack's ``library`` files (relative to the stack) and the per-call ones."""
         libs = []
-        written = []
         if "library" in top and top["library"] is not None:
             spec = top["library"]
             items = spec if isinstance(spec, list) else [spec]
@@ -1030,16 +1030,14 @@ class _Builder:
                 path = p if p.is_absolute() else base / p
                 line = self.line(container, key)
                 libs.append(load_library(path, referenced_by=(self.file, line, kpath)))
-                written.append(item)
         for item in self.call_libraries:
             resolved = str(Path(item).expanduser().resolve())
             if any(lib.resolved == resolved for lib in libs):
                 continue  # already named by the stack (e.g. a stack rebuilt from its raw)
             libs.append(load_library(item, referenced_by=(None, None, "libraries")))
-            written.append(resolved)
-        if self.call_libraries:
-            top["library"] = written
         if libs:
+            # absolute paths: a stack rebuilt from raw, or written elsewhere, finds them
+            top["library"] = [lib.resolved for lib in libs]
             self.material_set = _material_set(libs)
 
 

@@ -22,7 +22,7 @@ from qwell.profile import band_profile
 from qwell.stack import load_stack, stack_from_mapping, stack_from_text
 
 ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "layers" / "demo-lab-library.yaml"
+DEMO = ROOT / "layers" / "libraries" / "demo-lab.yaml"
 PUMP = ROOT / "layers" / "pump-laser-well.yaml"
 
 
@@ -343,6 +343,7 @@ def test_stack_library_is_relative_to_the_stack_file(tmp_path):
     st_path.write_text(_STACK.format(library="library: ../params/lab.yaml"), encoding="utf-8")
     st = load_stack(st_path)
     assert [lib.path for lib in st.libraries] == [str(tmp_path / "stacks" / "../params/lab.yaml")]
+    assert st.raw["library"] == [str(tmp_path / "params" / "lab.yaml")]
     ev = st.material_of("well").valence_edge_eV
     assert ev != get_material("In0.2Ga0.8As").valence_edge_eV
     # design workflows rebuild stacks from raw: the library stays in force
@@ -402,3 +403,44 @@ def test_demo_library_moves_the_pump_well_offset_split():
     assert share[()] == pytest.approx(0.37, abs=0.01)
     assert share[(DEMO,)] == pytest.approx(0.65, abs=0.01)
     assert math.isfinite(share[(DEMO,)])
+
+
+def test_library_user_material_in_a_stack(tmp_path):
+    lib = write(tmp_path, "m.yaml", """\
+        materials:
+          wall:
+            conduction_edge: {value: "0.30 eV", source: "our barrier fit"}
+            band_gap: {value: 1.9, unit: eV, source: "our barrier fit"}
+            electron_mass: {value: 0.09, unit: m0, source: "our cyclotron data"}
+        """)
+    text = _STACK.format(library=f"library: {lib}").replace("In0.2Ga0.8As", "wall")
+    st = stack_from_text(text)
+    m = st.material_of("well")
+    assert (m.conduction_edge_eV, m.band_gap_eV) == (0.30, 1.9)
+    assert m.valence_edge_eV == pytest.approx(0.30 - 1.9)
+    prov = material_provenance(m, st.material_set)
+    assert prov["electron_mass"].origins[0].source_text == "our cyclotron data"
+    assert prov["electron_mass"].origins[0].line == 5
+    # the derived valence edge rests on the two values it comes from
+    assert {o.line for o in prov["valence_edge_eV"].origins} == {3, 4}
+    # a stack user material of the same name is refused like a built-in name
+    clash = text.replace("layers:", "materials:\n  wall: {conduction_edge: 0.3 eV}\nlayers:")
+    with pytest.raises(StackError, match="wall.*built-in material"):
+        stack_from_text(clash)
+
+
+def test_alloy_kane_disagreement_is_a_warning(tmp_path):
+    # Kane relation as above (Kane 1957; Vurgaftman et al. 2001): an InGaAs
+    # mass bowing of 0.03 m0 instead of 0.0091 m0 leaves In0.5Ga0.5As at
+    # 0.039 m0 against 0.044 m0 from its gap, Delta, Ep and F.
+    lib = write(tmp_path, "k.yaml", """\
+        ternaries:
+          InGaAs:
+            bowing:
+              electron_mass: {c0: 0.03, unit: m0, source: "too large on purpose"}
+        """)
+    r = check_library(lib)
+    assert r.ok and len(r.warnings) == 1
+    w = r.warnings[0]
+    assert (w.line, w.key) == (4, "ternaries.InGaAs.bowing.electron_mass")
+    assert "InGaAs: at x = 0.5" in w.message and "disagrees by 12 %" in w.message

@@ -1015,6 +1015,68 @@ def _family_checks(lib: MaterialLibrary, mset: MaterialSet) -> list:
     return out
 
 
+def _alloy_kane_checks(lib: MaterialLibrary, mset: MaterialSet) -> list:
+    """Kane-mass disagreement of ternaries whose Kane bowings the library sets (warnings).
+
+    Checked at x = 0.25, 0.5, 0.75 and 0 K for families where the library
+    gives a bowing of the electron mass, gap, spin-orbit splitting, Ep or F
+    (changed binaries are checked as binaries).  The message quotes the
+    built-in tables' disagreement at the same point: some built-in families
+    (GaAsSb, InAlAs, InAsSb, AlGaSb) disagree by 10-50 % by themselves.
+    """
+    import warnings
+
+    from ..errors import ValidityWarning
+
+    out = []
+    kane_bowings = ("electron_mass", "kane_energy_eV", "kane_F", "spin_orbit_eV", "band_gap_eV")
+    for fam, d in mset.tables.ternaries.items():
+        own = [e for e in lib.entries if e.target == fam and e.kind == "bowing"
+               and e.field in kane_bowings]
+        if not own:
+            continue
+        if any(b not in mset.tables.binaries for b in (d["end_x1"], d["end_x0"])):
+            continue
+        e0, e1 = d["elements"]
+        worst = None
+        for x in (0.25, 0.5, 0.75):
+            name = (f"{e0}{x}{e1}{1 - x}{d['common']}" if d["sublattice"] == "III"
+                    else f"{d['common']}{e0}{x}{e1}{1 - x}")
+            devs = []
+            for tables_set in (mset, BUILTIN if fam in db._TERNARIES else None):
+                if tables_set is None:
+                    devs.append(None)
+                    continue
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore", ValidityWarning)
+                    try:
+                        m = tables_set.get_material(name, 0.0)
+                    except MaterialError:
+                        devs.append(None)
+                        continue
+                if not (m.band_gap_eV and m.band_gap_eV > 0):
+                    devs.append(None)
+                    continue
+                mk = kane_electron_mass(m.band_gap_eV, m.spin_orbit_eV, m.kane_energy_eV,
+                                        m.kane_F)
+                devs.append((abs(m.electron_mass - mk) / mk if math.isfinite(mk) else math.inf,
+                             m.electron_mass, mk))
+            if devs[0] is not None and (worst is None or devs[0][0] > worst[1][0]):
+                worst = (x, devs[0], devs[1])
+        if worst is None or worst[1][0] <= KANE_TOLERANCE:
+            continue
+        x, (dev, me, mk), before = worst
+        ref = (f"; the built-in tables give {before[0] * 100:.0f} % there"
+               if before is not None else "")
+        e = own[0]
+        out.append(LibraryIssue(lib.path, e.line, e.key_path, one_line(
+            f"{fam}: at x = {x:g} (0 K) the electron mass {me:.4g} m0 disagrees by "
+            f"{dev * 100:.0f} % with the Kane relation ({mk:.4g} m0){ref}; expected agreement "
+            f"within {KANE_TOLERANCE * 100:.0f} % (Kane 1957; Vurgaftman et al. 2001)"),
+            "warning"))
+    return out
+
+
 # --------------------------------------------------------------------------- loading
 def _read(path, referenced_by):
     """(display path, resolved path, bytes); read errors name the referencing stack line."""
@@ -1056,6 +1118,8 @@ def _checked(file, resolved, data) -> tuple[MaterialLibrary | None, list, _Parse
                           name=p.name or Path(file).stem, entries=tuple(p.entries))
     mset = MaterialSet((lib,))
     issues += _binary_checks(lib, mset) + _family_checks(lib, mset)
+    if not any(i.severity == "error" for i in issues):
+        issues += _alloy_kane_checks(lib, mset)
     issues.sort(key=lambda i: (i.line is None, i.line or 0))
     if any(i.severity == "error" for i in issues):
         return None, issues, p
@@ -1064,10 +1128,25 @@ def _checked(file, resolved, data) -> tuple[MaterialLibrary | None, list, _Parse
                            entries=lib.entries, warnings=warn), issues, p
 
 
-@functools.lru_cache(maxsize=64)
-def _load_cached(file: str, resolved: str, ident: tuple, data: bytes):
+_LOADED: dict = {}  # (path, device, inode, mtime, size) -> (library or None, issues)
+
+
+def _load_cached(path, referenced_by):
+    file = os.fspath(path)
+    try:
+        st = os.stat(file)
+        ident = (file, st.st_dev, st.st_ino, st.st_mtime_ns, st.st_size)
+    except OSError:
+        ident = None
+    if ident is not None and ident in _LOADED:
+        return file, _LOADED[ident]
+    file, resolved, data = _read(path, referenced_by)
     lib, issues, _ = _checked(file, resolved, data)
-    return lib, tuple(issues)
+    if ident is not None:
+        if len(_LOADED) > 64:
+            _LOADED.clear()
+        _LOADED[ident] = (lib, tuple(issues))
+    return file, (lib, tuple(issues))
 
 
 def load_library(path, *, referenced_by=None) -> MaterialLibrary:
@@ -1096,9 +1175,7 @@ def load_library(path, *, referenced_by=None) -> MaterialLibrary:
         Not YAML, a value without unit or source, an unknown or duplicate
         key, an impossible value; the first error, with the count of others.
     """
-    file, resolved, data = _read(path, referenced_by)
-    st = os.stat(file)
-    lib, issues = _load_cached(file, resolved, (st.st_ino, st.st_mtime_ns, st.st_size), data)
+    file, (lib, issues) = _load_cached(path, referenced_by)
     if lib is None:
         errors = [i for i in issues if i.severity == "error"]
         first = errors[0]
