@@ -444,3 +444,19 @@ def test_alloy_kane_disagreement_is_a_warning(tmp_path):
     w = r.warnings[0]
     assert (w.line, w.key) == (4, "ternaries.InGaAs.bowing.electron_mass")
     assert "InGaAs: at x = 0.5" in w.message and "disagrees by 12 %" in w.message
+
+
+def test_material_set_pickles_by_rereading_its_files(tmp_path):
+    import pickle
+
+    lib = write(tmp_path, "m.yaml", """\
+        binaries:
+          GaAs: {electron_mass: {value: 0.0665, unit: m0, source: "group fit"}}
+        """)
+    mset = material_set([lib])
+    again = pickle.loads(pickle.dumps(mset))
+    assert again.get_material("GaAs").electron_mass == 0.0665
+    data = pickle.dumps(mset)
+    lib.write_text(lib.read_text().replace("0.0665", "0.066"))  # new size: a new file identity
+    with pytest.raises(LibraryError, match="changed since it was read"):
+        pickle.loads(data)

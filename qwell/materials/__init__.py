@@ -48,6 +48,7 @@ from .library import (
     MaterialLibrary,
     MaterialSet,
     check_library,
+    format_check,
     kane_electron_mass,
     load_library,
     material_set,
@@ -57,6 +58,7 @@ from .provenance import (
     ParameterProvenance,
     from_memory_count,
     material_provenance,
+    origin_label,
     provenance_json,
 )
 
@@ -83,6 +85,8 @@ __all__ = [
     "check_library",
     "material_set",
     "kane_electron_mass",
+    "format_check",
+    "origin_label",
     "Origin",
     "ParameterProvenance",
     "material_provenance",

@@ -79,6 +79,7 @@ __all__ = [
     "check_library",
     "material_set",
     "kane_electron_mass",
+    "format_check",
 ]
 
 #: Largest library file accepted [bytes].
@@ -788,6 +789,10 @@ class MaterialSet:
     def __repr__(self):
         return f"MaterialSet({[lib.path for lib in self.libraries]!r})"
 
+    def __reduce__(self):
+        # another process reads the files again (and refuses them if they changed)
+        return (_restore_set, (tuple((lib.resolved, lib.sha256) for lib in self.libraries),))
+
     # -- look-ups
     def _merged_users(self, user_materials, temperature_K):
         if not self._users:
@@ -1236,6 +1241,29 @@ def material_set(libraries=()) -> MaterialSet:
     libs = tuple(lib if isinstance(lib, MaterialLibrary) else load_library(lib)
                  for lib in libraries)
     return _set_of(libs)
+
+
+def _restore_set(files: tuple) -> MaterialSet:
+    libs = []
+    for resolved, sha in files:
+        lib = load_library(resolved)
+        if lib.sha256 != sha:
+            raise LibraryError(f"the file changed since it was read (SHA-256 {sha[:12]}... is now "
+                               f"{lib.sha256[:12]}...); expected the library the design was "
+                               "loaded with", file=resolved)
+        libs.append(lib)
+    return _set_of(tuple(libs))
+
+
+def format_check(check: LibraryCheck) -> str:
+    """Text report of :func:`check_library`: one line per finding, then a summary line."""
+    lines = [f"{'error' if i.severity == 'error' else 'warning'}: {i}"
+             for i in sorted(check.errors + check.warnings,
+                             key=lambda i: (i.line is None, i.line or 0))]
+    verdict = ("refused" if check.errors else "usable")
+    lines.append(f"{check.path}: {verdict}: {len(check.errors)} error(s), {len(check.warnings)} "
+                 f"warning(s), {check.defines} value(s) defined; SHA-256 {check.sha256}")
+    return "\n".join(lines)
 
 
 #: The built-in tables alone.

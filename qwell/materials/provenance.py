@@ -26,7 +26,7 @@ from . import _database as db
 from .library import BUILTIN, MaterialSet
 
 __all__ = ["Origin", "ParameterProvenance", "origin_of", "material_provenance",
-           "provenance_json", "from_memory_count"]
+           "provenance_json", "from_memory_count", "origin_label"]
 
 
 @dataclass(frozen=True)
@@ -193,3 +193,25 @@ def from_memory_count(materials: Iterable, material_set: MaterialSet | None = No
             n += 1
             n_mem += p.from_memory
     return n_mem, n
+
+
+def origin_label(origin: Origin, *, short: bool = False) -> str:
+    """One-line description of an origin for tables and reports.
+
+    ``'built-in: <citation> (from memory)'``, ``'library lab.yaml:19 (SHA-256
+    56bf8484df32...): <source text>; replaces ...'`` or ``'stack file'``;
+    ``short`` drops the citation and source texts.
+    """
+    if origin.kind == "library":
+        text = f"library {origin.file}:{origin.line} (SHA-256 {origin.sha256[:12]}...)"
+        if not short:
+            text += f": {origin.source_text}"
+        if origin.replaces:
+            last = origin.replaces[-1]
+            was = (f"{last.file}:{last.line}" if last.kind == "library" else f"built-in {last.key}")
+            text += f"; overrides {was}"
+        return text
+    if origin.kind == "stack":
+        return "stack file (override or user material)"
+    mem = " (from memory)" if origin.from_memory else ""
+    return f"built-in {origin.key}{mem}" if short else f"built-in: {origin.citation}{mem}"
