@@ -353,6 +353,8 @@ class _Parser:
         try:
             if isinstance(raw, (int, float)):
                 if given_unit is None:
+                    if not unit_key:
+                        words = f"the number with its unit, e.g. '{key}: {raw} {unit}'"
                     self.error(f"value {raw!r} has no unit; expected {words}", rec, key, kpath)
                     return None
                 out = _convert(float(raw), given_unit, unit)
