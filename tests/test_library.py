@@ -460,3 +460,24 @@ def test_material_set_pickles_by_rereading_its_files(tmp_path):
     lib.write_text(lib.read_text().replace("0.0665", "0.066"))  # new size: a new file identity
     with pytest.raises(LibraryError, match="changed since it was read"):
         pickle.loads(data)
+
+
+def test_design_edits_keep_the_library(tmp_path):
+    # A changed layer is rebuilt by the loader's per-layer code (stack_edit);
+    # it must use the stack's library, not the built-in tables: here a
+    # thickness in monolayers depends on a lattice constant the library sets
+    # (deliberately far from the table value).  The comparison is with the
+    # stack loaded whole with the same values.
+    from qwell.stack_edit import apply_parameters
+
+    lib = write(tmp_path, "a.yaml", """\
+        binaries:
+          InAs: {lattice_constant_A_300K: {value: 6.3, unit: angstrom, source: "test value"}}
+        """)
+    text = _STACK.format(library=f"library: {lib}").replace("7 nm", "24 ML")
+    st = stack_from_text(text)
+    for fast in (True, False):
+        edited = apply_parameters(st, {"well.x": 0.25}, fast=fast)
+        whole = stack_from_text(text.replace("In0.2Ga0.8As", "In0.25Ga0.75As"))
+        assert edited.layer("well")[0].thickness_nm == whole.layer("well")[0].thickness_nm
+        assert edited.material_of("well") == whole.material_of("well")
