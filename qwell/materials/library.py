@@ -52,17 +52,19 @@ References
 from __future__ import annotations
 
 import copy
+import dataclasses
 import difflib
 import functools
 import hashlib
 import math
 import os
 import re
+import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..errors import LibraryError, MaterialError, StackError, UnitError
+from ..errors import LibraryError, MaterialError, StackError, UnitError, ValidityWarning
 from ..units import Q_, to_float
 from ..yamlio import decode_text, one_line, parse_marked_yaml, read_regular_file
 from . import _database as db
@@ -853,8 +855,6 @@ def _library_user_material_cached(name, values, keys, T):
         else:  # derived from the given members of its group
             grp = next((g for g in groups if f in g), ())
             sources[f] = "+".join(sorted({given[g] for g in grp if g in given})) or k
-    import dataclasses
-
     return dataclasses.replace(mat, sources=sources)
 
 
@@ -1031,10 +1031,6 @@ def _alloy_kane_checks(lib: MaterialLibrary, mset: MaterialSet) -> list:
     built-in tables' disagreement at the same point: some built-in families
     (GaAsSb, InAlAs, InAsSb, AlGaSb) disagree by 10-50 % by themselves.
     """
-    import warnings
-
-    from ..errors import ValidityWarning
-
     out = []
     kane_bowings = ("electron_mass", "kane_energy_eV", "kane_F", "spin_orbit_eV", "band_gap_eV")
     for fam, d in mset.tables.ternaries.items():
