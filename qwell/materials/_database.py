@@ -210,7 +210,7 @@ def _register_sources(entries: Mapping[str, dict]) -> None:
     for k, e in entries.items():
         if k in SOURCES:
             raise MaterialError(f"internal: library source key {k!r} shadows a built-in key")
-        _LIBRARY_SOURCES[k] = dict(e)
+        _LIBRARY_SOURCES.setdefault(k, dict(e))
 
 
 def source_entry(key: str) -> dict:

@@ -138,8 +138,11 @@ def origin_of(key: str, material_set: MaterialSet | None = None, *, _depth: int 
         if material_set is not None and _depth == 0:
             replaced = tuple(origin_of(k, material_set, _depth=1)
                              for k in material_set.replaced.get(key, ()))
+        # the same bytes may be read under several paths: name the file as this set read it
+        file = next((lib.path for lib in (material_set.libraries if material_set else ())
+                     if lib.sha256 == entry["library_sha256"]), entry["library_file"])
         return Origin(kind="library", key=key, citation=cite, from_memory=_is_from_memory(entry),
-                      file=entry["library_file"], sha256=entry["library_sha256"],
+                      file=file, sha256=entry["library_sha256"],
                       line=entry["library_line"], library_key=entry["library_key"],
                       source_text=entry["library_source"], replaces=replaced)
     return Origin(kind="built-in", key=key, citation=cite, from_memory=_is_from_memory(entry))
@@ -198,8 +201,8 @@ def from_memory_count(materials: Iterable, material_set: MaterialSet | None = No
 def origin_label(origin: Origin, *, short: bool = False) -> str:
     """One-line description of an origin for tables and reports.
 
-    ``'built-in: <citation> (from memory)'``, ``'library lab.yaml:19 (SHA-256
-    56bf8484df32...): <source text>; replaces ...'`` or ``'stack file'``;
+    ``'built-in, from memory: <citation>'``, ``'library lab.yaml:19 (SHA-256
+    56bf8484df32...): <source text>; replaces ...'`` or ``'user-defined value in the stack file ...'``;
     ``short`` drops the citation and source texts.
     """
     if origin.kind == "library":
@@ -212,6 +215,6 @@ def origin_label(origin: Origin, *, short: bool = False) -> str:
             text += f"; overrides {was}"
         return text
     if origin.kind == "stack":
-        return "stack file (override or user material)"
-    mem = " (from memory)" if origin.from_memory else ""
-    return f"built-in {origin.key}{mem}" if short else f"built-in: {origin.citation}{mem}"
+        return "user-defined value in the stack file (override or user material; no published source)"
+    mem = ", from memory" if origin.from_memory else ""
+    return f"built-in {origin.key}{mem}" if short else f"built-in{mem}: {origin.citation}"
