@@ -481,3 +481,106 @@ def test_design_edits_keep_the_library(tmp_path):
         whole = stack_from_text(text.replace("In0.2Ga0.8As", "In0.25Ga0.75As"))
         assert edited.layer("well")[0].thickness_nm == whole.layer("well")[0].thickness_nm
         assert edited.material_of("well") == whole.material_of("well")
+
+
+# --------------------------------------------------------------------------- command line
+def _cli(capsys, *argv):
+    import json as _json
+
+    from qwell.cli import main
+
+    rc = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    try:
+        js = _json.loads(out)
+    except ValueError:
+        js = None
+    return rc, out, err, js
+
+
+def test_cli_materials_provenance_json(capsys, tmp_path):
+    a = write(tmp_path, "a.yaml", """\
+        binaries:
+          GaAs: {electron_mass: {value: 0.0665, unit: m0, source: "group A"}}
+        """)
+    b = write(tmp_path, "b.yaml", """\
+        binaries:
+          GaAs: {electron_mass: {value: 0.0660, unit: m0, source: "group B"}}
+        """)
+    rc, out, err, js = _cli(capsys, "materials", "GaAs", "--library", a, "--library", b, "--json")
+    assert rc == 0, err
+    assert js["parameters"]["electron_mass"] == 0.0660
+    (o,) = js["provenance"]["electron_mass"]["origins"]
+    assert (o["kind"], o["file"], o["line"], o["source"]) == ("library", str(b), 2, "group B")
+    assert [r["kind"] for r in o["replaces"]] == ["built-in", "library"]
+    assert o["replaces"][1]["file"] == str(a)
+    assert [lib["path"] for lib in js["libraries"]] == [str(a), str(b)]
+    gap = js["provenance"]["band_gap_eV"]
+    assert gap["from_memory"] and gap["origins"][0]["key"] == "vurgaftman2001"
+    # the table says so too: the later library, and what it overrides
+    rc, out, err, _ = _cli(capsys, "materials", "GaAs", "--library", a, "--library", b)
+    assert rc == 0 and f"{b}:2" in out and f"overrides {a}:2" in out
+
+
+def test_cli_check(capsys, tmp_path):
+    rc, out, err, _ = _cli(capsys, "materials", "--check", DEMO)
+    assert rc == 0 and "usable: 0 error(s), 0 warning(s), 1 value(s)" in out
+    bad = write(tmp_path, "bad.yaml", """\
+        binaries:
+          GaAs:
+            electron_mass: {value: 0.067, source: s}
+            gamma2: {value: -2.06, unit: 1, source: s}
+        """)
+    rc, out, err, _ = _cli(capsys, "materials", "--check", bad)
+    assert rc == 2
+    lines = out.splitlines()
+    assert lines[0].startswith(f"error: {bad}:3: binaries.GaAs.electron_mass.value: value 0.067 "
+                               "has no unit")
+    assert lines[1].startswith(f"error: {bad}:4: binaries.GaAs.gamma2: GaAs: gamma2 = -2.06 < 0")
+    assert "refused: 2 error(s)" in lines[-1]
+    rc, out, err, js = _cli(capsys, "materials", "--check", bad, "--json")
+    assert rc == 2 and not js["usable"] and [e["line"] for e in js["errors"]] == [3, 4]
+    rc, out, err, _ = _cli(capsys, "materials", "--check", tmp_path / "none.yaml")
+    assert rc == 2 and err.startswith("qwell: error: ") and "file does not exist" in err
+    # a stack command refuses the bad library with its file:line:key
+    rc, out, err, _ = _cli(capsys, "profile", PUMP, "--library", bad)
+    assert rc == 2 and err.startswith(f"qwell: error: {bad}:3: binaries.GaAs.electron_mass.value:")
+
+
+def test_cli_levels_line_moves_with_the_demo_library(capsys):
+    # The demo library (invented) moves the pump well's offset split from ~37 % to
+    # ~65 % in the conduction band: e1 deepens, hh1 gets shallower, the e1-hh1 line
+    # moves to shorter wavelength.  Values are what qwell computes (regression of the
+    # README's example), the direction is the physics.
+    rc, out, err, before = _cli(capsys, "levels", PUMP, "--json")
+    rc2, out2, err2, after = _cli(capsys, "levels", PUMP, "--library", DEMO, "--json")
+    assert rc == rc2 == 0, err + err2
+
+    def line(js):
+        return next(t for t in js["transitions"] if (t["from"], t["to"]) == ("e1", "hh1"))
+
+    lam0, lam1 = line(before)["wavelength_um"], line(after)["wavelength_um"]
+    assert lam1 < lam0 and 0.005 < lam0 - lam1 < 0.010
+
+
+@pytest.mark.slow
+def test_report_lists_libraries_provenance_and_from_memory_count(tmp_path):
+    import hashlib
+
+    pypdf = pytest.importorskip("pypdf")  # an independent PDF reader
+    from qwell.report import build_report
+
+    st = load_stack(PUMP, libraries=[DEMO])
+    res = build_report(st, out_dir=tmp_path)
+    pages = [" ".join((p.extract_text() or "").split())
+             for p in pypdf.PdfReader(str(res.pdf_path)).pages]
+    sha = hashlib.sha256(DEMO.read_bytes()).hexdigest()
+    for page in pages:  # the reproducibility footer of every page
+        assert f"demo-lab.yaml SHA-256 {sha}" in page
+    text = " ".join(pages)
+    # GaAs and In0.2Ga0.8As, 21 rows each: every value rests in part on a
+    # from-memory entry (the binaries are built-in) although the VBO bowing is the library's
+    assert "42 of the 42 values in these tables rest at least in part on entries marked " \
+           "'from memory'" in text
+    assert "demo-lab.yaml:19" in text and "overrides built-in vurgaftman2001" in text
+    assert "demo group: PL fits of five invented" in text
