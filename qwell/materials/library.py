@@ -788,7 +788,7 @@ class MaterialSet:
         self._users = users
         self.tables = (db._BUILTIN if not self.libraries
                        else db._Tables(binaries, ternaries, db._QUATERNARIES))
-        self.warnings = ()
+        self.warnings = tuple(w for lib in self.libraries for w in lib.warnings)
 
     def __repr__(self):
         return f"MaterialSet({[lib.path for lib in self.libraries]!r})"
@@ -1223,9 +1223,7 @@ def check_library(path) -> LibraryCheck:
 
 @functools.lru_cache(maxsize=64)
 def _set_of(libraries: tuple) -> MaterialSet:
-    mset = MaterialSet(libraries)
-    mset.warnings = tuple(w for lib in libraries for w in lib.warnings)
-    return mset
+    return MaterialSet(libraries)
 
 
 def material_set(libraries=()) -> MaterialSet:
