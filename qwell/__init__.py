@@ -13,6 +13,8 @@ The Python API in one place (each name lives in the module of its topic):
 ``plot_band_diagram``   the band diagram drawn where a caller's matplotlib Axes is
 ``build_report``        the design-review PDF and band-diagram PNG
 ``get_material``        one material's parameters (with their sources)
+``check_library``       check a material library file before use
+``material_provenance`` where each parameter of a material came from
 ======================  ==========================================================
 
 Energies are in eV, lengths in nm, masses in m0, temperatures in K (see
@@ -63,8 +65,12 @@ _API = {
     "build_report": "qwell.report",
     "ReportResult": "qwell.report",
     "get_material": "qwell.materials",
+    "check_library": "qwell.materials",
+    "load_library": "qwell.materials",
+    "material_provenance": "qwell.materials",
     "QwellError": "qwell.errors",
     "StackError": "qwell.errors",
+    "LibraryError": "qwell.errors",
     "ValidityWarning": "qwell.errors",
 }
 

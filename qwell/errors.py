@@ -11,6 +11,7 @@ from __future__ import annotations
 __all__ = [
     "QwellError",
     "StackError",
+    "LibraryError",
     "MaterialError",
     "UnitError",
     "ConvergenceError",
@@ -58,6 +59,14 @@ class StackError(ValueError, QwellError):
             where = f"line {self.line}: "
         key = f"{self.key}: " if self.key else ""
         return f"{where}{key}{self.message}"
+
+
+class LibraryError(StackError):
+    """A material-library file is invalid (same ``FILE:LINE: KEY: message`` form).
+
+    A library is an input file like a stack, so it shares the stack error's
+    file/line/key fields and message layout.
+    """
 
 
 class MaterialError(ValueError, QwellError):

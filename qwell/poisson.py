@@ -72,7 +72,7 @@ from scipy.special import expit
 
 from .constants import E_C, EPS0_F_PER_M, HBAR_J_S, KB_EV_PER_K, M0_KG
 from .errors import MaterialError, StackError
-from .materials import grade_function
+from .materials.library import BUILTIN as _BUILTIN_SET
 
 __all__ = [
     "POISSON_EV_NM2_PER_CM3",
@@ -193,8 +193,9 @@ def _layer_dielectric(stack, layer):
     if layer.grade is None:
         mats = [stack.material_of(layer)]
     else:
-        fn = grade_function(layer.grade.start, layer.grade.end, stack.temperature_K,
-                            stack.user_materials)
+        mset = getattr(stack, "material_set", None) or _BUILTIN_SET
+        fn = mset.grade_function(layer.grade.start, layer.grade.end, stack.temperature_K,
+                                 stack.user_materials)
         mats = [fn(0.0), fn(1.0)]
         if layer.overrides:
             mats = [m.with_overrides(**dict(layer.overrides)) for m in mats]

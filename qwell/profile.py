@@ -33,7 +33,7 @@ from scipy.interpolate import CubicSpline
 
 from .bands import BAND_NAMES, Band, Piece, RepeatInfo
 from .errors import MaterialError, StackError
-from .materials import get_material, grade_function
+from .materials.library import BUILTIN as _BUILTIN_SET
 from .strain import critical_thickness_nm, strain as _strain
 
 __all__ = ["LayerProfile", "Profile", "band_profile", "FIELD_EV_PER_NM_PER_KV_CM"]
@@ -280,6 +280,11 @@ _BAND_ATTRS = {
 }
 
 
+def _material_set(stack):
+    """The stack's material tables (built-in plus its libraries)."""
+    return getattr(stack, "material_set", None) or _BUILTIN_SET
+
+
 def _layer_material_fn(stack, layer):
     """(f(t) -> Material, display name, uniform?) for one layer."""
     T = stack.temperature_K
@@ -288,7 +293,7 @@ def _layer_material_fn(stack, layer):
         mat = stack.material_of(layer)
         return (lambda t, _m=mat: _m), mat.name, True
     g = layer.grade
-    fn = grade_function(g.start, g.end, T, stack.user_materials)
+    fn = _material_set(stack).grade_function(g.start, g.end, T, stack.user_materials)
     if overrides:
         def at(t, _fn=fn, _o=overrides):
             return _fn(float(g.fraction(np.array([t]))[0])).with_overrides(**_o)
@@ -328,7 +333,8 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
     T = stack.temperature_K
     substrate_mat = None
     if stack.substrate:
-        substrate_mat = get_material(stack.substrate, T, stack.user_materials)
+        substrate_mat = _material_set(stack).get_material(stack.substrate, T,
+                                                          stack.user_materials)
     slope = stack.field_kV_per_cm * FIELD_EV_PER_NM_PER_KV_CM
 
     funcs: list[_LayerFunctions] = []

@@ -21,7 +21,7 @@ ROOT = Path(__file__).resolve().parents[1] / "qwell"
 LAYERS = (
     ("constants", "errors"),
     ("units",),
-    ("fileio", "parallel"),
+    ("fileio", "parallel", "yamlio"),
     ("materials",),
     ("strain", "formula"),
     ("stack", "stack_edit"),

@@ -9,15 +9,18 @@ from __future__ import annotations
 import json
 import math
 import sys
+import warnings
 from dataclasses import replace
 
 import numpy as np
 
+from ..errors import ValidityWarning
 from ..levels import prepare_profile
+from ..materials import load_library
 from ..stack import load_stack
 
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
-           "table", "fmt", "unit_text", "add_self_consistent_option"]
+           "table", "fmt", "unit_text", "add_self_consistent_option", "add_library_option"]
 
 #: Exit status of every user error (bad input, bad option).
 EXIT_USAGE = 2
@@ -30,10 +33,24 @@ def add_self_consistent_option(parser) -> None:
                              "(also set by 'self_consistent: true' in the stack)")
 
 
-def load(path, self_consistent: bool = False):
+def add_library_option(parser) -> None:
+    """Add ``--library FILE`` (repeatable) to a command that loads a stack."""
+    parser.add_argument("--library", action="append", default=[], metavar="FILE",
+                        help="material library (YAML, see 'qwell materials --check'); "
+                             "repeatable, applied after the stack's own 'library:' files, later "
+                             "ones win")
+
+
+def load(path, self_consistent: bool = False, libraries=()):
     """Load a stack; ``self_consistent`` (the ``--self-consistent`` flag) switches on the
-    charged path as if the stack said ``self_consistent: true``."""
-    stack = load_stack(path)
+    charged path as if the stack said ``self_consistent: true``; ``libraries`` (``--library``)
+    are applied after the stack's own.  A library's check warnings (Kane-mass disagreement)
+    are issued as :class:`~qwell.errors.ValidityWarning`."""
+    for lib in libraries or ():
+        load_library(lib)  # a bad --library file is named first (file:line:key), not via the stack
+    stack = load_stack(path, libraries=tuple(libraries or ()))
+    for issue in stack.material_set.warnings:
+        warnings.warn(f"material library {issue}", ValidityWarning, stacklevel=2)
     if self_consistent and not stack.self_consistent:
         stack = replace(stack, self_consistent=True,
                         raw={**dict(stack.raw), "self_consistent": True})

@@ -19,7 +19,8 @@ from ..errors import ParameterError, QwellError
 from ..fileio import atomic_write_text
 from ..stack import dump_stack_yaml
 from ..units import spectral_to_eV
-from .common import add_self_consistent_option, fmt, load, print_json, table, unit_text
+from .common import (add_library_option, add_self_consistent_option, fmt, load, print_json,
+                     table, unit_text)
 from .json_out import size_json, sweep_json, tolerance_json
 
 __all__ = ["register", "cmd_size", "cmd_sweep", "cmd_tolerance"]
@@ -41,6 +42,7 @@ def register(subparsers) -> None:
     s.add_argument("--write", metavar="FILE", help="write the sized stack as YAML")
     _add_parallel(s)
     add_self_consistent_option(s)
+    add_library_option(s)
     s.set_defaults(func=cmd_size)
 
     w = subparsers.add_parser("sweep", help="states and transitions over a parameter range "
@@ -64,6 +66,7 @@ def register(subparsers) -> None:
     w.add_argument("--png", metavar="FILE", help="write a plot (a colour map for two --vary)")
     _add_parallel(w)
     add_self_consistent_option(w)
+    add_library_option(w)
     w.set_defaults(func=cmd_sweep)
 
     t = subparsers.add_parser("tolerance", help="wavelength spread from growth tolerances")
@@ -85,6 +88,7 @@ def register(subparsers) -> None:
     t.add_argument("--json", action="store_true")
     _add_parallel(t)
     add_self_consistent_option(t)
+    add_library_option(t)
     t.set_defaults(func=cmd_tolerance)
 
 
@@ -113,7 +117,7 @@ def _parallel_kw(args) -> dict:
 # ---------------------------------------------------------------------------
 def cmd_size(args) -> int:
     """Run ``qwell size``; returns the exit status."""
-    stack = load(args.stack, args.self_consistent)
+    stack = load(args.stack, args.self_consistent, args.library)
     p = get_parameter(stack, args.vary)
     target = spectral_to_eV(args.target)
     bounds = None
@@ -203,7 +207,7 @@ def _sweep_axes(stack, args) -> list:
 
 def cmd_sweep(args) -> int:
     """Run ``qwell sweep``; returns the exit status."""
-    stack = load(args.stack, args.self_consistent)
+    stack = load(args.stack, args.self_consistent, args.library)
     axes = _sweep_axes(stack, args)
     (p1, v1) = axes[0]
     p2, v2 = (axes[1] if len(axes) > 1 else (None, None))
@@ -287,7 +291,7 @@ def _extra_tolerances(items) -> dict:
 
 def cmd_tolerance(args) -> int:
     """Run ``qwell tolerance``; returns the exit status."""
-    stack = load(args.stack, args.self_consistent)
+    stack = load(args.stack, args.self_consistent, args.library)
     thick = _split_assignments(args.thickness, "--thickness") if args.thickness else {"*": "1 ML"}
     comp = (_split_assignments(args.composition, "--composition") if args.composition
             else {"*": "0.01"})

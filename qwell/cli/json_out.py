@@ -13,8 +13,9 @@ import math
 import numpy as np
 
 from ..levels import compare_methods, depolarised_lines
+from ..materials import material_provenance, provenance_json
 
-__all__ = ["material_list_json", "material_json", "layer_profile_json", "profile_json",
+__all__ = ["material_list_json", "material_json", "library_json", "library_check_json", "layer_profile_json", "profile_json",
            "self_consistent_json", "self_consistent_profile_json", "state_json",
            "miniband_json", "transition_json", "solution_json", "comparison_json", "levels_json",
            "spectrum_json", "size_json", "sweep_json", "monte_carlo_json", "tolerance_json"]
@@ -38,11 +39,34 @@ def material_list_json(names) -> dict:
     return {"materials": names}
 
 
-def material_json(material, temperature_K: float) -> dict:
-    """One material at a temperature: composition, parameters and their sources."""
+def material_json(material, temperature_K: float, material_set=None) -> dict:
+    """One material at a temperature: composition, parameters, their sources, and the
+    provenance of each value (built-in with its citation and from-memory mark, library file
+    with path, SHA-256, line and the group's source text, or stack file; what a library value
+    replaced), plus the libraries applied in order."""
+    libs = material_set.libraries if material_set is not None else ()
     return {"name": material.name, "family": material.family,
             "composition": dict(material.composition), "temperature_K": temperature_K,
-            "parameters": material.parameters(), "sources": material.parameter_sources()}
+            "parameters": material.parameters(), "sources": material.parameter_sources(),
+            "provenance": provenance_json(material_provenance(material, material_set)),
+            "libraries": [library_json(lib) for lib in libs]}
+
+
+def library_json(library) -> dict:
+    """One applied material library: path, absolute path, SHA-256, name, values defined."""
+    return {"path": library.path, "resolved": library.resolved, "sha256": library.sha256,
+            "name": library.name, "values": len(library.entries)}
+
+
+def _issue_json(issue) -> dict:
+    return {"file": issue.file, "line": issue.line, "key": issue.key, "message": issue.message}
+
+
+def library_check_json(check) -> dict:
+    """Result of ``qwell materials --check FILE``."""
+    return {"path": check.path, "sha256": check.sha256, "usable": check.ok,
+            "values": check.defines, "errors": [_issue_json(i) for i in check.errors],
+            "warnings": [_issue_json(i) for i in check.warnings]}
 
 
 # ---------------------------------------------------------------------------

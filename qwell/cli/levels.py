@@ -7,7 +7,8 @@ from dataclasses import dataclass, replace
 from ..errors import QwellError
 from ..levels import compare_methods, depolarised_lines, solve_profile
 from ..optics import plot_spectrum, select_transitions, spectrum, strength
-from .common import add_self_consistent_option, load, print_json, profile_and_charge, table
+from .common import (add_library_option, add_self_consistent_option, load, print_json,
+                     profile_and_charge, table)
 from .json_out import levels_json
 
 __all__ = ["register", "cmd_levels", "LevelsOptions"]
@@ -35,6 +36,7 @@ def register(subparsers) -> None:
     lv.add_argument("--spectrum", choices=["intersubband", "interband"],
                     help="which lines the --png spectrum shows (default: intersubband if any)")
     add_self_consistent_option(lv)
+    add_library_option(lv)
     lv.set_defaults(func=cmd_levels)
 
 
@@ -59,6 +61,8 @@ class LevelsOptions:
     lineshape, axis : str
     spectrum_kind : str or None
         'intersubband', 'interband' or None (intersubband if any).
+    libraries : tuple of str
+        Material library files (``--library``), applied after the stack's own.
     """
 
     stack_path: str
@@ -74,6 +78,7 @@ class LevelsOptions:
     lineshape: str = "lorentzian"
     axis: str = "wavelength"
     spectrum_kind: str | None = None
+    libraries: tuple = ()
 
     @classmethod
     def from_args(cls, args) -> LevelsOptions:
@@ -89,13 +94,13 @@ class LevelsOptions:
                    wavefunctions=args.wavefunctions, hole_intersubband=args.hole_intersubband,
                    self_consistent=args.self_consistent, png=args.png,
                    linewidth_meV=args.linewidth, lineshape=args.lineshape, axis=args.axis,
-                   spectrum_kind=args.spectrum)
+                   spectrum_kind=args.spectrum, libraries=tuple(args.library))
 
 
 def cmd_levels(args) -> int:
     """Run ``qwell levels``; returns the exit status."""
     opts = LevelsOptions.from_args(args)
-    stack = load(opts.stack_path, opts.self_consistent)
+    stack = load(opts.stack_path, opts.self_consistent, opts.libraries)
     prof, sc = profile_and_charge(stack, quiet=opts.json)
     sols = {m: solve_profile(prof, bands=opts.band, method=m, transitions=(m == "exact"),
                              hole_intersubband=opts.hole_intersubband) for m in opts.methods}

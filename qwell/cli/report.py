@@ -8,7 +8,7 @@ when missing; a folder given with ``-o`` must exist) and prints both paths.
 from __future__ import annotations
 
 from ..report import DEFAULT_OUT_DIR, build_report
-from .common import add_self_consistent_option, load
+from .common import add_library_option, add_self_consistent_option, load
 
 __all__ = ["register", "cmd_report"]
 
@@ -22,12 +22,13 @@ def register(subparsers) -> None:
     r.add_argument("--transition", action="append", metavar="e1-e2",
                    help="transition to review (repeatable); default: the strongest ones")
     add_self_consistent_option(r)
+    add_library_option(r)
     r.set_defaults(func=cmd_report)
 
 
 def cmd_report(args) -> int:
     """Run ``qwell report``; returns the exit status."""
-    stack = load(args.stack, args.self_consistent)
+    stack = load(args.stack, args.self_consistent, args.library)
     given = args.out_dir is not None
     res = build_report(stack, transitions=args.transition,
                        out_dir=args.out_dir if given else DEFAULT_OUT_DIR,

@@ -22,7 +22,7 @@ from pathlib import Path
 from .. import __version__
 from ..diagram import draw_band_diagram
 from ..errors import QwellError
-from ..materials import citation, get_material, parse_formula
+from ..materials import from_memory_count, material_provenance, origin_label, parse_formula
 from ..optics import EXCITON_NOTE
 from .data import ReportData
 from .spectra import spectra_draw, spectra_rows
@@ -110,7 +110,15 @@ def footer_lines(data: ReportData, page: int | None = None, pages: int | None = 
     if page is not None:
         line1 += f" {_SIGMA} page {page} of {pages}"
     line2 = f"input {src} {_SIGMA} SHA-256 {sha}"
-    return [line1, line2, _solver_text(data)]
+    out = [line1, line2, _solver_text(data)]
+    libs = st.libraries
+    if libs:
+        # one line: the full digest for one library, 16 digits each for several (page 3 lists
+        # every full digest)
+        digits = 64 if len(libs) == 1 else 16
+        out.append("material libraries (later wins): " + f" {_SIGMA} ".join(
+            f"{Path(lib.path).name} SHA-256 {lib.sha256[:digits]}" for lib in libs))
+    return out
 
 
 # ---------------------------------------------------------------------------
@@ -199,6 +207,10 @@ def stack_blocks(data: ReportData) -> list:
         ["name", st.name],
         ["file", str(st.path) if st.path else "(in memory)"],
         ["SHA-256 of the file", st.sha256 or "n/a"],
+    ]
+    for i, lib in enumerate(st.libraries, 1):
+        settings.append([f"material library {i}", f"{lib.path} (SHA-256 {lib.sha256})"])
+    settings += [
         ["temperature", f"{st.temperature_K:g} K"],
         ["substrate", st.substrate or "none (layers unstrained)"],
         ["field", f"{st.field_kV_per_cm:g} kV/cm"],
@@ -252,32 +264,28 @@ def _distinct_materials(data: ReportData):
                 out.setdefault(key, m)
             else:
                 for name in (L.grade.start, L.grade.end):
-                    out.setdefault(name, get_material(name, st.temperature_K, st.user_materials))
+                    out.setdefault(name, st.material_set.get_material(name, st.temperature_K,
+                                                                      st.user_materials))
         except QwellError:
             continue
     if st.substrate and st.substrate not in out:
         try:
-            out[st.substrate + " (substrate)"] = get_material(st.substrate, st.temperature_K,
-                                                              st.user_materials)
+            out[st.substrate + " (substrate)"] = st.material_set.get_material(
+                st.substrate, st.temperature_K, st.user_materials)
         except QwellError:
             pass
     return list(out.items())
 
 
-def _citations_of(mat, field_name):
-    """Full citation strings of one parameter of one material."""
-    key = mat.sources.get(field_name)
-    out = []
-    for k in str(key).split("+") if key else ():
-        k = k.strip()
-        if k == "user":
-            out.append("user-defined value in the stack file (no published source)")
-            continue
-        try:
-            out.append(citation(k))
-        except QwellError:   # a key missing from the sources table: show the key itself
-            out.append(k)
-    return out
+def _citations_of(mat, field_name, material_set=None):
+    """Provenance lines of one parameter of one material (see qwell.materials.provenance).
+
+    A built-in entry gives its citation and whether it was entered from memory, a library
+    entry its file, line, SHA-256, the group's source text and what it overrides, a stack
+    override says so.
+    """
+    p = material_provenance(mat, material_set).get(field_name)
+    return [origin_label(o) for o in p.origins] if p is not None else []
 
 
 def material_blocks(data: ReportData) -> list:
@@ -307,17 +315,32 @@ def material_blocks(data: ReportData) -> list:
                     vals.append("—")
                     continue
                 any_val = True
-                refs = ",".join(str(num(c)) for c in _citations_of(m, key))
+                refs = ",".join(str(num(c)) for c in _citations_of(m, key, data.stack.material_set))
                 vals.append(f"{format(v, spec)} [{refs}]" if refs else format(v, spec))
             if any_val:
                 rows.append([label, unit] + vals)
         blocks.append(Table(["parameter", "unit"] + [k for k, _ in part], rows,
                             ["l", "l"] + ["r"] * len(part), wrap=tuple(range(2, 2 + len(part))),
                             title="Parameters used" if g0 == 0 else ""))
+    fields = [key for key, *_ in _PARAM_ROWS]
+    n_mem, n_all = from_memory_count([m for _, m in mats], data.stack.material_set, fields)
     blocks.append(Paragraph("Numbers in brackets refer to the sources below. Alloy values are "
                             "interpolated from the binaries as the first source describes; band "
                             "edges are unstrained (strain shifts appear in the band diagram).",
                             size=8, color="0.25"))
+    blocks.append(Paragraph(
+        f"{n_mem} of the {n_all} values in these tables rest at least in part on entries "
+        "marked 'from memory' (typed in from recollection of the publication and not "
+        "re-checked against it); check those against the source, or bring calibrated values "
+        "in a material library, before signing the design off.", size=8))
+    libs = data.stack.libraries
+    if libs:
+        blocks.append(Table(["#", "material library (applied in this order; later wins)",
+                             "SHA-256"],
+                            [[str(i), f"{lib.path} ({lib.name}, {len(lib.entries)} values)",
+                              lib.sha256] for i, lib in enumerate(libs, 1)],
+                            ["l", "l", "l"], wrap=(1, 2), title="Material libraries",
+                            zebra=False))
     blocks.append(Heading("Sources", 11.0))
     for i, c in enumerate(cites, 1):
         blocks.append(Paragraph(c, size=8, bullet=f"[{i}]"))
