@@ -296,17 +296,20 @@ def form_factors(z_nm, rho, q_per_nm) -> np.ndarray:
         parts = [form_factors(z, r, q[:, a:a + chunk]) for a in range(0, K, chunk)]
         return np.concatenate(parts, axis=1).reshape(out_shape)
     h = np.diff(z)                                  # (N-1,)
+    if float(np.ptp(h)) <= 1e-12 * float(h[0]):
+        h = h[:1]                                   # uniform grid: one segment length
     qq = q[:, :, None]                              # (P, K, 1)
-    x = qq * h[None, None, :]                       # q h per segment (P, K, N-1)
+    x = qq * h[None, None, :]                       # q h per segment, (P, K, 1 or N-1)
     small = x < _SMALL_QH
     with np.errstate(divide="ignore", invalid="ignore"):
         g0 = np.where(small, 1.0 - x / 2 + x * x / 6, -np.expm1(-x) / x)
         g1 = np.where(small, 0.5 - x / 6 + x * x / 24, (x + np.expm1(-x)) / (x * x))
-    r0 = r[:, None, :-1]
-    r1 = r[:, None, 1:]
-    # exact int_0^h rho(z_k + s) exp(-q (h - s)) ds for linear rho on the segment
-    b = h * (r0 * g0 + (r1 - r0) * g1)              # (P, K, N-1), source of segment k -> z_{k+1}
-    S = np.zeros((P, K, N))
+    # exact int_0^h rho(z_k + s) exp(-q (h - s)) ds for rho linear on the segment:
+    # b_k = rho_k h (g0 - g1) + rho_{k+1} h g1, the source of segment k carried to z_{k+1}
+    c0 = h * (g0 - g1)
+    c1 = h * g1
+    rw = r * _trapz_weights(z)[None, :]             # outer trapezoid weights times rho
+    F = np.zeros((P, K))
     qmax = float(q.max()) if q.size else 0.0
     start = 0
     carry = np.zeros((P, K))
@@ -316,15 +319,18 @@ def form_factors(z_nm, rho, q_per_nm) -> np.ndarray:
             stop = min(max(stop, start + 1), N - 1)
         else:
             stop = N - 1
-        zs = z[start:stop + 1] - z[start]           # local coordinate, 0 .. block length
-        grow = np.exp(qq * zs[None, None, 1:])      # exp(q (z_{j+1} - z_s))
-        acc = np.cumsum(b[:, :, start:stop] * grow, axis=2)
-        decay = np.exp(-qq * zs[None, None, 1:])
-        S[:, :, start + 1:stop + 1] = decay * (carry[:, :, None] + acc)
-        carry = S[:, :, stop]
+        seg = slice(start, stop)
+        zs = z[start + 1:stop + 1] - z[start]       # local coordinate of z_{j+1}
+        grow = np.exp(qq * zs[None, None, :])       # exp(q (z_{j+1} - z_start)), <= e^500
+        bk = (r[:, None, seg] * (c0 if c0.shape[2] == 1 else c0[:, :, seg])
+              + r[:, None, start + 1:stop + 1] * (c1 if c1.shape[2] == 1 else c1[:, :, seg]))
+        acc = np.cumsum(bk * grow, axis=2)
+        acc += carry[:, :, None]
+        # S(z_{j+1}) = acc / grow; F = 2 sum_j w rho S
+        F += np.einsum("pkn,pn->pk", acc / grow, rw[:, start + 1:stop + 1])
+        carry = acc[:, :, -1] / grow[:, :, -1]
         start = stop
-    w = _trapz_weights(z)
-    F = 2.0 * np.einsum("pkn,pn->pk", S, r * w[None, :])
+    F *= 2.0
     return F.reshape(out_shape)
 
 
@@ -419,21 +425,28 @@ class RateTable:
                 "pairs": pairs}
 
 
-def _resample(z, psi, step_nm):
-    """Envelopes on a uniform grid of ``step_nm`` over the region where any of them lives."""
-    keep = np.nonzero(np.max(psi * psi, axis=0) > 1e-14 * float(np.max(psi * psi)))[0]
-    lo, hi = int(keep[0]), int(keep[-1]) + 1
-    z, psi = z[lo:hi], psi[:, lo:hi]
-    if step_nm is None:
-        return z, psi
-    h = float(step_nm)
-    if not (math.isfinite(h) and h > 0):
-        raise ParameterError(f"grid_step_nm must be positive, got {step_nm!r}")
-    n = int(math.ceil((z[-1] - z[0]) / h)) + 1
-    if n >= z.size:
-        return z, psi
-    zu = np.linspace(z[0], z[-1], max(n, 2))
-    return zu, np.vstack([np.interp(zu, z, p) for p in psi])
+def _envelopes(states, step_nm):
+    """Envelopes of all states on one grid: uniform of ``step_nm`` (linear interpolation, zero
+    outside a state's own grid) when that is coarser than their grids, else their union grid;
+    trimmed to where any envelope is non-negligible (|psi|^2 > 1e-14 of the largest)."""
+    if step_nm is not None:
+        h = float(step_nm)
+        if not (math.isfinite(h) and h > 0):
+            raise ParameterError(f"grid_step_nm must be positive, got {step_nm!r}")
+    grids = [np.asarray(s.z_nm, dtype=float) for s in states]
+    lo = min(float(g[0]) for g in grids)
+    hi = max(float(g[-1]) for g in grids)
+    finest = min(float(np.min(np.diff(g))) for g in grids)
+    if step_nm is not None and h > finest:
+        z = np.linspace(lo, hi, max(int(math.ceil((hi - lo) / h)) + 1, 2))
+        psi = np.vstack([np.interp(z, g, np.asarray(s.psi, dtype=float), left=0.0, right=0.0)
+                         for g, s in zip(grids, states)])
+    else:
+        z, psi = _common_grid(states)
+    p2 = psi * psi
+    keep = np.nonzero(np.max(p2, axis=0) > 1e-14 * float(np.max(p2)))[0]
+    a, b = int(keep[0]), int(keep[-1]) + 1
+    return z[a:b], psi[:, a:b]
 
 
 def _in_plane_masses(states, z, psi, band, mass_m0) -> np.ndarray:
@@ -446,12 +459,10 @@ def _in_plane_masses(states, z, psi, band, mass_m0) -> np.ndarray:
         if np.any(~(m > 0)):
             raise ParameterError(f"mass_m0 must be positive, got {mass_m0!r}")
         return m
+    eps = np.array([float(s.carrier_energy_eV) for s in states])
+    inv = 1.0 / np.asarray(band.mass(z[None, :], eps[:, None]), dtype=float)   # (n, N)
     w = _trapz_weights(z)
-    out = np.empty(n)
-    for k, s in enumerate(states):
-        inv = 1.0 / np.asarray(band.mass(z, float(s.carrier_energy_eV)), dtype=float)
-        out[k] = 1.0 / float(np.sum(w * psi[k] ** 2 * inv))
-    return out
+    return 1.0 / np.sum(w[None, :] * psi * psi * inv, axis=1)
 
 
 def lo_phonon_rates(states, band=None, *, phonon: LOPhonon, temperature_K: float,
@@ -507,11 +518,10 @@ def lo_phonon_rates(states, band=None, *, phonon: LOPhonon, temperature_K: float
     if thermal and T <= 0:
         thermal = False
     states.sort(key=lambda s: float(s.carrier_energy_eV))
-    z, psi = _common_grid(states)
+    z, psi = _envelopes(states, grid_step_nm)
     n = len(states)
     eps = np.array([float(s.carrier_energy_eV) for s in states])
     mass = _in_plane_masses(states, z, psi, band, mass_m0)
-    z, psi = _resample(z, psi, grid_step_nm)
 
     hw = float(phonon.energy_eV)
     occ = bose_occupation(hw, T)

@@ -87,6 +87,20 @@ def test_form_factor_rows_and_blocks():
     assert form_factors(z, d2, 0.0) == pytest.approx(1.0, rel=1e-6)
 
 
+def test_form_factor_blocks_agree_with_one_block(monkeypatch):
+    # Splitting the cumulative sum into blocks (overflow guard) must not change the result
+    # (same quadrature; self-consistency of the algorithm).
+    import qwell.lifetimes as lt
+
+    L = 30.0
+    z = np.linspace(0.0, L, 3001)
+    d = np.vstack([(2 / L) * np.sin(np.pi * z / L) * np.sin(k * np.pi * z / L) for k in (2, 3)])
+    q = np.array([[0.4, 1.3], [0.7, 2.0]])
+    one = form_factors(z, d, q)
+    monkeypatch.setattr(lt, "_KMAX_EXP", 5.0)           # q * block <= 5: many blocks
+    np.testing.assert_allclose(form_factors(z, d, q), one, rtol=1e-12)
+
+
 # ------------------------------------------------------------------------ Froehlich rates
 def test_emission_threshold_at_zero_temperature():
     # Energy conservation: at T = 0 the emission rate is exactly zero for E_21 < hbar w_LO and
