@@ -179,6 +179,45 @@ def test_thermal_average_tends_to_subband_bottom_when_cold():
     assert warm.absorption_per_s[0, 1] > 0        # hot electrons of e1 reach e2
 
 
+def test_thermal_average_against_direct_integration():
+    # Definition of the Maxwell-Boltzmann average (common practice): <W> = int W(E) exp(-E/kT)
+    # dE / kT with W(k_i) = e^2 w C n_ph m_f / (8 pi eps0 hbar^2) int_0^2pi F(q)/q dtheta
+    # (Ferreira & Bastard, Phys. Rev. B 40, 1074 (1989)), integrated here by dense
+    # Gauss-Legendre rules in energy (threshold .. threshold + 40 kT) and angle at the exact
+    # q of every node; only F(q) comes from the code (checked above against dblquad).
+    L, T = 12.0, 300.0
+    states = infinite_well(L, levels=(1, 2), points=601)
+    z = states[0].z_nm
+    rho = states[0].psi * states[1].psi
+    kT = sc.k * T / sc.e
+    hw = GAAS.energy_eV
+    e21 = states[1].energy_eV - states[0].energy_eV
+    n = 1.0 / math.expm1(hw / kT)
+    omega = hw * sc.e / sc.hbar
+    pref = sc.e ** 2 * omega * GAAS.coupling * M_GAAS * sc.m_e / (
+        8 * math.pi * sc.epsilon_0 * sc.hbar ** 2) * 1e-9        # F/q with q in 1/nm
+    xe, we = np.polynomial.legendre.leggauss(160)
+    xa, wa = np.polynomial.legendre.leggauss(120)
+
+    def average(gain, nph):
+        e0 = max(0.0, -gain)
+        E = e0 + 20 * kT * (xe + 1)                           # [e0, e0 + 40 kT]
+        th = 0.5 * math.pi * (xa + 1)                         # [0, pi], doubled below
+        ki = np.sqrt(E * M_GAAS / H2M)[:, None]
+        kf = np.sqrt((E + gain) * M_GAAS / H2M)[:, None]
+        q = np.sqrt(np.maximum(ki ** 2 + kf ** 2 - 2 * ki * kf * np.cos(th)[None, :], 0.0))
+        F = form_factors(z, rho, q.ravel()).reshape(q.shape)
+        ang = (F / q) @ (0.5 * math.pi * wa) * 2.0
+        w_e = pref * nph * ang
+        return float(np.sum(w_e * np.exp(-E / kT) / kT * 20 * kT * we))
+
+    t = lo_phonon_rates(states, phonon=GAAS, temperature_K=T, mass_m0=M_GAAS, thermal=True,
+                        grid_step_nm=None)
+    assert t.emission_per_s[1, 0] == pytest.approx(average(e21 - hw, n + 1), rel=2e-3)
+    assert t.absorption_per_s[1, 0] == pytest.approx(average(e21 + hw, n), rel=2e-3)
+    assert t.absorption_per_s[0, 1] == pytest.approx(average(-e21 + hw, n), rel=2e-3)
+
+
 def _finite_well_states(V0=0.30, a=6.0, mass=M_GAAS):
     """Bound energies of a finite square well (equal masses), from the even/odd conditions
     k tan(ka/2) = kappa and -k cot(ka/2) = kappa (e.g. Bastard, Wave Mechanics Applied to
