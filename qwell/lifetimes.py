@@ -881,19 +881,24 @@ class Lifetimes:
     radiative : tuple of RadiativeLine
         Every intersubband line with an oscillator strength, strongest first.
     figure : EmitterFigure or None
-        The chosen line's figure of merit.
+        The emitter line's figure of merit: the line asked for, else the line with the
+        largest figure of merit among those that can invert (None if no line can).
+    figures : tuple of EmitterFigure
+        Every intersubband line between the included states, largest figure of merit first.
     notes : tuple of str
     """
 
     rates: RateTable
     radiative: tuple = ()
     figure: EmitterFigure | None = None
+    figures: tuple = ()
     notes: tuple = ()
 
     def to_json(self) -> dict:
         return {"rates": self.rates.to_json(),
                 "radiative": [r.to_json() for r in self.radiative],
                 "emitter": None if self.figure is None else self.figure.to_json(),
+                "lines": [f.to_json() for f in self.figures],
                 "notes": list(self.notes)}
 
 
@@ -918,7 +923,8 @@ def solution_lifetimes(solution, line: str | None = None, *, thermal: bool = Fal
     solution : qwell.levels.Solution
         Solved with wavefunctions (the exact method).
     line : str, optional
-        Emitter line, 'e3-e2' (either order; the upper state is the higher one).
+        Emitter line, 'e2-e3' (either order; the upper state is the higher one).  Default:
+        the line with the largest figure of merit among those that can invert.
     thermal : bool
         Thermally averaged rates (see :func:`lo_phonon_rates`).
     linewidth_meV : float
@@ -977,29 +983,40 @@ def solution_lifetimes(solution, line: str | None = None, *, thermal: bool = Fal
         notes.append(ph.note)
     if refractive_index is None:
         notes.append(f"refractive index sqrt(eps_inf) = {n_index:.3f} of the host")
+    period = float(period_nm) if period_nm is not None else float(stack.total_thickness_nm)
+    figures = []
+    for t in inter:
+        if t.dipole_nm is None or not t.energy_eV > 0:
+            continue
+        figures.append(emitter_figure(table, t.final, t.initial, dipole_nm=float(t.dipole_nm),
+                                      linewidth_meV=float(linewidth_meV), period_nm=period,
+                                      refractive_index=n_index,
+                                      oscillator_strength=t.oscillator_strength,
+                                      lower_mass_m0=mass[t.initial]))
+    figures.sort(key=lambda f: -f.figure_of_merit_nm2_ps if math.isfinite(
+        f.figure_of_merit_nm2_ps) else math.inf)
+    names = ", ".join(t.name for t in inter) or "none"
     fig = None
     if line is not None:
         a, b = parse_line(line)
         for lab in (a, b):
             if lab.lower() not in (x.lower() for x in table.labels):
-                lines = ", ".join(f"{t.final}-{t.initial}" for t in inter) or "none"
                 raise ParameterError(f"no state {lab!r} for the line {line!r}; conduction "
-                                     f"states: {', '.join(table.labels)}; lines: {lines}")
-        ia, ib = table.index(a), table.index(b)
-        iu, il = (ia, ib) if table.carrier_energy_eV[ia] > table.carrier_energy_eV[ib] \
-            else (ib, ia)
-        up, lo = table.labels[iu], table.labels[il]
-        tr = next((t for t in inter if {t.initial, t.final} == {up, lo}), None)
-        if tr is None or tr.dipole_nm is None:
-            lines = ", ".join(f"{t.final}-{t.initial}" for t in inter) or "none"
-            raise ParameterError(f"no intersubband line {line!r}; lines: {lines}")
-        period = float(period_nm) if period_nm is not None else float(stack.total_thickness_nm)
-        fig = emitter_figure(table, up, lo, dipole_nm=float(tr.dipole_nm),
-                             linewidth_meV=float(linewidth_meV), period_nm=period,
-                             refractive_index=n_index,
-                             oscillator_strength=tr.oscillator_strength,
-                             lower_mass_m0=mass[lo])
-    return Lifetimes(rates=table, radiative=rad, figure=fig, notes=tuple(notes))
+                                     f"states: {', '.join(table.labels)}; lines: {names}")
+        pair = {table.labels[table.index(a)], table.labels[table.index(b)]}
+        fig = next((f for f in figures if {f.upper, f.lower} == pair), None)
+        if fig is None:
+            raise ParameterError(f"no intersubband line {line!r} with a dipole; lines: {names}")
+    else:
+        fig = next((f for f in figures if f.inversion_possible), None)
+        if figures and fig is None:
+            notes.append("no intersubband line of this stack can invert (tau_l >= tau_ul on "
+                         "every line)")
+        elif fig is not None:
+            notes.append(f"emitter line {fig.line}: the largest figure of merit of the lines "
+                         "that can invert (choose another with a line name)")
+    return Lifetimes(rates=table, radiative=rad, figure=fig, figures=tuple(figures),
+                     notes=tuple(notes))
 
 
 def _labels(lev) -> str:

@@ -355,6 +355,15 @@ def test_solution_lifetimes_of_a_stack():
     assert same.figure.upper == "e2"
     js = lt.to_json()
     assert js["emitter"]["tau_upper_ps"] == pytest.approx(lt.figure.tau_upper_ps)
+    # without a line: the inverting line of largest figure of merit, or none
+    auto = solution_lifetimes(sol)
+    inverting = [f for f in auto.figures if f.inversion_possible]
+    if inverting:
+        assert auto.figure.figure_of_merit_nm2_ps == max(f.figure_of_merit_nm2_ps
+                                                         for f in inverting)
+    else:
+        assert auto.figure is None and any("can invert" in n for n in auto.notes)
+    assert len(auto.figures) == len([t for t in sol.transitions if t.kind == "intersubband"])
     assert {"from", "to", "emission_per_s", "absorption_per_s", "time_ps"} <= set(
         js["rates"]["pairs"][0])
 
