@@ -235,6 +235,8 @@ _PARAM_ROWS = [
     ("c11_GPa", "C11", "GPa", ".1f"),
     ("c12_GPa", "C12", "GPa", ".1f"),
     ("dielectric_constant", "static dielectric constant", "", ".2f"),
+    ("high_frequency_dielectric_constant", "high-frequency dielectric constant", "", ".2f"),
+    ("lo_phonon_energy_eV", "LO-phonon energy", "eV", ".4f"),
 ]
 
 
