@@ -159,11 +159,6 @@ class LOPhonon:
         """sqrt(eps_inf): the index just above the reststrahlen band (mid-IR estimate)."""
         return math.sqrt(self.eps_infinity)
 
-    def to_json(self) -> dict:
-        return {"energy_meV": 1e3 * self.energy_eV, "eps_infinity": self.eps_infinity,
-                "eps_static": self.eps_static, "material": self.material, "layer": self.layer,
-                "note": self.note}
-
 
 def phonon_of_material(material, layer: str = "") -> LOPhonon:
     """The :class:`LOPhonon` of a :class:`~qwell.materials.Material`.
@@ -406,24 +401,6 @@ class RateTable:
         w = float(self.rate_per_s[self.index(initial), self.index(final)])
         return 1e12 / w if w > 0 else math.inf
 
-    def to_json(self) -> dict:
-        def t(w):
-            return None if not w > 0 else 1e12 / float(w)
-
-        n = len(self.labels)
-        pairs = [{"from": self.labels[i], "to": self.labels[f],
-                  "emission_per_s": float(self.emission_per_s[i, f]),
-                  "absorption_per_s": float(self.absorption_per_s[i, f]),
-                  "time_ps": t(self.rate_per_s[i, f])}
-                 for i in range(n) for f in range(n) if i != f]
-        return {"band": self.band, "temperature_K": self.temperature_K,
-                "thermal_average": self.thermal, "phonon": self.phonon.to_json(),
-                "states": [{"label": lab, "in_plane_mass_m0": float(m),
-                            "total_rate_per_s": float(w), "lifetime_ps": t(w)}
-                           for lab, m, w in zip(self.labels, self.in_plane_mass_m0,
-                                                self.total_per_s)],
-                "pairs": pairs}
-
 
 def _envelopes(states, step_nm):
     """Envelopes of all states on one grid: uniform of ``step_nm`` (linear interpolation, zero
@@ -656,15 +633,6 @@ class RadiativeLine:
     phonon_time_ps: float
     refractive_index: float
 
-    def to_json(self) -> dict:
-        return {"upper": self.upper, "lower": self.lower, "energy_eV": self.energy_eV,
-                "wavelength_um": self.wavelength_um,
-                "oscillator_strength": self.oscillator_strength,
-                "rate_per_s": self.rate_per_s, "lifetime_ns": self.lifetime_ns,
-                "phonon_time_ps": None if math.isinf(self.phonon_time_ps)
-                else self.phonon_time_ps,
-                "refractive_index": self.refractive_index}
-
 
 def radiative_lines(transitions, table: RateTable, norm_mass_m0: Mapping,
                     refractive_index: float) -> tuple:
@@ -711,7 +679,7 @@ class EmitterFigure:
     energy_eV, wavelength_um : float
         Photon energy [eV] and vacuum wavelength [µm].
     dipole_nm : float
-        |<u|z|l>| [nm].
+        |z_ul| [nm]; from :func:`solution_lifetimes` the velocity-form dipole (see there).
     tau_upper_ps, tau_lower_ps : float
         LO-phonon lifetimes of the upper and lower state (all outgoing rates) [ps].
     tau_upper_lower_ps : float
@@ -762,25 +730,6 @@ class EmitterFigure:
     def line(self) -> str:
         """'e3->e2' style name (upper first)."""
         return f"{self.upper}->{self.lower}"
-
-    def to_json(self) -> dict:
-        def f(x):
-            return None if x is None or (isinstance(x, float) and not math.isfinite(x)) \
-                else float(x)
-
-        return {"upper": self.upper, "lower": self.lower, "energy_eV": f(self.energy_eV),
-                "wavelength_um": f(self.wavelength_um), "dipole_nm": f(self.dipole_nm),
-                "tau_upper_ps": f(self.tau_upper_ps), "tau_lower_ps": f(self.tau_lower_ps),
-                "tau_upper_lower_ps": f(self.tau_upper_lower_ps),
-                "inversion_factor_ps": f(self.inversion_factor_ps),
-                "figure_of_merit_nm2_ps": f(self.figure_of_merit_nm2_ps),
-                "inversion_possible": bool(self.inversion_possible),
-                "linewidth_meV": f(self.linewidth_meV),
-                "refractive_index": f(self.refractive_index), "period_nm": f(self.period_nm),
-                "cross_section_cm2": f(self.cross_section_cm2),
-                "gain_per_current_cm_per_kA": f(self.gain_per_current_cm_per_kA),
-                "radiative_lifetime_ns": f(self.radiative_lifetime_ns),
-                "notes": list(self.notes)}
 
 
 def emitter_figure(table: RateTable, upper: str, lower: str, *, dipole_nm: float,
@@ -894,20 +843,13 @@ class Lifetimes:
     figures: tuple = ()
     notes: tuple = ()
 
-    def to_json(self) -> dict:
-        return {"rates": self.rates.to_json(),
-                "radiative": [r.to_json() for r in self.radiative],
-                "emitter": None if self.figure is None else self.figure.to_json(),
-                "lines": [f.to_json() for f in self.figures],
-                "notes": list(self.notes)}
-
 
 def parse_line(line: str) -> tuple[str, str]:
     """'e3-e2', 'e3->e2' or 'e2-e3' -> the two labels as written (order sorted out later)."""
     text = str(line).strip().replace(" ", "").replace("->", "-")
     parts = [p for p in text.split("-") if p]
     if len(parts) != 2:
-        raise ParameterError(f"line {line!r}: expected two state labels such as e3-e2")
+        raise ParameterError(f"line {line!r}: expected two state labels such as e2-e3")
     return parts[0], parts[1]
 
 
@@ -940,6 +882,14 @@ def solution_lifetimes(solution, line: str | None = None, *, thermal: bool = Fal
     quasi_bound : bool
         Also include quasi-bound resonances (their envelopes are normalised over the finite
         grid, so their rates depend on its extent); default bound states only.
+
+    Notes
+    -----
+    The dipole of each line's figure of merit is the velocity form
+    ``z_v = sqrt(f hbar^2 / (2 m_l dE))`` from its oscillator strength: the envelopes of a
+    nonparabolic band are not orthogonal (a few per cent overlap), so ``<l|z|u>`` would move
+    with the origin of z (e.g. when a cladding layer is resized); ``z_v`` does not, and equals
+    ``<l|z|u>`` for a parabolic band (Sirtori et al., Phys. Rev. B 50, 8663 (1994)).
 
     Raises
     ------
@@ -988,7 +938,7 @@ def solution_lifetimes(solution, line: str | None = None, *, thermal: bool = Fal
     for t in inter:
         if t.dipole_nm is None or not t.energy_eV > 0:
             continue
-        figures.append(emitter_figure(table, t.final, t.initial, dipole_nm=float(t.dipole_nm),
+        figures.append(emitter_figure(table, t.final, t.initial, dipole_nm=_line_dipole(t, mass),
                                       linewidth_meV=float(linewidth_meV), period_nm=period,
                                       refractive_index=n_index,
                                       oscillator_strength=t.oscillator_strength,
@@ -999,6 +949,11 @@ def solution_lifetimes(solution, line: str | None = None, *, thermal: bool = Fal
     fig = None
     if line is not None:
         a, b = parse_line(line)
+        valence = [lab for lab in (a, b) if lab.lower().startswith(("hh", "lh"))]
+        if valence:
+            raise ParameterError(f"line {line!r}: lifetimes are computed for conduction-band "
+                                 f"lines only ({valence[0]} is a valence state); conduction "
+                                 f"states: {', '.join(table.labels)}; lines: {names}")
         for lab in (a, b):
             if lab.lower() not in (x.lower() for x in table.labels):
                 raise ParameterError(f"no state {lab!r} for the line {line!r}; conduction "
@@ -1017,6 +972,21 @@ def solution_lifetimes(solution, line: str | None = None, *, thermal: bool = Fal
                          "that can invert (choose another with a line name)")
     return Lifetimes(rates=table, radiative=rad, figure=fig, figures=tuple(figures),
                      notes=tuple(notes))
+
+
+def _line_dipole(t, mass) -> float:
+    """|z_ul| of a line for the figure of merit [nm]: the velocity-form dipole
+    ``sqrt(f hbar^2 / (2 m_l dE))`` from the oscillator strength (m_l the lower state's
+    normalising mass), else the plain ``|<l|z|u>|``.
+
+    The states of a nonparabolic band are not orthogonal, so the plain dipole depends on the
+    origin of z; the velocity form does not and equals ``<l|z|u>`` for a parabolic band
+    (Sirtori, Capasso, Faist, Scandolo, Phys. Rev. B 50, 8663 (1994)).
+    """
+    f = t.oscillator_strength
+    if f is not None and f > 0 and t.energy_eV > 0:
+        return math.sqrt(f * HBAR2_2M0 / (float(mass[t.initial]) * float(t.energy_eV)))
+    return abs(float(t.dipole_nm))
 
 
 def _labels(lev) -> str:

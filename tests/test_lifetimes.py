@@ -12,6 +12,7 @@ from scipy import constants as sc
 from scipy.integrate import dblquad
 from scipy.optimize import brentq
 
+from qwell.cli.json_out import lifetimes_json
 from qwell.errors import MaterialError, ParameterError
 from qwell.levels import solve_stack
 from qwell.lifetimes import (
@@ -353,7 +354,7 @@ def test_solution_lifetimes_of_a_stack():
     assert not lt.figure.inversion_possible
     same = solution_lifetimes(sol, line="e1->e2")
     assert same.figure.upper == "e2"
-    js = lt.to_json()
+    js = lifetimes_json(lt)
     assert js["emitter"]["tau_upper_ps"] == pytest.approx(lt.figure.tau_upper_ps)
     # without a line: the inverting line of largest figure of merit, or none
     auto = solution_lifetimes(sol)
@@ -366,6 +367,24 @@ def test_solution_lifetimes_of_a_stack():
     assert len(auto.figures) == len([t for t in sol.transitions if t.kind == "intersubband"])
     assert {"from", "to", "emission_per_s", "absorption_per_s", "time_ps"} <= set(
         js["rates"]["pairs"][0])
+
+
+def test_figure_dipole_is_the_velocity_form():
+    # Parabolic band: the velocity-form dipole sqrt(f hbar^2 / (2 m dE)) equals <l|z|u>
+    # (Sirtori, Capasso, Faist, Scandolo, Phys. Rev. B 50, 8663 (1994)).
+    sol = solve_stack(stack_from_text(FINITE_WELL), bands="conduction")
+    fig = solution_lifetimes(sol, line="e1-e2").figure
+    assert fig.dipole_nm == pytest.approx(sol.transition("e1-e2").dipole_nm, rel=0.01)
+    # Nonparabolic band: the figure of merit must not move when only the origin of z moves
+    # (a thicker outer cladding far from the states; translation invariance).
+    text = FINITE_WELL.replace("nonparabolicity: false", "nonparabolicity: true")
+    far = text.replace("- {material: Al0.35Ga0.65As, thickness: 20 nm}\n  - {material: GaAs",
+                       "- {material: Al0.35Ga0.65As, thickness: 45 nm}\n  - {material: GaAs")
+    assert far != text
+    a = solution_lifetimes(solve_stack(stack_from_text(text), bands="conduction"), line="e1-e2")
+    b = solution_lifetimes(solve_stack(stack_from_text(far), bands="conduction"), line="e1-e2")
+    assert b.figure.dipole_nm == pytest.approx(a.figure.dipole_nm, rel=1e-3)
+    assert b.figure.tau_upper_ps == pytest.approx(a.figure.tau_upper_ps, rel=1e-3)
 
 
 # ------------------------------------------------------------------------ bad input
