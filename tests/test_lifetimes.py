@@ -414,3 +414,36 @@ layers:
         solution_lifetimes(sol)
     with pytest.raises(ParameterError, match="eps_static"):
         LOPhonon(energy_eV=0.036, eps_infinity=13.0, eps_static=12.0)
+
+
+# ------------------------------------------------------------------------ report
+def test_report_shows_lifetimes_for_an_intersubband_line():
+    from qwell.report import collect_report_data
+    from qwell.report.pages import lifetime_blocks
+
+    stack = stack_from_text(FINITE_WELL)
+    data = collect_report_data(stack, transitions=["e1-e2"], sensitivity=False)
+    assert data.lifetimes is not None and data.lifetimes.figure.line == "e2->e1"
+    texts = [getattr(b, "text", "") for b in lifetime_blocks(data)]
+    assert any("Emitter line e2->e1" in t for t in texts)
+    assert any("Ferreira and G. Bastard" in t for t in texts)
+    # only interband lines reviewed: no lifetimes section
+    data = collect_report_data(stack, transitions=["e1-hh1"], sensitivity=False)
+    assert data.lifetimes is None and lifetime_blocks(data) == []
+
+
+def test_report_names_missing_phonon_keys_instead_of_failing():
+    from qwell.report import collect_report_data
+
+    text = """
+materials:
+  wall: {conduction_edge: 0.30 eV, electron_mass: 0.067}
+  core: {conduction_edge: 0.0 eV, electron_mass: 0.067}
+layers:
+  - {material: wall, thickness: 15 nm}
+  - {material: core, thickness: 9 nm}
+  - {material: wall, thickness: 15 nm}
+"""
+    data = collect_report_data(stack_from_text(text), sensitivity=False)
+    assert data.lifetimes is None
+    assert "lo_phonon_energy" in data.lifetimes_note and "dielectric_constant" in data.lifetimes_note

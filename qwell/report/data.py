@@ -21,6 +21,7 @@ from .. import design
 from ..constants import HC_EV_UM
 from ..errors import QwellError, QwellWarning
 from ..levels import Solution, compare_methods, prepare_profile, solve_profile
+from ..lifetimes import Lifetimes, solution_lifetimes
 from ..optics import Transition, select_transitions
 from ..profile import Profile
 from ..selfconsistent import SelfConsistentResult
@@ -32,6 +33,7 @@ __all__ = [
     "SensitivityRow",
     "collect_report_data",
     "default_transitions",
+    "report_lifetimes",
     "sensitivity_rows",
 ]
 
@@ -99,6 +101,11 @@ class ReportData:
     tolerance_eV : float
     charge : qwell.selfconsistent.SelfConsistentResult or None
         The Schrödinger–Poisson result when the stack is solved self-consistently.
+    lifetimes : qwell.lifetimes.Lifetimes or None
+        LO-phonon lifetimes and the emitter figure of merit when the reviewed transitions
+        include an intersubband line (see :func:`report_lifetimes`).
+    lifetimes_note : str
+        Why the lifetimes are missing although an intersubband line is reviewed ('' else).
     """
 
     stack: Stack
@@ -113,6 +120,8 @@ class ReportData:
     created_utc: _dt.datetime
     tolerance_eV: float = REPORT_TOLERANCE_EV
     charge: SelfConsistentResult | None = None
+    lifetimes: Lifetimes | None = None
+    lifetimes_note: str = ""
 
 
 def default_transitions(solution) -> tuple:
@@ -287,6 +296,25 @@ def sensitivity_rows(stack, chosen, *, composition_step: float = 0.01, jobs=None
     return tuple(rows), tuple(dict.fromkeys(notes))
 
 
+def report_lifetimes(exact, chosen, named: bool) -> tuple:
+    """``(Lifetimes or None, note)`` for the reviewed transitions.
+
+    Only when an intersubband line of the conduction band is reviewed.  The emitter line is
+    that line when the user named the transitions, else the line that can invert with the
+    largest figure of merit (:func:`qwell.lifetimes.solution_lifetimes`).  A stack whose
+    host material has no LO-phonon data, or with fewer than two bound conduction states,
+    gets a note instead.
+    """
+    lines = [t for t in chosen if t.kind == "intersubband" and t.initial.startswith("e")]
+    if not lines:
+        return None, ""
+    try:
+        lt = solution_lifetimes(exact, line=lines[0].name if named else None)
+    except QwellError as exc:
+        return None, f"LO-phonon lifetimes not computed: {exc}"
+    return lt, ""
+
+
 # ---------------------------------------------------------------------------
 # everything the report shows
 # ---------------------------------------------------------------------------
@@ -321,6 +349,7 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
         else:
             chosen = default_transitions(exact)
         comparison = compare_methods(exact, semi)
+        lifetimes, lifetimes_note = report_lifetimes(exact, chosen, bool(transitions))
         if sensitivity:
             sens, sens_notes = sensitivity_rows(stack, chosen)
         else:
@@ -335,4 +364,5 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
                       chosen=tuple(chosen), comparison=comparison, sensitivity=tuple(sens),
                       sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
                       created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
-                      tolerance_eV=tolerance_eV)
+                      tolerance_eV=tolerance_eV, lifetimes=lifetimes,
+                      lifetimes_note=lifetimes_note)
