@@ -178,7 +178,11 @@ def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV, emitter=Non
     trans = tuple((t.name, float(t.energy_eV), float(t.wavelength_um)) for t in sol.transitions)
     if emitter is None:
         return states, trans, (), ()
-    return (states, trans) + _emitter_of(sol, emitter)
+    # the lifetimes use bound conduction states only: one bound-only solve with envelopes
+    # (bound labels are the same with or without the resonance search)
+    bound = solve_profile(prof, bands=("conduction",), method="exact", transitions=True,
+                          wavefunctions=True, quasi_bound=False, tolerance_eV=tolerance_eV)
+    return (states, trans) + _emitter_of(bound, emitter)
 
 
 def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("conduction",),
@@ -212,8 +216,8 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
         when the design cannot be built or solved (a :class:`QwellError`).
     emitter : str, optional
         An intersubband line (``'e2-e3'``, either order): the point also carries
-        its LO-phonon lifetimes and figure of merit (:mod:`qwell.lifetimes`;
-        needs the wavefunctions, so they are computed).
+        its LO-phonon lifetimes and figure of merit (:mod:`qwell.lifetimes`),
+        from one more solve of the bound conduction states with envelopes.
 
     Examples
     --------
@@ -228,8 +232,8 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
         try:
             s = apply_parameters(stack, values)
             states, trans, emit, lives = _solve_design(
-                s, tuple(bands), wavefunctions or emitter is not None,
-                tuple(needed) if needed else None, tolerance_eV, emitter)
+                s, tuple(bands), wavefunctions, tuple(needed) if needed else None,
+                tolerance_eV, emitter)
             error = None
         except QwellError as exc:
             if not record_errors:
