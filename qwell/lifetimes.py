@@ -518,13 +518,13 @@ def lo_phonon_rates(states, band=None, *, phonon: LOPhonon, temperature_K: float
     emission = np.zeros((n, n))
     absorption = np.zeros((n, n))
     if not thermal:
-        ok = delta > 0
-        kf = np.sqrt(np.where(ok, delta, 0.0) * mf / HBAR2_2M0)      # [1/nm]
-        F = form_factors(z, rho, np.where(ok, kf, 1.0))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            W = np.where(ok, pref_k0 * nph[None, :] * mf * F / kf, 0.0)
-        if occ == 0.0:
-            W[:, [1, 3]] = 0.0
+        ok = (delta > 0) & (nph[None, :] > 0)                       # allowed processes only
+        W = np.zeros(delta.shape)
+        rows, cols = np.nonzero(ok)
+        if rows.size:
+            kf = np.sqrt(delta[rows, cols] * mf[rows, cols] / HBAR2_2M0)   # [1/nm]
+            F = form_factors(z, rho[rows], kf)
+            W[rows, cols] = pref_k0 * nph[cols] * mf[rows, cols] * F / kf
     else:
         W = _thermal_rates(z, rho, eps, mass, src, dst, sign, nph, hw, T, pref_k0)
     for c in range(4):
