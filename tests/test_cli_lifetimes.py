@@ -42,6 +42,10 @@ def test_levels_lifetimes_text_and_json(capsys):
     assert {"from", "to", "emission_per_s", "absorption_per_s", "time_ps"} == set(
         lt["rates"]["pairs"][0])
     assert lt["rates"]["phonon"]["energy_meV"] == pytest.approx(30.2)
+    rc, out, err = run(capsys, "levels", EMITTER, "--band", "conduction", "--lifetimes",
+                       "--thermal", "--period", "50")
+    assert rc == 0, err
+    assert "thermal average over each subband" in out and "stage 50 nm" in out
 
 
 @pytest.mark.parametrize("argv, message", [
