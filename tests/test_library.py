@@ -192,7 +192,8 @@ def test_from_memory_count(tmp_path):
 
 
 def test_new_binary_and_family(tmp_path):
-    # AlP values from memory of Vurgaftman et al. (2001) Table (AlP) and the
+    # AlP values from memory of Vurgaftman et al. (2001) Table (AlP) (LO-phonon energy
+    # and eps_inf also from memory, not used by the check) and the
     # AlInP Gamma-gap bowing -0.48 eV (from memory); the check is the ternary
     # interpolation closed form written out below.
     lib = write(tmp_path, "alp.yaml", """\
@@ -217,6 +218,8 @@ def test_new_binary_and_family(tmp_path):
             c11_GPa: {value: 1330, unit: kbar, source: s}
             c12_GPa: {value: 630, unit: kbar, source: s}
             dielectric_constant: {value: 9.8, unit: 1, source: s}
+            lo_phonon_energy_eV: {value: 0.0620, unit: eV, source: s}
+            high_frequency_dielectric_constant: {value: 7.5, unit: 1, source: s}
         ternaries:
           AlInP:
             pattern: "Al(x)In(1-x)P"
@@ -578,9 +581,10 @@ def test_report_lists_libraries_provenance_and_from_memory_count(tmp_path):
     for page in pages:  # the reproducibility footer of every page
         assert f"demo-lab.yaml SHA-256 {sha}" in page
     text = " ".join(pages)
-    # GaAs and In0.2Ga0.8As, 21 rows each: every value rests in part on a
-    # from-memory entry (the binaries are built-in) although the VBO bowing is the library's
-    assert "42 of the 42 values in these tables rest at least in part on entries marked " \
+    # GaAs and In0.2Ga0.8As, 23 rows each (with the LO-phonon energy and eps_inf): every value
+    # rests in part on a from-memory entry (the binaries are built-in) although the VBO
+    # bowing is the library's
+    assert "46 of the 46 values in these tables rest at least in part on entries marked " \
            "'from memory'" in text
     assert "demo-lab.yaml:19" in text and "overrides built-in vurgaftman2001" in text
     assert "demo group: PL fits of five invented" in text

@@ -40,6 +40,9 @@ def register(subparsers) -> None:
     s.add_argument("--to", dest="hi", metavar="VALUE", help="search range end (with units)")
     s.add_argument("--json", action="store_true", help="machine-readable output")
     s.add_argument("--write", metavar="FILE", help="write the sized stack as YAML")
+    s.add_argument("--emitter", metavar="e2-e3",
+                   help="also report this intersubband line's LO-phonon lifetimes and figure "
+                        "of merit at the sized value")
     _add_parallel(s)
     add_self_consistent_option(s)
     add_library_option(s)
@@ -64,6 +67,9 @@ def register(subparsers) -> None:
     w.add_argument("--json", action="store_true")
     w.add_argument("--csv", metavar="FILE", help="write a CSV table")
     w.add_argument("--png", metavar="FILE", help="write a plot (a colour map for two --vary)")
+    w.add_argument("--emitter", metavar="e2-e3",
+                   help="follow this intersubband line's LO-phonon lifetimes and figure of "
+                        "merit over the sweep")
     _add_parallel(w)
     add_self_consistent_option(w)
     add_library_option(w)
@@ -128,7 +134,8 @@ def cmd_size(args) -> int:
     if args.write:
         if Path(args.write).exists() and Path(args.write).resolve() == Path(args.stack).resolve():
             raise QwellError(f"--write {args.write}: refusing to overwrite the input stack file")
-    res = size(stack, p.path, target, args.transition, bounds=bounds, **_parallel_kw(args))
+    res = size(stack, p.path, target, args.transition, bounds=bounds, emitter=args.emitter,
+               **_parallel_kw(args))
     if args.write:
         atomic_write_text(args.write, dump_stack_yaml(res.stack.raw), protect=[args.stack])
     if args.json:
@@ -140,6 +147,14 @@ def cmd_size(args) -> int:
     return 0
 
 
+def _em(pairs, key, spec) -> str:
+    """One emitter quantity of a design point's pairs, formatted ('∞' for an infinite time)."""
+    v = dict(pairs).get(key)
+    if v is not None and math.isinf(v) and v > 0 and key.startswith("tau"):
+        return "∞"
+    return fmt(v, spec)
+
+
 def print_size(stack, p, target_eV: float, res) -> None:
     """The target, the sized value and its error, whole-monolayer options, notes."""
     print(f"{stack.name}: {res.transition} at {HC_EV_UM / target_eV:.6g} µm ({target_eV:.6g} eV)")
@@ -148,8 +163,24 @@ def print_size(stack, p, target_eV: float, res) -> None:
     if res.monolayer_options:
         rows = [[o.monolayers, f"{o.thickness_nm:.4f}", fmt(o.wavelength_um, ".5f"),
                  fmt(o.energy_eV, ".6f")] for o in res.monolayer_options]
+        heads, aligns = ["ML", "thickness nm", "λ µm", "energy eV"], [">", ">", ">", ">"]
+        if res.emitter:
+            for o, row in zip(res.monolayer_options, rows):
+                row += [_em(o.emitter, "tau_upper_ps", ".3g"), _em(o.emitter, "tau_lower_ps", ".3g"),
+                        _em(o.emitter, "figure_of_merit_nm2_ps", ".4g")]
+            heads += ["tau_u ps", "tau_l ps", "z²τ nm² ps"]
+            aligns += [">", ">", ">"]
         print("\nWhole-monolayer options")
-        print(table(rows, ["ML", "thickness nm", "λ µm", "energy eV"], [">", ">", ">", ">"]))
+        print(table(rows, heads, aligns))
+    if res.emitter:
+        e = dict(res.emitter)
+        print(f"\nEmitter line {e['line']} at the sized value (LO-phonon lifetimes): tau_u "
+              f"{_em(res.emitter, 'tau_upper_ps', '.3g')} ps, tau_l "
+              f"{_em(res.emitter, 'tau_lower_ps', '.3g')} ps, tau_ul "
+              f"{_em(res.emitter, 'tau_upper_lower_ps', '.3g')} ps; tau_u (1 - tau_l/tau_ul) "
+              f"{_em(res.emitter, 'inversion_factor_ps', '.4g')} ps; z² tau_u (1 - tau_l/tau_ul) "
+              f"{_em(res.emitter, 'figure_of_merit_nm2_ps', '.4g')} nm² ps; gain per current "
+              f"{_em(res.emitter, 'gain_per_current_cm_per_kA', '.3g')} cm/kA")
     for n in res.notes:
         print(f"note: {n}")
 
@@ -212,7 +243,8 @@ def cmd_sweep(args) -> int:
     (p1, v1) = axes[0]
     p2, v2 = (axes[1] if len(axes) > 1 else (None, None))
     res = sweep(stack, p1.path, v1, args.transition, parameter2=None if p2 is None else p2.path,
-                values2=v2, sensitivity=args.sensitivity, **_parallel_kw(args))
+                values2=v2, sensitivity=args.sensitivity, emitter=args.emitter,
+                **_parallel_kw(args))
     if args.csv:
         atomic_write_text(args.csv, res.to_csv(), protect=[args.stack])
     if args.png:
@@ -239,23 +271,42 @@ def print_sweep(stack, p1, v1, res) -> None:
     for t in res.transitions:
         heads += [f"{t} λ µm", f"dλ {res.sensitivity_units[p1.path]}"]
         aligns += [">", ">"]
+    keys = (("tau_upper_ps", "tau_u ps", ".3g"), ("tau_lower_ps", "tau_l ps", ".3g"),
+            ("tau_upper_lower_ps", "tau_ul ps", ".3g"),
+            ("figure_of_merit_nm2_ps", "z²τ nm² ps", ".4g"),
+            ("gain_per_current_cm_per_kA", "g/J cm/kA", ".3g"))
+    if res.emitter_line is not None:
+        heads += [h for _, h, _ in keys]
+        aligns += [">"] * len(keys)
     rows = []
     for i, v in enumerate(v1):
         row = [f"{v:.6g}"] + [fmt(res.state_energy_eV[lab][i], ".5f") for lab in res.state_labels]
         for t in res.transitions:
             row += [fmt(res.wavelength_um[t][i], ".5f"), fmt(res.sensitivity[t][p1.path][i], ".3f")]
+        if res.emitter_line is not None:
+            row += [_em(((k, res.emitter[k][i]),), k, spec) for k, _, spec in keys]
         rows.append(row)
-    print(f"{stack.name}: sweep of {p1.path} (state energies in eV)")
+    print(f"{stack.name}: sweep of {p1.path} (state energies in eV"
+          + (f"; emitter line {res.emitter_line}, LO-phonon lifetimes" if res.emitter_line
+             else "") + ")")
     print(table(rows, heads, aligns))
 
 
 def print_map(stack, p1, v1, p2, v2, res) -> None:
-    """2-D map: one wavelength table per followed transition."""
+    """2-D map: one wavelength table per followed transition (and the emitter figure)."""
     print(f"{stack.name}: map of {p1.path} x {p2.path}")
     for t in res.transitions:
         print(f"\n{t} wavelength [µm]; rows {p1.path}, columns {p2.path}")
         heads = [""] + [f"{v:.4g}" for v in v2]
         rows = [[f"{v:.4g}"] + [fmt(res.wavelength_um[t][i, j], ".4f") for j in range(len(v2))]
+                for i, v in enumerate(v1)]
+        print(table(rows, heads, [">"] * len(heads)))
+    if res.emitter_line is not None:
+        fom = res.emitter["figure_of_merit_nm2_ps"]
+        print(f"\n{res.emitter_line} figure of merit z² tau_u (1 - tau_l/tau_ul) [nm² ps]; rows "
+              f"{p1.path}, columns {p2.path}")
+        heads = [""] + [f"{v:.4g}" for v in v2]
+        rows = [[f"{v:.4g}"] + [fmt(fom[i, j], ".4g") for j in range(len(v2))]
                 for i, v in enumerate(v1)]
         print(table(rows, heads, [">"] * len(heads)))
 

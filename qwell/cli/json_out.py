@@ -18,7 +18,9 @@ from ..materials import material_provenance, provenance_json
 __all__ = ["material_list_json", "material_json", "library_json", "library_check_json", "layer_profile_json", "profile_json",
            "self_consistent_json", "self_consistent_profile_json", "state_json",
            "miniband_json", "transition_json", "solution_json", "comparison_json", "levels_json",
-           "spectrum_json", "size_json", "sweep_json", "monte_carlo_json", "tolerance_json"]
+           "spectrum_json", "size_json", "sweep_json", "monte_carlo_json", "tolerance_json",
+           "phonon_json", "rate_table_json", "radiative_json", "emitter_figure_json",
+           "lifetimes_json", "emitter_pairs_json"]
 
 
 def _finite(v):
@@ -212,13 +214,13 @@ def comparison_json(stack, solutions: dict, transitions: dict) -> dict:
 
 
 def levels_json(stack, solutions: dict, transitions: dict, *, spectrum=None,
-                wavefunctions: bool = False) -> dict:
+                wavefunctions: bool = False, lifetimes=None) -> dict:
     """The ``qwell levels --json`` document.
 
     One method: its solution with ``transitions[method]``, the depolarisation-
-    shifted lines of a doped stack, each state's envelope (``wavefunctions``)
-    and the plotted ``spectrum`` when given.  Two methods:
-    :func:`comparison_json`.
+    shifted lines of a doped stack, each state's envelope (``wavefunctions``),
+    the plotted ``spectrum`` and the ``lifetimes`` (:func:`lifetimes_json`) when
+    given.  Two methods: :func:`comparison_json`.
     """
     if len(solutions) > 1:
         return comparison_json(stack, solutions, transitions)
@@ -228,7 +230,80 @@ def levels_json(stack, solutions: dict, transitions: dict, *, spectrum=None,
         out["depolarisation"] = depolarised_lines(sol)
     if spectrum is not None:
         out["spectrum"] = spectrum_json(spectrum)
+    if lifetimes is not None:
+        out["lifetimes"] = lifetimes_json(lifetimes)
     return out
+
+
+# ---------------------------------------------------------------------------
+# lifetimes
+# ---------------------------------------------------------------------------
+def phonon_json(ph) -> dict:
+    """A :class:`~qwell.lifetimes.LOPhonon`: energy [meV], permittivities, host."""
+    return {"energy_meV": 1e3 * ph.energy_eV, "eps_infinity": ph.eps_infinity,
+            "eps_static": ph.eps_static, "material": ph.material, "layer": ph.layer,
+            "note": ph.note}
+
+
+def _time_ps(rate_per_s):
+    return 1e12 / float(rate_per_s) if rate_per_s > 0 else None
+
+
+def rate_table_json(r) -> dict:
+    """A :class:`~qwell.lifetimes.RateTable`: per state the lifetime [ps] and in-plane mass
+    [m0]; per ordered pair the emission and absorption rates [1/s] and the time [ps]
+    (null when the rate is zero)."""
+    n = len(r.labels)
+    return {"band": r.band, "temperature_K": r.temperature_K, "thermal_average": r.thermal,
+            "phonon": phonon_json(r.phonon),
+            "states": [{"label": lab, "in_plane_mass_m0": float(m),
+                        "total_rate_per_s": float(w), "lifetime_ps": _time_ps(w)}
+                       for lab, m, w in zip(r.labels, r.in_plane_mass_m0, r.total_per_s)],
+            "pairs": [{"from": r.labels[i], "to": r.labels[f],
+                       "emission_per_s": float(r.emission_per_s[i, f]),
+                       "absorption_per_s": float(r.absorption_per_s[i, f]),
+                       "time_ps": _time_ps(r.rate_per_s[i, f])}
+                      for i in range(n) for f in range(n) if i != f]}
+
+
+def radiative_json(x) -> dict:
+    """A :class:`~qwell.lifetimes.RadiativeLine`: spontaneous emission of one line."""
+    return {"upper": x.upper, "lower": x.lower, "energy_eV": x.energy_eV,
+            "wavelength_um": x.wavelength_um, "oscillator_strength": x.oscillator_strength,
+            "rate_per_s": x.rate_per_s, "lifetime_ns": _finite(x.lifetime_ns),
+            "phonon_time_ps": _finite(x.phonon_time_ps), "refractive_index": x.refractive_index}
+
+
+def emitter_figure_json(f) -> dict:
+    """An :class:`~qwell.lifetimes.EmitterFigure` (non-finite values are null)."""
+    return {"upper": f.upper, "lower": f.lower, "energy_eV": _finite(f.energy_eV),
+            "wavelength_um": _finite(f.wavelength_um), "dipole_nm": _finite(f.dipole_nm),
+            "tau_upper_ps": _finite(f.tau_upper_ps), "tau_lower_ps": _finite(f.tau_lower_ps),
+            "tau_upper_lower_ps": _finite(f.tau_upper_lower_ps),
+            "inversion_factor_ps": _finite(f.inversion_factor_ps),
+            "figure_of_merit_nm2_ps": _finite(f.figure_of_merit_nm2_ps),
+            "inversion_possible": bool(f.inversion_possible),
+            "linewidth_meV": f.linewidth_meV, "refractive_index": f.refractive_index,
+            "period_nm": f.period_nm, "cross_section_cm2": _finite(f.cross_section_cm2),
+            "gain_per_current_cm_per_kA": _finite(f.gain_per_current_cm_per_kA),
+            "radiative_lifetime_ns": _finite(f.radiative_lifetime_ns), "notes": list(f.notes)}
+
+
+def lifetimes_json(lt) -> dict:
+    """A :class:`~qwell.lifetimes.Lifetimes`: rate table, radiative lines, the emitter line
+    and every line's figure of merit."""
+    return {"rates": rate_table_json(lt.rates),
+            "radiative": [radiative_json(x) for x in lt.radiative],
+            "emitter": None if lt.figure is None else emitter_figure_json(lt.figure),
+            "lines": [emitter_figure_json(f) for f in lt.figures],
+            "notes": list(lt.notes)}
+
+
+def emitter_pairs_json(pairs):
+    """The ``emitter`` pairs of a design point (line name and EMITTER_KEYS values), or None."""
+    if not pairs:
+        return None
+    return {k: (v if k == "line" else _finite(v)) for k, v in pairs}
 
 
 def spectrum_json(spec) -> dict:
@@ -247,12 +322,18 @@ def size_json(res) -> dict:
         "parameter": res.parameter, "unit": res.unit, "value": res.value,
         "wavelength_um": _finite(res.wavelength_um), "energy_eV": _finite(res.energy_eV),
         "monolayer_options": [{"monolayers": o.monolayers, "thickness_nm": o.thickness_nm,
-                               "wavelength_um": _finite(o.wavelength_um)}
+                               "wavelength_um": _finite(o.wavelength_um),
+                               **({"emitter": emitter_pairs_json(o.emitter)}
+                                  if res.emitter else {})}
                               for o in res.monolayer_options],
         "transition": res.transition, "target_energy_eV": res.target_energy_eV,
         "target_wavelength_um": res.target_wavelength_um,
         "relative_error": _finite(res.relative_error), "bracket": list(res.bracket),
-        "evaluations": res.evaluations, "notes": list(res.notes),
+        "evaluations": res.evaluations,
+        **({"emitter": emitter_pairs_json(res.emitter),
+            "lifetimes_ps": {lab: _finite(t) for lab, t in res.lifetimes_ps}}
+           if res.emitter else {}),
+        "notes": list(res.notes),
     }
 
 
@@ -290,6 +371,10 @@ def sweep_json(res) -> dict:
         "sensitivity_unit": (res.sensitivity_units[first] if one
                              else dict(res.sensitivity_units)),
         "sensitivity_method": res.sensitivity_method,
+        **({"emitter": {"line": res.emitter_line,
+                        **{k: _grid(v) for k, v in res.emitter.items()},
+                        "lifetime_ps": {lab: _grid(v) for lab, v in res.lifetime_ps.items()}}}
+           if res.emitter_line is not None else {}),
         "notes": list(res.notes),
     }
 

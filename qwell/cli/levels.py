@@ -10,6 +10,7 @@ from ..optics import plot_spectrum, select_transitions, spectrum, strength
 from .common import (add_library_option, add_self_consistent_option, load, print_json,
                      profile_and_charge, table)
 from .json_out import levels_json
+from .lifetimes import add_lifetime_options, check_band, lifetimes_of, print_lifetimes
 
 __all__ = ["register", "cmd_levels", "LevelsOptions"]
 
@@ -30,11 +31,13 @@ def register(subparsers) -> None:
                     help="also list heavy- and light-hole intersubband pairs (hh1-hh2, lh1-lh2, ...)")
     lv.add_argument("--png", metavar="FILE", help="write the absorption spectrum plot")
     lv.add_argument("--linewidth", type=float, default=10.0, metavar="MEV",
-                    help="spectrum line FWHM in meV (default 10)")
+                    help="spectrum line FWHM in meV, also the gain linewidth of --lifetimes "
+                         "(default 10)")
     lv.add_argument("--lineshape", default="lorentzian", choices=["lorentzian", "gaussian"])
     lv.add_argument("--axis", default="wavelength", choices=["wavelength", "energy"])
     lv.add_argument("--spectrum", choices=["intersubband", "interband"],
                     help="which lines the --png spectrum shows (default: intersubband if any)")
+    add_lifetime_options(lv)
     add_self_consistent_option(lv)
     add_library_option(lv)
     lv.set_defaults(func=cmd_levels)
@@ -63,6 +66,14 @@ class LevelsOptions:
         'intersubband', 'interband' or None (intersubband if any).
     libraries : tuple of str
         Material library files (``--library``), applied after the stack's own.
+    lifetimes : bool
+        LO-phonon lifetimes and the emitter figure of merit (``--lifetimes``).
+    emitter : str or None
+        Emitter line of ``--lifetimes`` (None: the best inverting line).
+    thermal : bool
+        Thermally averaged rates.
+    period_nm : float or None
+        Stage length of the gain per current density [nm].
     """
 
     stack_path: str
@@ -79,6 +90,10 @@ class LevelsOptions:
     axis: str = "wavelength"
     spectrum_kind: str | None = None
     libraries: tuple = ()
+    lifetimes: bool = False
+    emitter: str | None = None
+    thermal: bool = False
+    period_nm: float | None = None
 
     @classmethod
     def from_args(cls, args) -> LevelsOptions:
@@ -87,6 +102,11 @@ class LevelsOptions:
             raise QwellError(f"--transition needs the conduction band: transitions start from "
                              f"electron states, but --band {args.band} solves only that band; "
                              "use --band all")
+        if (args.emitter or args.thermal or args.period is not None) and not args.lifetimes:
+            raise QwellError("--emitter, --thermal and --period go with --lifetimes")
+        if args.lifetimes:
+            if args.method == "semiclassical":
+                raise QwellError("--lifetimes needs wavefunctions: use --method exact (or both)")
         return cls(stack_path=args.stack, band=args.band,
                    methods=(("exact", "semiclassical") if args.method == "both"
                             else (args.method,)),
@@ -94,7 +114,9 @@ class LevelsOptions:
                    wavefunctions=args.wavefunctions, hole_intersubband=args.hole_intersubband,
                    self_consistent=args.self_consistent, png=args.png,
                    linewidth_meV=args.linewidth, lineshape=args.lineshape, axis=args.axis,
-                   spectrum_kind=args.spectrum, libraries=tuple(args.library))
+                   spectrum_kind=args.spectrum, libraries=tuple(args.library),
+                   lifetimes=args.lifetimes, emitter=args.emitter, thermal=args.thermal,
+                   period_nm=args.period)
 
 
 def cmd_levels(args) -> int:
@@ -102,6 +124,10 @@ def cmd_levels(args) -> int:
     opts = LevelsOptions.from_args(args)
     stack = load(opts.stack_path, opts.self_consistent, opts.libraries)
     prof, sc = profile_and_charge(stack, quiet=opts.json)
+    if opts.lifetimes:
+        check_band(lambda: [s.label for s in solve_profile(prof, bands="conduction",
+                                                            transitions=False).states],
+                   opts.band)
     sols = {m: solve_profile(prof, bands=opts.band, method=m, transitions=(m == "exact"),
                              hole_intersubband=opts.hole_intersubband) for m in opts.methods}
     if sc is not None:
@@ -109,11 +135,17 @@ def cmd_levels(args) -> int:
     chosen = {m: (select_transitions(s.transitions, list(opts.transitions)) if opts.transitions
                   else s.transitions) for m, s in sols.items()}
     spec = write_spectrum(stack, sols, chosen, opts) if opts.png else None
+    lt = None
+    if opts.lifetimes:
+        lt = lifetimes_of(sols["exact"], emitter=opts.emitter, thermal=opts.thermal,
+                          linewidth_meV=opts.linewidth_meV, period_nm=opts.period_nm)
     if opts.json:
         print_json(levels_json(stack, sols, chosen, spectrum=spec,
-                               wavefunctions=opts.wavefunctions))
+                               wavefunctions=opts.wavefunctions, lifetimes=lt))
     else:
         print_levels(stack, sols, chosen, opts)
+        if lt is not None:
+            print_lifetimes(lt)
     return 0
 
 

@@ -26,10 +26,17 @@ from .. import parallel
 from ..bands import BAND_NAMES
 from ..errors import ParameterError, QwellError, QwellWarning
 from ..levels import solve_profile, stack_profile
+from ..lifetimes import solution_lifetimes
 from ..stack import stack_from_mapping
 from ..stack_edit import Parameter, apply_parameters
 
-__all__ = ["DesignPoint", "design_point", "evaluate_many", "bands_for_transitions"]
+__all__ = ["DesignPoint", "design_point", "evaluate_many", "bands_for_transitions",
+           "EMITTER_KEYS"]
+
+#: Emitter-line quantities a design point carries when asked for an emitter line (units in
+#: the names; see :class:`qwell.lifetimes.EmitterFigure`).
+EMITTER_KEYS = ("tau_upper_ps", "tau_lower_ps", "tau_upper_lower_ps", "inversion_factor_ps",
+                "figure_of_merit_nm2_ps", "gain_per_current_cm_per_kA")
 
 #: Exact-solver energy tolerance of a design evaluation [eV] (that of levels.solve_profile).
 DEFAULT_TOLERANCE_EV = 1e-7
@@ -58,6 +65,13 @@ class DesignPoint:
         Why the design could not be built or solved, when the evaluation was
         asked to record errors instead of raising them (then ``states`` and
         ``transitions`` are empty).
+    emitter : tuple of (key, value)
+        With an emitter line: its name (``'line'``, e.g. ``'e3->e2'``) and the
+        :data:`EMITTER_KEYS` quantities of the LO-phonon lifetimes model; empty
+        otherwise or when the line does not exist in this design.
+    lifetimes_ps : tuple of (label, tau_ps)
+        With an emitter line: the LO-phonon lifetime of every bound conduction
+        state [ps] (inf when nothing leaves it).
     """
 
     values: tuple
@@ -66,6 +80,22 @@ class DesignPoint:
     notes: tuple = ()
     warning_categories: tuple = field(default=(), repr=False)
     error: str | None = None
+    emitter: tuple = ()
+    lifetimes_ps: tuple = ()
+
+    def emitter_value(self, key: str) -> float:
+        """An :data:`EMITTER_KEYS` quantity of the emitter line, NaN if absent."""
+        for k, v in self.emitter:
+            if k == key:
+                return float(v)
+        return math.nan
+
+    def lifetime_ps(self, label: str) -> float:
+        """LO-phonon lifetime of a state [ps], NaN if absent."""
+        for lab, t in self.lifetimes_ps:
+            if lab == label:
+                return float(t)
+        return math.nan
 
     def state_energy(self, label: str) -> float:
         """Energy of a state [eV], NaN if the design has no such state."""
@@ -116,7 +146,19 @@ def bands_for_transitions(transitions, extra=()) -> tuple:
     return tuple(b for b in BAND_NAMES if b in need)
 
 
-def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV):
+def _emitter_of(sol, line):
+    """(emitter pairs, lifetimes pairs) of one solved design; empty when the line is absent."""
+    try:
+        lt = solution_lifetimes(sol, line=line)
+    except ParameterError:
+        return (), ()
+    f = lt.figure
+    pairs = (("line", f.line),) + tuple((k, float(getattr(f, k))) for k in EMITTER_KEYS)
+    lives = tuple((lab, float(t)) for lab, t in zip(lt.rates.labels, lt.rates.lifetime_ps))
+    return pairs, lives
+
+
+def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV, emitter=None):
     """Solve one design; with ``needed`` state labels, skip the resonance search when
     every needed state is truly bound (quasi-bound states lie above all bound ones,
     so the bound labels do not change) and fall back to the full solve otherwise."""
@@ -134,13 +176,19 @@ def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV):
                             wavefunctions=wavefunctions, tolerance_eV=tolerance_eV)
     states = tuple((s.label, float(s.energy_eV), bool(s.bound)) for s in sol.states)
     trans = tuple((t.name, float(t.energy_eV), float(t.wavelength_um)) for t in sol.transitions)
-    return states, trans
+    if emitter is None:
+        return states, trans, (), ()
+    # the lifetimes use bound conduction states only: one bound-only solve with envelopes
+    # (bound labels are the same with or without the resonance search)
+    bound = solve_profile(prof, bands=("conduction",), method="exact", transitions=True,
+                          wavefunctions=True, quasi_bound=False, tolerance_eV=tolerance_eV)
+    return (states, trans) + _emitter_of(bound, emitter)
 
 
 def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("conduction",),
                  wavefunctions: bool = False, needed=None,
                  tolerance_eV: float = DEFAULT_TOLERANCE_EV,
-                 record_errors: bool = False) -> DesignPoint:
+                 record_errors: bool = False, emitter: str | None = None) -> DesignPoint:
     """Solve one design: ``stack`` with ``values`` applied (see :func:`apply_parameters`).
 
     This is the single evaluation used by every workflow here.  The stack is
@@ -166,6 +214,10 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
     record_errors : bool
         Return a point with :attr:`DesignPoint.error` set instead of raising
         when the design cannot be built or solved (a :class:`QwellError`).
+    emitter : str, optional
+        An intersubband line (``'e2-e3'``, either order): the point also carries
+        its LO-phonon lifetimes and figure of merit (:mod:`qwell.lifetimes`),
+        from one more solve of the bound conduction states with envelopes.
 
     Examples
     --------
@@ -179,13 +231,14 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
         warnings.simplefilter("always")
         try:
             s = apply_parameters(stack, values)
-            states, trans = _solve_design(s, tuple(bands), wavefunctions,
-                                          tuple(needed) if needed else None, tolerance_eV)
+            states, trans, emit, lives = _solve_design(
+                s, tuple(bands), wavefunctions, tuple(needed) if needed else None,
+                tolerance_eV, emitter)
             error = None
         except QwellError as exc:
             if not record_errors:
                 raise
-            states, trans, error = (), (), str(exc)
+            states, trans, error, emit, lives = (), (), str(exc), (), ()
     notes, cats = [], []
     for w in caught:
         msg = str(w.message)
@@ -193,7 +246,8 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
             notes.append(msg)
             cats.append(w.category if issubclass(w.category, QwellWarning) else None)
     return DesignPoint(values=tuple(values.items()), states=states, transitions=trans,
-                       notes=tuple(notes), warning_categories=tuple(cats), error=error)
+                       notes=tuple(notes), warning_categories=tuple(cats), error=error,
+                       emitter=emit, lifetimes_ps=lives)
 
 
 _BASE_CACHE: dict = {}
@@ -228,14 +282,14 @@ def evaluate_many(stack, value_sets, *, bands=("conduction",), wavefunctions: bo
                   jobs=None, dask=None, dask_timeout_s: float | None = None,
                   progress: bool | None = None, label: str = "", needed=None,
                   tolerance_eV: float = DEFAULT_TOLERANCE_EV,
-                  record_errors: bool = False) -> list:
+                  record_errors: bool = False, emitter: str | None = None) -> list:
     """:func:`design_point` for many parameter sets, in parallel where it pays.
 
     Parameters
     ----------
     value_sets : sequence of Mapping
         Parameter dicts (internal units).
-    bands, wavefunctions, needed, tolerance_eV, record_errors
+    bands, wavefunctions, needed, tolerance_eV, record_errors, emitter
         See :func:`design_point`.
     jobs, dask, dask_timeout_s, progress
         See :func:`qwell.parallel.map_chunked`.
@@ -250,7 +304,8 @@ def evaluate_many(stack, value_sets, *, bands=("conduction",), wavefunctions: bo
     raw = copy.deepcopy(dict(stack.raw))
     options = (("bands", tuple(bands)), ("wavefunctions", bool(wavefunctions)),
                ("needed", tuple(needed) if needed else None),
-               ("tolerance_eV", float(tolerance_eV)), ("record_errors", bool(record_errors)))
+               ("tolerance_eV", float(tolerance_eV)), ("record_errors", bool(record_errors)),
+               ("emitter", None if emitter is None else str(emitter)))
     fn = partial(_eval_chunk, (raw, stack.path, options))
     kw = {}
     if dask_timeout_s is not None:
@@ -271,6 +326,16 @@ def check_transitions(point: DesignPoint, names, where: str):
         if n not in have:
             raise ParameterError(f"transition {n!r} does not exist at {where}; available there: "
                                  + (", ".join(have) or "none"))
+
+
+def check_emitter(point: DesignPoint, line: str, where: str):
+    """Raise ParameterError naming the conduction states if the emitter line is missing."""
+    if point.emitter:
+        return
+    labels = [lab for lab, _, bound in point.states if lab.startswith("e") and bound]
+    raise ParameterError(f"emitter line {line!r} does not exist at {where}: it needs two bound "
+                         "conduction states; bound conduction states there: "
+                         + (", ".join(labels) or "none"))
 
 
 def jump_notes(p: Parameter, values, state_energy, transition_energy,

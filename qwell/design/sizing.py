@@ -34,12 +34,16 @@ class MonolayerOption:
     thickness_nm : float
     wavelength_um, energy_eV : float
         Of the sized transition; NaN if it does not exist there.
+    emitter : tuple of (key, value)
+        With an emitter line: its lifetimes and figure of merit at this thickness
+        (see :class:`~qwell.design.evaluate.DesignPoint`).
     """
 
     monolayers: int
     thickness_nm: float
     wavelength_um: float
     energy_eV: float
+    emitter: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -65,6 +69,11 @@ class SizeResult:
     stack : Stack
         The sized stack.
     notes : tuple of str
+    emitter : tuple of (key, value)
+        With an emitter line: its name, LO-phonon lifetimes and figure of merit at the sized
+        value (keys ``line`` and :data:`~qwell.design.evaluate.EMITTER_KEYS`).
+    lifetimes_ps : tuple of (label, tau_ps)
+        With an emitter line: LO-phonon lifetime of each bound conduction state [ps].
     """
 
     parameter: str
@@ -80,6 +89,8 @@ class SizeResult:
     evaluations: int = 0
     stack: object = field(default=None, repr=False, compare=False)
     notes: tuple = ()
+    emitter: tuple = ()
+    lifetimes_ps: tuple = ()
 
     @property
     def relative_error(self) -> float:
@@ -144,7 +155,7 @@ def _why_missing(name, point):
 
 def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=None,
          bands=None, scan_points: int = 25, jobs=1, dask=None, dask_timeout_s=None,
-         progress=None) -> SizeResult:
+         progress=None, emitter: str | None = None) -> SizeResult:
     """Find the parameter value that puts ``transition`` at the target photon energy.
 
     The transition energy is scanned over ``bounds`` (default: a wide range
@@ -166,6 +177,9 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
         E.g. ``'e1-e2'`` or ``'e1-hh1'``.
     bounds : (float, float), optional
         Search range in the parameter's unit.
+    emitter : str, optional
+        An intersubband line (``'e2-e3'``): its LO-phonon lifetimes and figure of merit are
+        reported at the sized value and at the whole-monolayer options.
 
     Raises
     ------
@@ -265,8 +279,11 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
         root = brentq(fun, a, b, xtol=1e-12 * (hi - lo), rtol=8.9e-16, maxiter=200)
     value = float(f"{root:.10g}")
     value = min(max(value, a), b)
-    final = design_point(stack, {p.path: value}, bands=bands)
+    final = design_point(stack, {p.path: value}, bands=bands, emitter=emitter)
     evals[0] += 1
+    if emitter is not None and not final.emitter:
+        notes.append(f"emitter line {emitter!r} does not exist at the sized value "
+                     "(it needs two bound conduction states)")
     emit_warnings([final], stacklevel=2)
     e = final.transition_energy(transition)
     if not abs(e - e_target) <= max(1e-6 * abs(e_target), 1e-7):
@@ -285,13 +302,15 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
             if nml < 1:
                 continue
             t = nml * p.monolayer_nm
-            pt = design_point(stack, {p.path: t}, bands=bands)
+            pt = design_point(stack, {p.path: t}, bands=bands, emitter=emitter)
             evals[0] += 1
             options.append(MonolayerOption(monolayers=nml, thickness_nm=t,
                                            wavelength_um=pt.wavelength(transition),
-                                           energy_eV=pt.transition_energy(transition)))
+                                           energy_eV=pt.transition_energy(transition),
+                                           emitter=pt.emitter))
     return SizeResult(parameter=p.path, unit=p.unit, value=value, transition=transition,
                       target_energy_eV=e_target, target_wavelength_um=lam_t, energy_eV=e,
                       wavelength_um=final.wavelength(transition),
                       monolayer_options=tuple(options), bracket=(a, b), evaluations=evals[0],
-                      stack=apply_parameters(stack, {p.path: value}), notes=tuple(notes))
+                      stack=apply_parameters(stack, {p.path: value}), notes=tuple(notes),
+                      emitter=final.emitter, lifetimes_ps=final.lifetimes_ps)

@@ -13,8 +13,9 @@ import numpy as np
 from ..errors import ParameterError
 from ..fileio import atomic_savefig
 from ..stack_edit import Parameter, get_parameter
-from .evaluate import (LABEL_RE, DesignPoint, bands_for_transitions, check_transitions,
-                       design_point, emit_warnings, evaluate_many, jump_notes)
+from .evaluate import (EMITTER_KEYS, LABEL_RE, DesignPoint, bands_for_transitions,
+                       check_emitter, check_transitions, design_point, emit_warnings,
+                       evaluate_many, jump_notes)
 
 __all__ = ["SweepResult", "sweep"]
 
@@ -53,6 +54,14 @@ class SweepResult:
     points : tuple of DesignPoint
         Flat, C order.
     notes : tuple of str
+    emitter_line : str or None
+        The emitter line followed (``'e3->e2'``), None without one.
+    emitter : Mapping[str, ndarray]
+        :data:`~qwell.design.evaluate.EMITTER_KEYS` quantity -> values over the grid
+        (lifetimes in ps, figure of merit in nm^2 ps, gain per current in cm/kA; NaN where
+        the line does not exist).
+    lifetime_ps : Mapping[str, ndarray]
+        Conduction state -> LO-phonon lifetime [ps] over the grid (with an emitter line).
     """
 
     parameters: tuple
@@ -69,6 +78,9 @@ class SweepResult:
     sensitivity_method: str
     points: tuple = field(repr=False, default=())
     notes: tuple = ()
+    emitter_line: str | None = None
+    emitter: Mapping = field(default_factory=dict)
+    lifetime_ps: Mapping = field(default_factory=dict)
 
     @property
     def shape(self) -> tuple:
@@ -90,6 +102,11 @@ class SweepResult:
             for p in self.parameters:
                 cols.append((f"{t} d(wavelength)/d({p}) [{self.sensitivity_units[p]}]",
                              np.asarray(self.sensitivity[t][p]).ravel()))
+        if self.emitter_line is not None:
+            for k in EMITTER_KEYS:
+                cols.append((f"{self.emitter_line} {k}", np.asarray(self.emitter[k]).ravel()))
+            for lab, v in self.lifetime_ps.items():
+                cols.append((f"{lab} lifetime [ps]", np.asarray(v).ravel()))
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
         w.writerow([c[0] for c in cols])
@@ -101,7 +118,8 @@ class SweepResult:
         """Write a PNG (or any matplotlib format by suffix) atomically.
 
         1-D: wavelength of each transition against the parameter (and the
-        state energies in a second panel).  2-D: a colour map of the first
+        state energies in a second panel; with an emitter line a third panel
+        with its lifetimes and figure of merit).  2-D: a colour map of the first
         transition's wavelength with labelled contours.
         """
         # matplotlib is heavy and only needed for plots
@@ -117,7 +135,8 @@ class SweepResult:
         colors = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000"]
         if len(self.parameters) == 1:
             x = self.values[0]
-            fig, axes = plt.subplots(2, 1, figsize=(7, 7), sharex=True)
+            rows = 3 if self.emitter_line is not None else 2
+            fig, axes = plt.subplots(rows, 1, figsize=(7, 3.5 * rows), sharex=True)
             ax = axes[0]
             for k, t in enumerate(self.transitions):
                 ax.plot(x, self.wavelength_um[t], styles[k % 4], color=colors[k % 7], lw=1.8,
@@ -135,6 +154,24 @@ class SweepResult:
             ax2.grid(alpha=0.3)
             if self.state_labels:
                 ax2.legend(loc="best", ncol=2, fontsize="small")
+            if self.emitter_line is not None:
+                ax2.set_xlabel("")
+                ax3 = axes[2]
+                for k, (key, name) in enumerate((("tau_upper_ps", "τ_u"),
+                                                 ("tau_lower_ps", "τ_l"),
+                                                 ("tau_upper_lower_ps", "τ_ul"))):
+                    ax3.plot(x, self.emitter[key], styles[k % 4], color=colors[k % 7], lw=1.6,
+                             label=name)
+                ax3.set_ylabel(f"{self.emitter_line} LO-phonon times [ps]")
+                ax3.set_xlabel(axis_label(0))
+                ax3.grid(alpha=0.3)
+                ax4 = ax3.twinx()
+                ax4.plot(x, self.emitter["figure_of_merit_nm2_ps"], ":", color=colors[6], lw=2.0,
+                         label="z² τ_u (1 − τ_l/τ_ul)")
+                ax4.set_ylabel("figure of merit [nm² ps]")
+                h1, l1 = ax3.get_legend_handles_labels()
+                h2, l2 = ax4.get_legend_handles_labels()
+                ax3.legend(h1 + h2, l1 + l2, loc="best", fontsize="small")
         else:
             fig, ax = plt.subplots(figsize=(7, 5.5))
             if not self.transitions:
@@ -179,7 +216,7 @@ def _sensitivity_grid(lam, values, axis):
 
 def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | None = None,
           values2=None, bands=None, sensitivity: str = "grid", jobs=None, dask=None,
-          dask_timeout_s=None, progress=None) -> SweepResult:
+          dask_timeout_s=None, progress=None, emitter: str | None = None) -> SweepResult:
     """Solve the stack over a grid of parameter values (1-D, or 2-D with ``parameter2``).
 
     Parameters
@@ -200,12 +237,15 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
         How dλ/dp is estimated (see :class:`SweepResult`).
     jobs, dask, dask_timeout_s, progress
         Parallel execution (see :func:`qwell.parallel.map_chunked`).
+    emitter : str, optional
+        An intersubband line (``'e2-e3'``) whose LO-phonon lifetimes and figure of merit are
+        followed over the grid (:attr:`SweepResult.emitter`); it must exist at the start point.
 
     Raises
     ------
     ParameterError
         Unknown path, a value outside the valid range (named), a transition
-        missing at the start point.
+        or the emitter line missing at the start point.
 
     Examples
     --------
@@ -229,10 +269,12 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
     bands_t = bands_for_transitions(names, bands)
     grid_sets = [dict(zip([p.path for p in ps], (float(x) for x in combo)))
                  for combo in np.array(np.meshgrid(*vals, indexing="ij")).reshape(len(ps), -1).T]
-    first = design_point(stack, grid_sets[0], bands=bands_t)
+    first = design_point(stack, grid_sets[0], bands=bands_t, emitter=emitter)
     where = "the start point (" + ", ".join(p.describe(grid_sets[0][p.path]) for p in ps) + ")"
     if transitions is not None:
         check_transitions(first, names, where)
+    if emitter is not None:
+        check_emitter(first, emitter, where)
 
     extra_sets = []
     if sensitivity == "local":
@@ -247,7 +289,8 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
                                                  else 0.0)), hi)
                     extra_sets.append(d)
     rest = evaluate_many(stack, grid_sets[1:] + extra_sets, bands=bands_t, jobs=jobs, dask=dask,
-                         dask_timeout_s=dask_timeout_s, progress=progress, label="sweep")
+                         dask_timeout_s=dask_timeout_s, progress=progress, label="sweep",
+                         emitter=emitter)
     emit_warnings([first], stacklevel=2)
     points = [first] + rest[:len(grid_sets) - 1]
     extras = rest[len(grid_sets) - 1:]
@@ -302,9 +345,23 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
     method = sensitivity
     if sensitivity == "grid" and any(s < 2 for s in shape):
         method = "grid (undefined along an axis with one point)"
+    em, lives, em_line = {}, {}, None
+    if emitter is not None:
+        em_line = dict(first.emitter)["line"]
+        em = {k: np.array([pt.emitter_value(k) for pt in points]).reshape(shape)
+              for k in EMITTER_KEYS}
+        life_labels = [lab for lab in labels if any(lab == x[0] for pt in points
+                                                    for x in pt.lifetimes_ps)]
+        lives = {lab: np.array([pt.lifetime_ps(lab) for pt in points]).reshape(shape)
+                 for lab in life_labels}
+        lost = [pt for pt in points if not pt.emitter]
+        if lost:
+            notes.append(f"emitter line {em_line} missing at {len(lost)} grid point(s) "
+                         "(NaN there)")
     return SweepResult(parameters=tuple(p.path for p in ps), units=tuple(p.unit for p in ps),
                        values=tuple(vals), state_labels=tuple(labels), state_energy_eV=st_e,
                        state_bound=st_b, transitions=tuple(names), energy_eV=en,
                        wavelength_um=lam, sensitivity=sens,
                        sensitivity_units={p.path: p.sensitivity_unit for p in ps},
-                       sensitivity_method=method, points=tuple(points), notes=tuple(notes))
+                       sensitivity_method=method, points=tuple(points), notes=tuple(notes),
+                       emitter_line=em_line, emitter=em, lifetime_ps=lives)

@@ -98,6 +98,8 @@ PARAM_FIELDS = (
     "dielectric_constant",
     "band_gap_X_eV",
     "band_gap_L_eV",
+    "lo_phonon_energy_eV",
+    "high_frequency_dielectric_constant",
 )
 
 #: YAML key (stack files, user materials, per-layer overrides) -> (Material field, unit or None).
@@ -118,6 +120,8 @@ USER_KEYS: dict[str, tuple[str, str | None]] = {
     "kane_energy": ("kane_energy_eV", "eV"),
     "kane_F": ("kane_F", None),
     "dielectric_constant": ("dielectric_constant", None),
+    "lo_phonon_energy": ("lo_phonon_energy_eV", "eV"),
+    "high_frequency_dielectric_constant": ("high_frequency_dielectric_constant", None),
     "ac": ("ac_eV", "eV"),
     "av": ("av_eV", "eV"),
     "b": ("b_eV", "eV"),
@@ -126,7 +130,8 @@ USER_KEYS: dict[str, tuple[str, str | None]] = {
 }
 
 _POSITIVE_FIELDS = ("lattice_constant_nm", "band_gap_eV", "electron_mass", "heavy_hole_mass",
-                    "light_hole_mass", "dielectric_constant", "c11_GPa", "c12_GPa")
+                    "light_hole_mass", "dielectric_constant", "c11_GPa", "c12_GPa",
+                    "lo_phonon_energy_eV", "high_frequency_dielectric_constant")
 
 # Relative tolerance for "consistent" user-given values.
 _CONSISTENCY_TOL = 1e-6
@@ -327,6 +332,14 @@ class Material:
         Static relative permittivity.
     band_gap_X_eV, band_gap_L_eV : float or None
         X- and L-valley gaps [eV] at ``temperature_K``.
+    lo_phonon_energy_eV : float or None
+        Zone-centre LO-phonon energy [eV].  Alloys: the mode of the dominant
+        end member (largest weight in the Vegard sum); two-mode alloys such as
+        AlGaAs and InGaAs have a second, weaker branch that is ignored
+        (source key ``two_mode_alloy``).
+    high_frequency_dielectric_constant : float or None
+        Relative permittivity above the reststrahlen band, eps_inf
+        (``dielectric_constant`` is the static eps_s).
     sources : Mapping[str, str]
         Field name -> source key of ``data/sources.yaml`` (``'user'`` for
         user-given values; ``'a+b'`` when several sources combine).
@@ -357,6 +370,8 @@ class Material:
     dielectric_constant: float | None = None
     band_gap_X_eV: float | None = None
     band_gap_L_eV: float | None = None
+    lo_phonon_energy_eV: float | None = None
+    high_frequency_dielectric_constant: float | None = None
     sources: Mapping[str, str] = field(default_factory=dict)
 
     def __hash__(self):
@@ -572,7 +587,7 @@ def _gap(rec: dict, T: float) -> float:
 
 _SIMPLE = ("valence_edge_eV", "spin_orbit_eV", "electron_mass", "gamma1", "gamma2", "gamma3",
            "kane_energy_eV", "kane_F", "ac_eV", "av_eV", "b_eV", "c11_GPa", "c12_GPa",
-           "dielectric_constant")
+           "dielectric_constant", "lo_phonon_energy_eV", "high_frequency_dielectric_constant")
 
 
 @functools.lru_cache(maxsize=1024)
@@ -602,7 +617,8 @@ def _hole_masses(v: dict) -> tuple[float, float, float]:
 
 _INTERP = ("lattice_constant_nm", "band_gap_eV", "band_gap_X_eV", "band_gap_L_eV",
            "valence_edge_eV", "spin_orbit_eV", "electron_mass", "kane_energy_eV", "kane_F",
-           "ac_eV", "av_eV", "b_eV", "c11_GPa", "c12_GPa", "dielectric_constant")
+           "ac_eV", "av_eV", "b_eV", "c11_GPa", "c12_GPa", "dielectric_constant",
+           "high_frequency_dielectric_constant")
 
 
 def _bowing(rec: dict, fld: str, pair_fraction: float) -> tuple[float, str | None]:
@@ -625,10 +641,13 @@ def _alloy_values(cations: tuple, anions: tuple, T: float,
     vals = {f: 0.0 for f in _INTERP}
     srcs: dict[str, set] = {f: set() for f in _INTERP}
     mh = [0.0, 0.0, 0.0]
+    dominant = (-1.0, None, None)   # (weight, LO energy, source) of the dominant end member
     for ci, xc in cat.items():
         for aj, xa in an.items():
             w = xc * xa
             bv, bs = _binary_values(_binary_name(ci, aj), T, tables)
+            if w > dominant[0]:
+                dominant = (w, bv["lo_phonon_energy_eV"], bs["lo_phonon_energy_eV"])
             for f in _INTERP:
                 vals[f] += w * bv[f]
                 srcs[f].add(bs[f])
@@ -658,10 +677,13 @@ def _alloy_values(cations: tuple, anions: tuple, T: float,
     g2 = 0.25 * (1.0 / mh[1] - 1.0 / mh[0])
     g3 = 0.5 * (g1 - 1.0 / mh[2])
     vals.update(gamma1=g1, gamma2=g2, gamma3=g3)
+    vals["lo_phonon_energy_eV"] = dominant[1]
     out_src = {f: "+".join(sorted(s)) for f, s in srcs.items()}
+    out_src["lo_phonon_energy_eV"] = dominant[2] + "+two_mode_alloy"
     lut = "vurgaftman2001+common_practice"
     out_src.update(gamma1=lut, gamma2=lut, gamma3=lut)
-    out_src["dielectric_constant"] = out_src["dielectric_constant"] + "+common_practice"
+    for f in ("dielectric_constant", "high_frequency_dielectric_constant"):
+        out_src[f] = out_src[f] + "+common_practice"
     if (len(cat) > 1 and len(an) > 1) or len(cat) > 2 or len(an) > 2:
         for f in out_src:
             out_src[f] = out_src[f] + "+quaternary_scheme"

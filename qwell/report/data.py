@@ -21,6 +21,7 @@ from .. import design
 from ..constants import HC_EV_UM
 from ..errors import QwellError, QwellWarning
 from ..levels import Solution, compare_methods, prepare_profile, solve_profile
+from ..lifetimes import Lifetimes, solution_lifetimes
 from ..optics import Transition, select_transitions
 from ..profile import Profile
 from ..selfconsistent import SelfConsistentResult
@@ -33,6 +34,7 @@ __all__ = [
     "SensitivityRow",
     "collect_report_data",
     "default_transitions",
+    "report_lifetimes",
     "sensitivity_rows",
 ]
 
@@ -103,6 +105,11 @@ class ReportData:
     spectra : qwell.report.spectra.ReportSpectra or None
         Absolute spectra: alpha and per-pass absorption when an intersubband line
         is reviewed (a detector), else gain and transparency (a laser well).
+    lifetimes : qwell.lifetimes.Lifetimes or None
+        LO-phonon lifetimes and the emitter figure of merit when the reviewed transitions
+        include an intersubband line (see :func:`report_lifetimes`).
+    lifetimes_note : str
+        Why the lifetimes are missing although an intersubband line is reviewed ('' else).
     """
 
     stack: Stack
@@ -118,6 +125,8 @@ class ReportData:
     tolerance_eV: float = REPORT_TOLERANCE_EV
     charge: SelfConsistentResult | None = None
     spectra: ReportSpectra | None = None
+    lifetimes: Lifetimes | None = None
+    lifetimes_note: str = ""
 
 
 def default_transitions(solution) -> tuple:
@@ -276,6 +285,25 @@ def sensitivity_rows(stack, chosen, *, composition_step: float = 0.01, jobs=None
     return tuple(rows), tuple(dict.fromkeys(res.notes))
 
 
+def report_lifetimes(exact, chosen, named: bool) -> tuple:
+    """``(Lifetimes or None, note)`` for the reviewed transitions.
+
+    Only when an intersubband line of the conduction band is reviewed.  The emitter line is
+    that line when the user named the transitions, else the line that can invert with the
+    largest figure of merit (:func:`qwell.lifetimes.solution_lifetimes`).  A stack whose
+    host material has no LO-phonon data, or with fewer than two bound conduction states,
+    gets a note instead.
+    """
+    lines = [t for t in chosen if t.kind == "intersubband" and t.initial.startswith("e")]
+    if not lines:
+        return None, ""
+    try:
+        lt = solution_lifetimes(exact, line=lines[0].name if named else None)
+    except QwellError as exc:
+        return None, f"LO-phonon lifetimes not computed: {exc}"
+    return lt, ""
+
+
 # ---------------------------------------------------------------------------
 # everything the report shows
 # ---------------------------------------------------------------------------
@@ -315,6 +343,7 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
         # interband lines alone a laser well (gain, transparency)
         spectra = report_spectra(stack, exact, charge=sc, detector="intersubband" in kinds,
                                  laser=kinds == {"interband"})
+        lifetimes, lifetimes_note = report_lifetimes(exact, chosen, bool(transitions))
         if sensitivity:
             sens, sens_notes = sensitivity_rows(stack, chosen)
         else:
@@ -329,4 +358,5 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
                       chosen=tuple(chosen), comparison=comparison, sensitivity=tuple(sens),
                       sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
                       created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
-                      tolerance_eV=tolerance_eV, spectra=spectra)
+                      tolerance_eV=tolerance_eV, spectra=spectra, lifetimes=lifetimes,
+                      lifetimes_note=lifetimes_note)

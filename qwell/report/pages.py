@@ -5,7 +5,9 @@ blocks of :mod:`qwell.report.layout`: (1) :func:`diagram_blocks` band
 diagram, (2) :func:`stack_blocks` stack table and settings, (3)
 :func:`material_blocks` material parameters with numbered citations, (4)
 :func:`state_blocks` states, exact and semiclassical side by side, (5)
-:func:`transition_blocks` transitions with strengths, (6)
+:func:`transition_blocks` transitions with strengths and, for a reviewed
+intersubband line, :func:`lifetime_blocks` LO-phonon lifetimes and the
+emitter figure of merit, (6)
 :func:`sensitivity_blocks` wavelength sensitivity to each layer's thickness
 (±1 ML) and composition (±0.01) and the absorption spectrum, (7)
 :func:`caution_blocks` cautions.  :func:`report_pages` flows them onto
@@ -34,6 +36,7 @@ __all__ = [
     "design_cautions",
     "diagram_blocks",
     "footer_lines",
+    "lifetime_blocks",
     "material_blocks",
     "render_pdf",
     "report_pages",
@@ -247,6 +250,8 @@ _PARAM_ROWS = [
     ("c11_GPa", "C11", "GPa", ".1f"),
     ("c12_GPa", "C12", "GPa", ".1f"),
     ("dielectric_constant", "static dielectric constant", "", ".2f"),
+    ("high_frequency_dielectric_constant", "high-frequency dielectric constant", "", ".2f"),
+    ("lo_phonon_energy_eV", "LO-phonon energy", "eV", ".4f"),
 ]
 
 
@@ -458,6 +463,69 @@ def transition_blocks(data: ReportData) -> list:
     return blocks
 
 
+def _time(t) -> str:
+    """A time in ps for the tables: three digits, '∞' for a zero rate."""
+    if t is not None and math.isinf(t) and t > 0:
+        return "∞"
+    return _f(t, ".3g")
+
+
+def lifetime_blocks(data: ReportData) -> list:
+    """LO-phonon scattering times, lifetimes and the emitter figure of merit (when an
+    intersubband line is reviewed)."""
+    if data.lifetimes is None:
+        return ([Heading("Intersubband lifetimes"), Paragraph(data.lifetimes_note)]
+                if data.lifetimes_note else [])
+    lt = data.lifetimes
+    r = lt.rates
+    blocks = [Heading("Intersubband lifetimes (LO-phonon scattering)")]
+    n = len(r.labels)
+    rows = [[r.labels[i]] + [_SIGMA if i == f else _time(1e12 / w if w > 0 else math.inf)
+                             for f, w in enumerate(r.rate_per_s[i])]
+            + [_time(float(r.lifetime_ps[i]))] for i in range(n)]
+    how = ("thermal average over each subband" if r.thermal
+           else "electron at the bottom of the initial subband")
+    blocks.append(Table(["from \\ to"] + list(r.labels) + ["lifetime\n(ps)"], rows,
+                        ["l"] + ["r"] * (n + 1),
+                        title="Scattering times from row to column (ps)"))
+    blocks.append(Paragraph(f"Emission + absorption of LO phonons of {r.phonon.material} "
+                            f"({1e3 * r.phonon.energy_eV:.1f} meV) at T = {r.temperature_K:g} K, "
+                            f"{how}; ∞: no scattering.", size=8, color="0.25"))
+    f = lt.figure
+    if f is not None:
+        blocks.append(Paragraph(
+            f"Emitter line {f.line} ({f.wavelength_um:.4f} µm, |z| {f.dipole_nm:.3f} nm): "
+            f"τ_u {_time(f.tau_upper_ps)} ps, τ_l {_time(f.tau_lower_ps)} ps, τ_ul "
+            f"{_time(f.tau_upper_lower_ps)} ps; τ_u(1 − τ_l/τ_ul) = "
+            f"{_f(f.inversion_factor_ps, '.4g')} ps; z²τ_u(1 − τ_l/τ_ul) = "
+            f"{_f(f.figure_of_merit_nm2_ps, '.4g')} nm² ps; peak cross-section "
+            f"{f.cross_section_cm2:.3g} cm² (FWHM {f.linewidth_meV:g} meV); gain per current "
+            f"density {_f(f.gain_per_current_cm_per_kA, '.3g')} cm/kA (stage {f.period_nm:g} nm, "
+            "unit injection)." + ("" if f.inversion_possible
+                                  else " No inversion possible on this line: τ_l ≥ τ_ul."),
+            size=9))
+    if lt.figures:
+        rows = [[x.line, f"{x.wavelength_um:.4f}", _time(x.tau_upper_ps), _time(x.tau_lower_ps),
+                 _time(x.tau_upper_lower_ps), _f(x.figure_of_merit_nm2_ps, ".4g"),
+                 _f(x.radiative_lifetime_ns, ".4g"), "yes" if x.inversion_possible else "no"]
+                for x in lt.figures]
+        blocks.append(Table(["line", "λ\n(µm)", "τ_u\n(ps)", "τ_l\n(ps)", "τ_ul\n(ps)",
+                             "z²τ_u(1−τ_l/τ_ul)\n(nm² ps)", "radiative\n(ns)", "inversion"],
+                            rows, ["l"] + ["r"] * 6 + ["l"],
+                            title="All intersubband lines (largest figure of merit first)"))
+    for note in tuple(lt.notes) + (tuple(f.notes) if f is not None else ()):
+        blocks.append(Paragraph(note, size=8, bullet="•"))
+    blocks.append(Paragraph(
+        "Fröhlich scattering by bulk, dispersionless LO phonons of the host material with the "
+        "form factor of the two envelopes and the Bose occupation at the stack temperature "
+        "[R. Ferreira and G. Bastard, Phys. Rev. B 40, 1074 (1989)]; no interface phonons, "
+        "screening, electron-electron or interface-roughness scattering. Gain per current "
+        "density from the three-level rate equations with unit injection [J. Faist et al., "
+        "Science 264, 553 (1994)]. Spontaneous emission from the oscillator strength (Einstein "
+        "A coefficient in a medium of index n).", size=8, color="0.25"))
+    return blocks
+
+
 def sensitivity_blocks(data: ReportData) -> list:
     """Page 6: wavelength sensitivity table and the absorption spectrum."""
     blocks = [Heading("Sensitivity to growth errors")]
@@ -565,7 +633,7 @@ def report_pages(data: ReportData) -> list[list[Item]]:
     """Lay out all sections (each starts on a new page); returns the pages' items."""
     flow = Flow()
     sections = [diagram_blocks, stack_blocks, material_blocks, state_blocks, transition_blocks,
-                sensitivity_blocks, caution_blocks]
+                lifetime_blocks, sensitivity_blocks, caution_blocks]
     for k, sec in enumerate(sections):
         if k:
             PageBreak().place(flow)
