@@ -20,7 +20,7 @@ ROOT = Path(__file__).resolve().parents[1] / "qwell"
 #: packages) count as one entry: their modules share the layer.
 LAYERS = (
     ("constants", "errors"),
-    ("units",),
+    ("units", "spectral"),
     ("fileio", "parallel"),
     ("materials",),
     ("strain", "formula"),

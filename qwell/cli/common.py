@@ -6,6 +6,7 @@ passed in as arguments.
 
 from __future__ import annotations
 
+import argparse
 import json
 import math
 import sys
@@ -14,10 +15,11 @@ from dataclasses import replace
 import numpy as np
 
 from ..levels import prepare_profile
+from ..spectral import UNITS, parse_unit
 from ..stack import load_stack
 
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
-           "table", "fmt", "unit_text", "add_self_consistent_option"]
+           "table", "fmt", "unit_text", "add_self_consistent_option", "add_unit_option"]
 
 #: Exit status of every user error (bad input, bad option).
 EXIT_USAGE = 2
@@ -28,6 +30,20 @@ def add_self_consistent_option(parser) -> None:
     parser.add_argument("--self-consistent", action="store_true",
                         help="solve Schrödinger–Poisson with the stack's doping first "
                              "(also set by 'self_consistent: true' in the stack)")
+
+
+def _unit_choice(text: str) -> str:
+    try:
+        return parse_unit(text)
+    except ValueError as exc:  # argparse turns this into one line and exit 2
+        raise argparse.ArgumentTypeError(str(exc).split(": ", 1)[1]) from None
+
+
+def add_unit_option(parser) -> None:
+    """Add ``--unit`` (photon unit of printed lines) to a command that prints lines."""
+    parser.add_argument("--unit", type=_unit_choice, default=None, metavar="|".join(UNITS),
+                        help="photon unit of printed lines and spreads (default: by spectral "
+                             "region: nm below 2 µm, µm to 30 µm, THz with meV beyond)")
 
 
 def load(path, self_consistent: bool = False):

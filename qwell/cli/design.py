@@ -13,13 +13,16 @@ from pathlib import Path
 
 import numpy as np
 
-from ..constants import HC_EV_UM
 from ..design import get_parameter, parse_parameter_value, size, sweep, tolerance
 from ..errors import ParameterError, QwellError
 from ..fileio import atomic_write_text
 from ..stack import dump_stack_yaml
+from ..spectral import LINE_SPEC as _LINE_SPEC
+from ..spectral import (column, energy_of_um, energy_text, format_line, format_spread, from_eV, line_unit,
+                        spread_unit, unit_label)
 from ..units import spectral_to_eV
-from .common import add_self_consistent_option, fmt, load, print_json, table, unit_text
+from .common import (add_self_consistent_option, add_unit_option, fmt, load, print_json, table,
+                     unit_text)
 from .json_out import size_json, sweep_json, tolerance_json
 
 __all__ = ["register", "cmd_size", "cmd_sweep", "cmd_tolerance"]
@@ -39,6 +42,7 @@ def register(subparsers) -> None:
     s.add_argument("--to", dest="hi", metavar="VALUE", help="search range end (with units)")
     s.add_argument("--json", action="store_true", help="machine-readable output")
     s.add_argument("--write", metavar="FILE", help="write the sized stack as YAML")
+    add_unit_option(s)
     _add_parallel(s)
     add_self_consistent_option(s)
     s.set_defaults(func=cmd_size)
@@ -62,6 +66,7 @@ def register(subparsers) -> None:
     w.add_argument("--json", action="store_true")
     w.add_argument("--csv", metavar="FILE", help="write a CSV table")
     w.add_argument("--png", metavar="FILE", help="write a plot (a colour map for two --vary)")
+    add_unit_option(w)
     _add_parallel(w)
     add_self_consistent_option(w)
     w.set_defaults(func=cmd_sweep)
@@ -83,6 +88,7 @@ def register(subparsers) -> None:
     t.add_argument("--distribution", default="normal", choices=["normal", "uniform"],
                    help="normal: tolerance = 1 sigma (default); uniform: on ±tolerance")
     t.add_argument("--json", action="store_true")
+    add_unit_option(t)
     _add_parallel(t)
     add_self_consistent_option(t)
     t.set_defaults(func=cmd_tolerance)
@@ -128,24 +134,30 @@ def cmd_size(args) -> int:
     if args.write:
         atomic_write_text(args.write, dump_stack_yaml(res.stack.raw), protect=[args.stack])
     if args.json:
-        print_json(size_json(res))
+        print_json(size_json(res, args.unit))
         return 0
-    print_size(stack, p, target, res)
+    print_size(stack, p, target, res, args.unit)
     if args.write:
         print(f"wrote {args.write}")
     return 0
 
 
-def print_size(stack, p, target_eV: float, res) -> None:
-    """The target, the sized value and its error, whole-monolayer options, notes."""
-    print(f"{stack.name}: {res.transition} at {HC_EV_UM / target_eV:.6g} µm ({target_eV:.6g} eV)")
-    print(f"  {p.path} = {res.value:.6f}{unit_text(p.unit)}  ->  {res.wavelength_um:.6f} µm "
-          f"({res.energy_eV:.6f} eV, {100 * res.relative_error:+.2g} % from the target)")
+def print_size(stack, p, target_eV: float, res, unit: str | None = None) -> None:
+    """The target, the sized value and its error, whole-monolayer options, notes.
+
+    Lines are written in ``unit`` (default: the target's spectral region).
+    """
+    u = line_unit(target_eV, unit)
+    print(f"{stack.name}: {res.transition} at {format_line(target_eV, u)} "
+          f"({energy_text(target_eV, u, 5)})")
+    print(f"  {p.path} = {res.value:.6f}{unit_text(p.unit)}  ->  {format_line(res.energy_eV, u)} "
+          f"({energy_text(res.energy_eV, u)}, {100 * res.relative_error:+.2g} % from the target)")
     if res.monolayer_options:
-        rows = [[o.monolayers, f"{o.thickness_nm:.4f}", fmt(o.wavelength_um, ".5f"),
-                 fmt(o.energy_eV, ".6f")] for o in res.monolayer_options]
+        rows = [[o.monolayers, f"{o.thickness_nm:.4f}",
+                 format_line(o.energy_eV, u, with_unit=False), fmt(o.energy_eV, ".6f")]
+                for o in res.monolayer_options]
         print("\nWhole-monolayer options")
-        print(table(rows, ["ML", "thickness nm", "λ µm", "energy eV"], [">", ">", ">", ">"]))
+        print(table(rows, ["ML", "thickness nm", column(u), "energy eV"], [">", ">", ">", ">"]))
     for n in res.notes:
         print(f"note: {n}")
 
@@ -298,31 +310,51 @@ def cmd_tolerance(args) -> int:
                     monte_carlo=args.monte_carlo or 0, seed=args.seed,
                     distribution=args.distribution, **_parallel_kw(args))
     if args.json:
-        print_json(tolerance_json(res))
+        print_json(tolerance_json(res, args.unit))
         return 0
-    print_tolerance(stack, res)
+    print_tolerance(stack, res, args.unit)
     return 0
 
 
-def print_tolerance(stack, res) -> None:
-    """Contributions, worst case, root-sum-square, Monte Carlo statistics, notes."""
-    print(f"{stack.name}: {res.transition} at {res.nominal_wavelength_um:.5f} µm "
-          f"({res.nominal_energy_eV:.6f} eV)")
+def _um_line(lam_um: float, unit: str) -> str:
+    """A wavelength [µm] written as a line in ``unit`` (no unit text)."""
+    return format_line(energy_of_um(lam_um), unit, with_unit=False)
+
+
+def print_tolerance(stack, res, unit: str | None = None) -> None:
+    """Contributions, worst case, root-sum-square, Monte Carlo statistics, notes.
+
+    Lines are in ``unit`` (default: the nominal line's spectral region), spreads in its
+    spread unit (nm, µm, cm⁻¹, GHz for THz lines, meV).
+    """
+    e0 = res.nominal_energy_eV
+    u = line_unit(e0, unit)
+    su = unit_label(spread_unit(u))
+    print(f"{stack.name}: {res.transition} at {format_line(e0, u)} ({energy_text(e0, u)})")
     rows = [[c.parameter, f"{c.value:.6g}{unit_text(c.unit)}",
              f"±{c.delta:.4g}{unit_text(c.unit)} ({c.spec})",
-             fmt(c.wavelength_minus_um, ".5f"), fmt(c.wavelength_plus_um, ".5f"),
-             fmt(c.contribution_nm, "+.3f")] for c in res.contributions]
-    print(table(rows, ["parameter", "nominal", "tolerance", "λ(-) µm", "λ(+) µm",
-                       "contribution nm"], ["<", ">", "<", ">", ">", ">"]))
-    print(f"\nworst case: ±{fmt(res.worst_case_nm, '.3f')} nm (sum of |contributions|); "
-          f"corner designs {fmt(res.corner_min_um, '.5f')} .. {fmt(res.corner_max_um, '.5f')} µm")
-    print(f"root-sum-square: ±{fmt(res.rss_nm, '.3f')} nm")
+             _um_line(c.wavelength_minus_um, u), _um_line(c.wavelength_plus_um, u),
+             format_spread(c.contribution_nm, e0, u, sign="+", with_unit=False)]
+            for c in res.contributions]
+    print(table(rows, ["parameter", "nominal", "tolerance", column(u, "(-)"), column(u, "(+)"),
+                       f"contribution {su}"], ["<", ">", "<", ">", ">", ">"]))
+    corners = sorted(float(from_eV(energy_of_um(x), u)) if x and x > 0 else math.nan
+                     for x in (res.corner_min_um, res.corner_max_um))
+    print(f"\nworst case: {format_spread(res.worst_case_nm, e0, u, sign='±')} (sum of "
+          f"|contributions|); corner designs {fmt(corners[0], _LINE_SPEC[u])} .. "
+          f"{fmt(corners[1], _LINE_SPEC[u])} {unit_label(u)}")
+    print(f"root-sum-square: {format_spread(res.rss_nm, e0, u, sign='±')}")
     mc = res.monte_carlo
     if mc is not None:
         sigma = ("each tolerance taken as 1 sigma of a Gaussian" if mc.distribution == "normal"
                  else "each parameter uniform on ±tolerance")
+        pct = dict(mc.percentiles_um)
+        if u not in ("nm", "um"):  # a decreasing measure: its k-th percentile is λ's (100-k)-th
+            pct = {k: pct.get(100 - k, math.nan) for k in pct}
         print(f"Monte Carlo ({mc.samples} designs, {sigma}, seed {mc.seed}): mean "
-              f"{fmt(mc.mean_um, '.5f')} µm, std {fmt(mc.std_nm, '.3f')} nm, percentiles "
-              + ", ".join(f"{k}%: {fmt(v, '.5f')} µm" for k, v in mc.percentiles_um.items()))
+              f"{_um_line(mc.mean_um, u)} {unit_label(u)}"
+              f"{'' if u in ('nm', 'um') else ' (of the wavelengths)'}, std "
+              f"{format_spread(mc.std_nm, e0, u, sign='±')[1:]}, percentiles "
+              + ", ".join(f"{k}%: {_um_line(v, u)} {unit_label(u)}" for k, v in pct.items()))
     for n in res.notes:
         print(f"note: {n}")

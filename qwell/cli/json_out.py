@@ -13,6 +13,7 @@ import math
 import numpy as np
 
 from ..levels import compare_methods, depolarised_lines
+from ..spectral import line_unit, measures, spread_measures
 
 __all__ = ["material_list_json", "material_json", "layer_profile_json", "profile_json",
            "self_consistent_json", "self_consistent_profile_json", "state_json",
@@ -217,16 +218,28 @@ def spectrum_json(spec) -> dict:
 # ---------------------------------------------------------------------------
 # design workflows
 # ---------------------------------------------------------------------------
-def size_json(res) -> dict:
-    """A :class:`~qwell.design.SizeResult`: the sized value and what it gives."""
+def size_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.SizeResult`: the sized value and what it gives.
+
+    Every line carries all its measures (``wavelength_nm``, ``wavelength_um``,
+    ``wavenumber_cm1``, ``frequency_THz``, ``energy_meV``); ``photon_unit`` is
+    the unit the table shows (``unit``, else the target's spectral region).
+    """
     return {
         "parameter": res.parameter, "unit": res.unit, "value": res.value,
         "wavelength_um": _finite(res.wavelength_um), "energy_eV": _finite(res.energy_eV),
+        **{k: v for k, v in measures(res.energy_eV).items() if k != "wavelength_um"},
         "monolayer_options": [{"monolayers": o.monolayers, "thickness_nm": o.thickness_nm,
-                               "wavelength_um": _finite(o.wavelength_um)}
+                               "wavelength_um": _finite(o.wavelength_um),
+                               "energy_eV": _finite(o.energy_eV),
+                               **{k: v for k, v in measures(o.energy_eV).items()
+                                  if k != "wavelength_um"}}
                               for o in res.monolayer_options],
         "transition": res.transition, "target_energy_eV": res.target_energy_eV,
         "target_wavelength_um": res.target_wavelength_um,
+        **{k: v for k, v in measures(res.target_energy_eV, "target_").items()
+           if k != "target_wavelength_um"},
+        "photon_unit": line_unit(res.target_energy_eV, unit),
         "relative_error": _finite(res.relative_error), "bracket": list(res.bracket),
         "evaluations": res.evaluations, "notes": list(res.notes),
     }
@@ -270,32 +283,52 @@ def sweep_json(res) -> dict:
     }
 
 
-def monte_carlo_json(mc) -> dict:
-    """A :class:`~qwell.design.MonteCarloSummary`: wavelength statistics."""
+def monte_carlo_json(mc, energy_eV: float | None = None) -> dict:
+    """A :class:`~qwell.design.MonteCarloSummary`: wavelength statistics (the standard
+    deviation also as ``std_um``, ``std_cm1``, ``std_GHz``, ``std_meV`` at the nominal line
+    ``energy_eV``)."""
+    std = spread_measures(_finite(mc.std_nm), energy_eV, "std_") if energy_eV else {}
+    std.pop("std_nm", None)
     return {"samples": mc.samples, "valid": mc.valid, "distribution": mc.distribution,
             "sigma": ("tolerance = 1 sigma" if mc.distribution == "normal"
                       else "uniform on ±tolerance"),
             "seed": mc.seed, "mean_um": _finite(mc.mean_um), "std_nm": _finite(mc.std_nm),
+            **std,
             "percentiles_um": {str(k): _finite(v) for k, v in mc.percentiles_um.items()},
             "clipped": mc.clipped}
 
 
-def tolerance_json(res) -> dict:
-    """A :class:`~qwell.design.ToleranceResult`: contributions, worst case, RSS, Monte Carlo."""
+def tolerance_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.ToleranceResult`: contributions, worst case, RSS, Monte Carlo.
+
+    Spreads carry every spread unit (``contribution_nm``, ``contribution_um``,
+    ``contribution_cm1``, ``contribution_GHz``, ``contribution_meV``; the same for
+    ``sum_*`` and ``rss_*``), linear at the nominal line; ``photon_unit`` is the unit the
+    table shows.
+    """
+    e0 = _finite(res.nominal_energy_eV)
+
+    def spreads(delta_nm, prefix):
+        out = spread_measures(_finite(delta_nm), e0, prefix)
+        out.pop(f"{prefix}nm")
+        return out
     return {
         "transition": res.transition,
-        "nominal": {"energy_eV": _finite(res.nominal_energy_eV),
-                    "wavelength_um": _finite(res.nominal_wavelength_um)},
+        "photon_unit": line_unit(e0, unit),
+        "nominal": {"energy_eV": e0, "wavelength_um": _finite(res.nominal_wavelength_um),
+                    **{k: v for k, v in measures(e0).items() if k != "wavelength_um"}},
         "contributions": [{"parameter": c.parameter, "unit": c.unit, "value": c.value,
                            "delta": c.delta, "spec": c.spec,
                            "wavelength_plus_um": _finite(c.wavelength_plus_um),
                            "wavelength_minus_um": _finite(c.wavelength_minus_um),
-                           "contribution_nm": _finite(c.contribution_nm)}
+                           "contribution_nm": _finite(c.contribution_nm),
+                           **spreads(c.contribution_nm, "contribution_")}
                           for c in res.contributions],
-        "worst_case": {"sum_nm": _finite(res.worst_case_nm),
+        "worst_case": {"sum_nm": _finite(res.worst_case_nm), **spreads(res.worst_case_nm, "sum_"),
                        "corner_min_um": _finite(res.corner_min_um),
                        "corner_max_um": _finite(res.corner_max_um)},
-        "rss_nm": _finite(res.rss_nm),
-        "monte_carlo": None if res.monte_carlo is None else monte_carlo_json(res.monte_carlo),
+        "rss_nm": _finite(res.rss_nm), **spreads(res.rss_nm, "rss_"),
+        "monte_carlo": (None if res.monte_carlo is None
+                        else monte_carlo_json(res.monte_carlo, e0)),
         "notes": list(res.notes),
     }
