@@ -26,7 +26,7 @@ import numpy as np
 from .constants import EV_PER_CM1, EV_PER_THZ, HC_EV_NM, HC_EV_UM
 from .errors import QwellError
 
-__all__ = ["UNITS", "SPREAD_UNITS", "LINE_SPEC", "energy_of_um", "parse_unit", "auto_unit", "line_unit", "from_eV",
+__all__ = ["UNITS", "SPREAD_UNITS", "LINE_SPEC", "SPREAD_SPEC", "energy_of_um", "parse_unit", "auto_unit", "line_unit", "from_eV",
            "spread_from_nm", "spread_unit", "measures", "spread_measures", "format_line",
            "format_spread", "energy_text", "unit_label", "column", "UnitChoiceError", "NEAR_IR_LIMIT_UM",
            "FAR_IR_LIMIT_UM"]
@@ -53,7 +53,8 @@ _ALIASES = {"nm": "nm", "um": "um", "µm": "um", "μm": "um", "micron": "um", "c
 LINE_SPEC = {"nm": ".2f", "um": ".5f", "cm-1": ".2f", "THz": ".4f", "meV": ".3f"}
 _DIGITS = LINE_SPEC
 #: Format of a spread in each spread unit.
-_SPREAD_DIGITS = {"nm": ".3f", "um": ".5f", "cm-1": ".3f", "GHz": ".2f", "meV": ".4f"}
+SPREAD_SPEC = {"nm": ".3f", "um": ".5f", "cm-1": ".3f", "GHz": ".2f", "meV": ".4f"}
+_SPREAD_DIGITS = SPREAD_SPEC
 
 
 class UnitChoiceError(QwellError, ValueError):
@@ -140,15 +141,17 @@ def spread_from_nm(delta_nm, energy_eV: float, unit: str):
         return delta_nm * 1.0
     if unit == "um":
         return delta_nm * 1e-3
-    if energy_eV is None or not math.isfinite(energy_eV) or energy_eV <= 0:
-        return delta_nm * math.nan
-    lam_nm = HC_EV_NM / energy_eV
-    de_eV = -energy_eV / lam_nm * delta_nm
+    e = np.asarray(np.nan if energy_eV is None else energy_eV, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        e = np.where(np.isfinite(e) & (e > 0), e, np.nan)
+        de_eV = -e * e / HC_EV_NM * np.asarray(delta_nm, dtype=float)   # dE = -(E/λ) dλ
     if unit == "meV":
-        return de_eV * 1e3
-    if unit == "THz":  # spreads of THz lines in GHz
-        return de_eV / EV_PER_THZ * 1e3
-    return de_eV / EV_PER_CM1
+        out = de_eV * 1e3
+    elif unit == "THz":  # spreads of THz lines in GHz
+        out = de_eV / EV_PER_THZ * 1e3
+    else:
+        out = de_eV / EV_PER_CM1
+    return float(out) if np.ndim(out) == 0 else out
 
 
 def measures(energy_eV: float, prefix: str = "") -> dict:

@@ -18,6 +18,7 @@ from ..errors import ParameterError, QwellError
 from ..fileio import atomic_write_text
 from ..stack import dump_stack_yaml
 from ..spectral import LINE_SPEC as _LINE_SPEC
+from ..spectral import SPREAD_SPEC as _SPREAD_SPEC
 from ..spectral import (column, energy_of_um, energy_text, format_line, format_spread, from_eV, line_unit,
                         spread_unit, unit_label)
 from ..units import spectral_to_eV
@@ -224,14 +225,14 @@ def cmd_sweep(args) -> int:
     if args.csv:
         atomic_write_text(args.csv, res.to_csv(), protect=[args.stack])
     if args.png:
-        res.plot(args.png, protect=[args.stack], title=stack.name)
+        res.plot(args.png, protect=[args.stack], title=stack.name, unit=args.unit)
     if args.json:
-        print_json(sweep_json(res))
+        print_json(sweep_json(res, args.unit))
         return 0
     if p2 is None:
-        print_sweep(stack, p1, v1, res)
+        print_sweep(stack, p1, v1, res, args.unit)
     else:
-        print_map(stack, p1, v1, p2, v2, res)
+        print_map(stack, p1, v1, p2, v2, res, args.unit)
     for n in res.notes:
         print(f"note: {n}")
     for f in (args.csv, args.png):
@@ -240,30 +241,37 @@ def cmd_sweep(args) -> int:
     return 0
 
 
-def print_sweep(stack, p1, v1, res) -> None:
-    """1-D sweep: state energies, and wavelength and dλ/dp of each followed transition."""
+def print_sweep(stack, p1, v1, res, unit: str | None = None) -> None:
+    """1-D sweep: state energies, and each followed line and its sensitivity in ``unit``."""
+    u = res.photon_unit(unit)
     heads = [f"{p1.path}{unit_text(p1.unit)}"] + list(res.state_labels)
     aligns = [">"] * len(heads)
     for t in res.transitions:
-        heads += [f"{t} λ µm", f"dλ {res.sensitivity_units[p1.path]}"]
+        heads += [f"{t} {column(u)}", f"d{column(u).split()[0]} "
+                  f"{res.sensitivity_unit_in(p1.path, u)}"]
         aligns += [">", ">"]
+    lines = {t: res.line_in(t, u) for t in res.transitions}
+    sens = {t: res.sensitivity_in(t, p1.path, u) for t in res.transitions}
+    sspec = _SPREAD_SPEC[spread_unit(u)]
     rows = []
     for i, v in enumerate(v1):
         row = [f"{v:.6g}"] + [fmt(res.state_energy_eV[lab][i], ".5f") for lab in res.state_labels]
         for t in res.transitions:
-            row += [fmt(res.wavelength_um[t][i], ".5f"), fmt(res.sensitivity[t][p1.path][i], ".3f")]
+            row += [fmt(float(lines[t][i]), _LINE_SPEC[u]), fmt(float(sens[t][i]), sspec)]
         rows.append(row)
     print(f"{stack.name}: sweep of {p1.path} (state energies in eV)")
     print(table(rows, heads, aligns))
 
 
-def print_map(stack, p1, v1, p2, v2, res) -> None:
-    """2-D map: one wavelength table per followed transition."""
+def print_map(stack, p1, v1, p2, v2, res, unit: str | None = None) -> None:
+    """2-D map: one table per followed line, in ``unit``."""
+    u = res.photon_unit(unit)
     print(f"{stack.name}: map of {p1.path} x {p2.path}")
     for t in res.transitions:
-        print(f"\n{t} wavelength [µm]; rows {p1.path}, columns {p2.path}")
+        lines = res.line_in(t, u)
+        print(f"\n{t} {column(u).split()[0]} [{unit_label(u)}]; rows {p1.path}, columns {p2.path}")
         heads = [""] + [f"{v:.4g}" for v in v2]
-        rows = [[f"{v:.4g}"] + [fmt(res.wavelength_um[t][i, j], ".4f") for j in range(len(v2))]
+        rows = [[f"{v:.4g}"] + [fmt(float(lines[i, j]), _LINE_SPEC[u]) for j in range(len(v2))]
                 for i, v in enumerate(v1)]
         print(table(rows, heads, [">"] * len(heads)))
 

@@ -259,20 +259,35 @@ def _nulls(o):
     return o
 
 
-def sweep_json(res) -> dict:
-    """A :class:`~qwell.design.SweepResult` (1-D: scalars per key; 2-D: lists/maps)."""
+def sweep_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.SweepResult` (1-D: scalars per key; 2-D: lists/maps).
+
+    Each line carries every measure (``wavelength_nm``, ``wavenumber_cm1``,
+    ``frequency_THz``, ``energy_meV`` beside ``wavelength_um``) and its
+    sensitivity in every spread unit (``sensitivity_per_unit``: nm, um, cm1,
+    GHz, meV per engineering step); ``photon_unit`` is the unit of the table.
+    """
     one = len(res.parameters) == 1
     first = res.parameters[0]
     trans = {}
+    spread_keys = {"nm": "nm", "um": "um", "cm-1": "cm1", "THz": "GHz", "meV": "meV"}
     for t in res.transitions:
         sens = {p: _grid(res.sensitivity[t][p]) for p in res.parameters}
+        per = {p: {k: _grid(res.sensitivity_in(t, p, u)) for u, k in spread_keys.items()}
+               for p in res.parameters}
         trans[t] = {"energy_eV": _grid(res.energy_eV[t]),
                     "wavelength_um": _grid(res.wavelength_um[t]),
-                    "sensitivity_nm_per_unit": sens[first] if one else sens}
+                    "wavelength_nm": _grid(res.line_in(t, "nm")),
+                    "wavenumber_cm1": _grid(res.line_in(t, "cm-1")),
+                    "frequency_THz": _grid(res.line_in(t, "THz")),
+                    "energy_meV": _grid(res.line_in(t, "meV")),
+                    "sensitivity_nm_per_unit": sens[first] if one else sens,
+                    "sensitivity_per_unit": per[first] if one else per}
     return {
         "parameter": first if one else list(res.parameters),
         "unit": res.units[0] if one else list(res.units),
         "values": _grid(res.values[0]) if one else [_grid(v) for v in res.values],
+        "photon_unit": res.photon_unit(unit),
         "states": {lab: _grid(res.state_energy_eV[lab]) for lab in res.state_labels},
         "bound": {lab: np.asarray(res.state_bound[lab]).tolist() for lab in res.state_labels},
         "transitions": trans,

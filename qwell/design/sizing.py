@@ -10,6 +10,7 @@ from pint import Quantity
 
 from ..constants import HC_EV_UM
 from ..errors import ConvergenceError, ParameterError
+from ..optics import canonical_transition
 from ..spectral import auto_unit, energy_text, format_line, from_eV, unit_label
 from ..stack_edit import Parameter, apply_parameters, get_parameter
 from ..units import spectral_to_eV
@@ -194,6 +195,7 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
 
     p = get_parameter(stack, parameter)
     e_target = _target_eV(target_eV)
+    transition = canonical_transition(transition)
     bands = bands_for_transitions([transition], bands)
     start = design_point(stack, {p.path: p.value}, bands=bands)
     check_transitions(start, [transition], _where(p))
