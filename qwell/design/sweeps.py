@@ -218,10 +218,12 @@ class SweepResult:
             missing = ~np.isfinite(lam)
             if missing.any():
                 # the region without the line: hatched cells (not blank paper), in the legend
-                from matplotlib.patches import Patch
-                ax.pcolormesh(X, Y, np.ma.masked_where(~missing, np.ones_like(lam)),
-                              shading="auto", cmap=matplotlib.colors.ListedColormap(["#f2f2f2"]),
-                              hatch="///", edgecolor="#7f7f7f", linewidth=0.0)
+                from matplotlib.patches import Patch, Rectangle
+                ex, ey = _cell_edges(self.values[0]), _cell_edges(self.values[1])
+                for i, j in zip(*np.nonzero(missing)):
+                    ax.add_patch(Rectangle((ex[i], ey[j]), ex[i + 1] - ex[i], ey[j + 1] - ey[j],
+                                           facecolor="#f2f2f2", edgecolor="#7f7f7f",
+                                           hatch="///", linewidth=0.0))
                 ax.legend(handles=[Patch(facecolor="#f2f2f2", edgecolor="#7f7f7f", hatch="///",
                                          label=f"no {t}")], loc="upper right",
                           framealpha=0.9)
@@ -234,6 +236,15 @@ class SweepResult:
             return atomic_savefig(fig, path, protect=protect, dpi=120)
         finally:
             plt.close(fig)
+
+
+def _cell_edges(values) -> np.ndarray:
+    """Edges of the map cells around grid values (midpoints, half a step beyond the ends)."""
+    v = np.asarray(values, dtype=float)
+    if v.size == 1:
+        return np.array([v[0] - 0.5, v[0] + 0.5])
+    mid = 0.5 * (v[1:] + v[:-1])
+    return np.concatenate([[v[0] - (mid[0] - v[0])], mid, [v[-1] + (v[-1] - mid[-1])]])
 
 
 def _axis_name(unit: str) -> str:
