@@ -261,6 +261,15 @@ def print_sweep(stack, p1, v1, res, unit: str | None = None) -> None:
         rows.append(row)
     print(f"{stack.name}: sweep of {p1.path} (state energies in eV)")
     print(table(rows, heads, aligns))
+    print_anticrossings(res)
+
+
+def print_anticrossings(res) -> None:
+    """One line per anticrossing: the pair, its minimum gap and where."""
+    for a in res.anticrossings:
+        print(f"anticrossing {a.lower}/{a.upper}: minimum gap {a.gap_meV:.4g} meV at "
+              f"{a.parameter} = {a.value:.4g}{unit_text(a.unit)} (smallest on the grid "
+              f"{1e3 * a.grid_gap_eV:.4g} meV)")
 
 
 def print_map(stack, p1, v1, p2, v2, res, unit: str | None = None) -> None:

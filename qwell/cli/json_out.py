@@ -294,6 +294,10 @@ def sweep_json(res, unit: str | None = None) -> dict:
         "sensitivity_unit": (res.sensitivity_units[first] if one
                              else dict(res.sensitivity_units)),
         "sensitivity_method": res.sensitivity_method,
+        "anticrossings": [{"lower": a.lower, "upper": a.upper, "parameter": a.parameter,
+                           "unit": a.unit, "value": a.value, "gap_eV": a.gap_eV,
+                           "gap_meV": a.gap_meV, "grid_gap_eV": a.grid_gap_eV}
+                          for a in res.anticrossings],
         "notes": list(res.notes),
     }
 

@@ -16,6 +16,7 @@ from ..optics import canonical_transition
 from ..spectral import (auto_unit, from_eV, parse_unit, spread_from_nm, spread_unit,
                         unit_label)
 from ..stack_edit import Parameter, get_parameter
+from .crossings import find_anticrossings
 from .evaluate import (LABEL_RE, DesignPoint, bands_for_transitions,
                        design_point, emit_warnings, evaluate_many, jump_notes)
 
@@ -56,6 +57,9 @@ class SweepResult:
     points : tuple of DesignPoint
         Flat, C order.
     notes : tuple of str
+    anticrossings : tuple of Anticrossing
+        Neighbouring states at their closest approach (1-D sweeps), with the
+        minimum gap (:func:`qwell.design.crossings.find_anticrossings`).
     """
 
     parameters: tuple
@@ -72,6 +76,7 @@ class SweepResult:
     sensitivity_method: str
     points: tuple = field(repr=False, default=())
     notes: tuple = ()
+    anticrossings: tuple = ()
 
     def photon_unit(self, unit: str | None = None) -> str:
         """``unit`` (checked), else the unit of the followed lines' spectral region
@@ -449,4 +454,6 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
                        state_bound=st_b, transitions=tuple(names), energy_eV=en,
                        wavelength_um=lam, sensitivity=sens,
                        sensitivity_units={p.path: p.sensitivity_unit for p in ps},
-                       sensitivity_method=method, points=tuple(points), notes=tuple(notes))
+                       sensitivity_method=method, points=tuple(points), notes=tuple(notes),
+                       anticrossings=(find_anticrossings(ps[0].path, ps[0].unit, vals[0], st_e)
+                                      if len(ps) == 1 else ()))
