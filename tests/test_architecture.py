@@ -25,7 +25,7 @@ LAYERS = (
     ("materials",),
     ("strain", "formula"),
     ("stack", "stack_edit"),
-    ("bands", "profile"),
+    ("bands", "profile", "reference"),
     ("solvers",),
     ("optics", "poisson", "lifetimes", "absorption", "gain", "excitons"),
     ("selfconsistent",),

@@ -15,6 +15,7 @@ import pytest
 
 from qwell import design
 from qwell.design.crossings import find_anticrossings
+from qwell.errors import ParameterError
 from qwell.levels import solve_stack
 from qwell.stack import stack_from_text
 
@@ -83,3 +84,31 @@ layers:
     assert np.isnan(lam[0]) and np.isfinite(lam[-2:]).all()
     assert np.isfinite(res.sensitivity["e1-e3"]["well.thickness"][-2:]).all()
     assert any("e1-e3 exists only for well.thickness" in n for n in res.notes)
+
+
+def test_sweep_reference_follows_the_edge_at_the_layer_centre(capsys):
+    # a uniform field F adds e F z to every edge (z from the first layer's start):
+    # 1 kV/cm over 1 nm is 1e5 V/m x 1e-9 m = 1e-4 eV (SI definition of the volt, no source)
+    from qwell.cli import main
+    stack = stack_from_text(DOUBLE_WELL)
+    fields = [-10.0, 0.0, 10.0]
+    res = design.sweep(stack, "field", fields, ["e1-e2"], jobs=1, reference="right_well")
+    z_c = 25 + 6 + 3 + 3.0                      # centre of right_well [nm]
+    edge = np.asarray(res.reference_edge_eV["conduction"])
+    assert edge - edge[1] == pytest.approx([f * 1e-4 * z_c for f in fields], abs=1e-9)
+    shown = res.state_energy_shown("e1")
+    assert shown == pytest.approx(np.asarray(res.state_energy_eV["e1"]) - edge)
+    with pytest.raises(ParameterError, match="left_barrier, left_well, middle_barrier"):
+        design.sweep(stack, "field", fields, jobs=1, reference="middle")
+
+
+def test_cli_reference_naming_no_layer_exits_2(capsys, tmp_path):
+    from qwell.cli import main
+    path = tmp_path / "dw.yaml"
+    path.write_text(DOUBLE_WELL)
+    for cmd in (["sweep", str(path), "--vary", "field", "--from", "0kV/cm", "--to", "1kV/cm",
+                 "--points", "2"], ["levels", str(path)]):
+        rc = main(cmd + ["--reference", "nowhere"])
+        err = capsys.readouterr().err
+        assert rc == 2
+        assert "'nowhere': no such layer" in err and "right_barrier" in err

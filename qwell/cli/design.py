@@ -67,6 +67,9 @@ def register(subparsers) -> None:
     w.add_argument("--json", action="store_true")
     w.add_argument("--csv", metavar="FILE", help="write a CSV table")
     w.add_argument("--png", metavar="FILE", help="write a plot (a colour map for two --vary)")
+    w.add_argument("--reference", metavar="LAYER",
+                   help="show state energies from the band edge at this layer's centre "
+                        "(levels of that layer stay flat in a field sweep)")
     add_unit_option(w)
     _add_parallel(w)
     add_self_consistent_option(w)
@@ -221,7 +224,8 @@ def cmd_sweep(args) -> int:
     (p1, v1) = axes[0]
     p2, v2 = (axes[1] if len(axes) > 1 else (None, None))
     res = sweep(stack, p1.path, v1, args.transition, parameter2=None if p2 is None else p2.path,
-                values2=v2, sensitivity=args.sensitivity, **_parallel_kw(args))
+                values2=v2, sensitivity=args.sensitivity, reference=args.reference,
+                **_parallel_kw(args))
     if args.csv:
         atomic_write_text(args.csv, res.to_csv(), protect=[args.stack])
     if args.png:
@@ -253,13 +257,15 @@ def print_sweep(stack, p1, v1, res, unit: str | None = None) -> None:
     lines = {t: res.line_in(t, u) for t in res.transitions}
     sens = {t: res.sensitivity_in(t, p1.path, u) for t in res.transitions}
     sspec = _SPREAD_SPEC[spread_unit(u)]
+    shown = {lab: res.state_energy_shown(lab) for lab in res.state_labels}
     rows = []
     for i, v in enumerate(v1):
-        row = [f"{v:.6g}"] + [fmt(res.state_energy_eV[lab][i], ".5f") for lab in res.state_labels]
+        row = [f"{v:.6g}"] + [fmt(float(shown[lab][i]), ".5f") for lab in res.state_labels]
         for t in res.transitions:
             row += [fmt(float(lines[t][i]), _LINE_SPEC[u]), fmt(float(sens[t][i]), sspec)]
         rows.append(row)
-    print(f"{stack.name}: sweep of {p1.path} (state energies in eV)")
+    print(f"{stack.name}: sweep of {p1.path} (state energies in eV"
+          + (f", from the band edge at the centre of {res.reference})" if res.reference else ")"))
     print(table(rows, heads, aligns))
     print_anticrossings(res)
 

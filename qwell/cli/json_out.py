@@ -290,6 +290,11 @@ def sweep_json(res, unit: str | None = None) -> dict:
         "photon_unit": res.photon_unit(unit),
         "states": {lab: _grid(res.state_energy_eV[lab]) for lab in res.state_labels},
         "bound": {lab: np.asarray(res.state_bound[lab]).tolist() for lab in res.state_labels},
+        **({"reference": {"layer": res.reference,
+                          "edge_eV": {b: _grid(e) for b, e in res.reference_edge_eV.items()},
+                          "states_from_reference_eV": {lab: _grid(res.state_energy_shown(lab))
+                                                       for lab in res.state_labels}}}
+           if res.reference else {}),
         "transitions": trans,
         "sensitivity_unit": (res.sensitivity_units[first] if one
                              else dict(res.sensitivity_units)),

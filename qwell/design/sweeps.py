@@ -15,7 +15,9 @@ from ..fileio import atomic_savefig
 from ..optics import canonical_transition
 from ..spectral import (auto_unit, from_eV, parse_unit, spread_from_nm, spread_unit,
                         unit_label)
-from ..stack_edit import Parameter, get_parameter
+from ..levels import stack_profile
+from ..reference import BAND_OF_PREFIX, reference_edges_eV
+from ..stack_edit import Parameter, apply_parameters, get_parameter
 from .crossings import find_anticrossings
 from .evaluate import (LABEL_RE, DesignPoint, bands_for_transitions,
                        design_point, emit_warnings, evaluate_many, jump_notes)
@@ -60,6 +62,10 @@ class SweepResult:
     anticrossings : tuple of Anticrossing
         Neighbouring states at their closest approach (1-D sweeps), with the
         minimum gap (:func:`qwell.design.crossings.find_anticrossings`).
+    reference : str or None
+        Layer whose centre's band edges the shown energies are referenced to.
+    reference_edge_eV : Mapping[str, ndarray] or None
+        Band -> edge at the reference point over the grid [eV, band-diagram scale].
     """
 
     parameters: tuple
@@ -77,6 +83,18 @@ class SweepResult:
     points: tuple = field(repr=False, default=())
     notes: tuple = ()
     anticrossings: tuple = ()
+    reference: str | None = None
+    reference_edge_eV: Mapping | None = field(repr=False, default=None)
+
+    def state_energy_shown(self, label: str):
+        """A state's energy over the grid [eV]: from the reference edge of its band when
+        the sweep has a reference (:attr:`reference`), else on the band-diagram scale."""
+        e = np.asarray(self.state_energy_eV[label], dtype=float)
+        if not self.reference:
+            return e
+        m = LABEL_RE.match(label)
+        band = BAND_OF_PREFIX[m.group(1)] if m else "conduction"
+        return e - np.asarray(self.reference_edge_eV[band], dtype=float)
 
     def photon_unit(self, unit: str | None = None) -> str:
         """``unit`` (checked), else the unit of the followed lines' spectral region
@@ -199,9 +217,10 @@ class SweepResult:
             ax.grid(alpha=0.3)
             ax2 = axes[1]
             for k, lab in enumerate(self.state_labels):
-                ax2.plot(x, self.state_energy_eV[lab], styles[k % 4], color=colors[k % 7],
+                ax2.plot(x, self.state_energy_shown(lab), styles[k % 4], color=colors[k % 7],
                          lw=1.4, label=lab)
-            ax2.set_ylabel("state energy [eV]")
+            ax2.set_ylabel("state energy [eV]" if not self.reference
+                           else f"state energy from the {self.reference} edge [eV]")
             ax2.set_xlabel(axis_label(0))
             ax2.grid(alpha=0.3)
             if self.state_labels:
@@ -328,7 +347,7 @@ def existence_notes(name: str, ps, vals, exists) -> list:
 
 def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | None = None,
           values2=None, bands=None, sensitivity: str = "grid", jobs=None, dask=None,
-          dask_timeout_s=None, progress=None) -> SweepResult:
+          dask_timeout_s=None, progress=None, reference: str | None = None) -> SweepResult:
     """Solve the stack over a grid of parameter values (1-D, or 2-D with ``parameter2``).
 
     Parameters
@@ -349,6 +368,10 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
         How dλ/dp is estimated (see :class:`SweepResult`).
     jobs, dask, dask_timeout_s, progress
         Parallel execution (see :func:`qwell.parallel.map_chunked`).
+    reference : str, optional
+        Layer label or name: the band edges at its centre are recorded at every
+        point (:attr:`SweepResult.reference_edge_eV`) so energies can be shown from
+        them (:meth:`SweepResult.state_energy_shown`).
 
     Raises
     ------
@@ -370,6 +393,12 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
     bands_t = bands_for_transitions(names, bands)
     grid_sets = [dict(zip([p.path for p in ps], (float(x) for x in combo)))
                  for combo in np.array(np.meshgrid(*vals, indexing="ij")).reshape(len(ps), -1).T]
+    edges = None
+    if reference is not None:  # checked before any solve; one profile per grid point
+        edges_at = [reference_edges_eV(stack_profile(apply_parameters(stack, gs)), reference)
+                    for gs in grid_sets]
+        shape0 = tuple(len(v) for v in vals)
+        edges = {b: np.array([e[b] for e in edges_at]).reshape(shape0) for b in edges_at[0]}
     first = design_point(stack, grid_sets[0], bands=bands_t)
 
     extra_sets = []
@@ -456,4 +485,5 @@ def sweep(stack, parameter: str, values, transitions=None, *, parameter2: str | 
                        sensitivity_units={p.path: p.sensitivity_unit for p in ps},
                        sensitivity_method=method, points=tuple(points), notes=tuple(notes),
                        anticrossings=(find_anticrossings(ps[0].path, ps[0].unit, vals[0], st_e)
-                                      if len(ps) == 1 else ()))
+                                      if len(ps) == 1 else ()),
+                       reference=reference, reference_edge_eV=edges)
