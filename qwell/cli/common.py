@@ -17,6 +17,7 @@ import numpy as np
 from ..levels import prepare_profile
 from ..spectral import UNITS, parse_unit
 from ..stack import load_stack
+from ..units import format_exponent
 
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
            "table", "fmt", "unit_text", "add_self_consistent_option", "add_unit_option"]
@@ -76,7 +77,8 @@ def print_self_consistent(sc) -> None:
           + ("not defined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV"))
     occ = {k: v for k, v in sc.sheet_densities_cm2.items() if v > 0}
     if occ:
-        print("sheet densities: " + ", ".join(f"{k} {v:.4g} cm⁻²" for k, v in occ.items()))
+        print("sheet densities: " + ", ".join(f"{k} {format_exponent(v)} cm⁻²"
+                                              for k, v in occ.items()))
     print()
 
 

@@ -18,7 +18,9 @@ def register(subparsers) -> None:
     r = subparsers.add_parser("report", help="design-review report: PDF pages and a PNG band diagram")
     r.add_argument("stack", help="stack YAML file")
     r.add_argument("-o", "--output-dir", dest="out_dir", metavar="DIR", default=None,
-                   help="output folder (must exist; default reports/, created if missing)")
+                   help="folder the report is written into: DIR/NAME.pdf and DIR/NAME.png, "
+                        "NAME being the stack file's name without .yaml (the folder must exist; "
+                        "default reports/, created if missing)")
     r.add_argument("--transition", action="append", metavar="e1-e2",
                    help="transition to review (repeatable); default: the strongest ones")
     add_self_consistent_option(r)
