@@ -14,6 +14,7 @@ import numpy as np
 import pytest
 
 from qwell import design
+from qwell.cli import main
 from qwell.design.crossings import find_anticrossings
 from qwell.errors import ParameterError
 from qwell.levels import solve_stack
@@ -89,7 +90,6 @@ layers:
 def test_sweep_reference_follows_the_edge_at_the_layer_centre(capsys):
     # a uniform field F adds e F z to every edge (z from the first layer's start):
     # 1 kV/cm over 1 nm is 1e5 V/m x 1e-9 m = 1e-4 eV (SI definition of the volt, no source)
-    from qwell.cli import main
     stack = stack_from_text(DOUBLE_WELL)
     fields = [-10.0, 0.0, 10.0]
     res = design.sweep(stack, "field", fields, ["e1-e2"], jobs=1, reference="right_well")
@@ -103,7 +103,6 @@ def test_sweep_reference_follows_the_edge_at_the_layer_centre(capsys):
 
 
 def test_cli_reference_naming_no_layer_exits_2(capsys, tmp_path):
-    from qwell.cli import main
     path = tmp_path / "dw.yaml"
     path.write_text(DOUBLE_WELL)
     for cmd in (["sweep", str(path), "--vary", "field", "--from", "0kV/cm", "--to", "1kV/cm",

@@ -221,6 +221,12 @@ class SweepResult:
                          lw=1.4, label=lab)
             ax2.set_ylabel("state energy [eV]" if not self.reference
                            else f"state energy from the {self.reference} edge [eV]")
+            for a in self.anticrossings:  # the closest approach, with its gap
+                ax2.axvline(a.value, color="0.5", ls=":", lw=0.9)
+                lo_e = np.interp(a.value, x, self.state_energy_shown(a.lower))
+                ax2.annotate(f"{a.lower}/{a.upper} gap {a.gap_meV:.3g} meV", (a.value, lo_e),
+                             xytext=(4, -12), textcoords="offset points", fontsize=7,
+                             color="0.3")
             ax2.set_xlabel(axis_label(0))
             ax2.grid(alpha=0.3)
             if self.state_labels:
