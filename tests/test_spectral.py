@@ -156,3 +156,17 @@ def test_sweep_table_and_json_agree_in_the_chosen_unit(capsys):
     shown = [float(line.split()[3]) for line in out.splitlines()[3:6]]
     assert shown == pytest.approx(t["energy_meV"], abs=1e-3)
     assert set(t["sensitivity_per_unit"]) == {"nm", "um", "cm1", "GHz", "meV"}
+
+
+def test_report_lines_follow_the_chosen_unit():
+    from qwell.report.data import collect_report_data
+    from qwell.report.layout import Table
+    from qwell.report.pages import diagram_blocks
+    from qwell.stack import load_stack
+    data = collect_report_data(load_stack(LWIR), transitions=["e1-e2"], sensitivity=False,
+                               unit="cm-1")
+    table = next(b for b in diagram_blocks(data) if isinstance(b, Table))
+    (row,) = table.rows
+    e = data.chosen[0].energy_eV
+    # wavenumber = E / (hc × 1 cm^-1), CODATA 2018 digits above
+    assert row[-1] == f"{1e3 * e / MEV_PER_CM1:.2f} cm⁻¹"

@@ -152,6 +152,8 @@ def transition_json(transition) -> dict:
     return {"from": t.initial, "to": t.final, "kind": t.kind,
             "energy_eV": float(t.energy_eV), "wavelength_um": float(t.wavelength_um),
             "wavenumber_cm1": float(t.wavenumber_cm1), "frequency_THz": float(t.frequency_THz),
+            "wavelength_nm": measures(t.energy_eV)["wavelength_nm"],
+            "energy_meV": measures(t.energy_eV)["energy_meV"],
             "dipole_nm": _optional(t.dipole_nm),
             "oscillator_strength": _optional(t.oscillator_strength),
             "overlap": _optional(t.overlap), "te": _optional(t.te), "tm": _optional(t.tm),

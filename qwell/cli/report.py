@@ -8,7 +8,7 @@ when missing; a folder given with ``-o`` must exist) and prints both paths.
 from __future__ import annotations
 
 from ..report import DEFAULT_OUT_DIR, build_report
-from .common import add_self_consistent_option, load
+from .common import add_self_consistent_option, add_unit_option, load
 
 __all__ = ["register", "cmd_report"]
 
@@ -23,6 +23,7 @@ def register(subparsers) -> None:
                         "default reports/, created if missing)")
     r.add_argument("--transition", action="append", metavar="e1-e2",
                    help="transition to review (repeatable); default: the strongest ones")
+    add_unit_option(r)
     add_self_consistent_option(r)
     r.set_defaults(func=cmd_report)
 
@@ -33,7 +34,7 @@ def cmd_report(args) -> int:
     given = args.out_dir is not None
     res = build_report(stack, transitions=args.transition,
                        out_dir=args.out_dir if given else DEFAULT_OUT_DIR,
-                       create_out_dir=not given)
+                       create_out_dir=not given, unit=args.unit)
     print(f"wrote {res.pdf_path}")
     print(f"wrote {res.png_path}")
     return 0

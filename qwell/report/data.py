@@ -24,6 +24,7 @@ from ..levels import Solution, compare_methods, prepare_profile, solve_profile
 from ..optics import Transition, select_transitions
 from ..profile import Profile
 from ..selfconsistent import SelfConsistentResult
+from ..spectral import parse_unit
 from ..stack import Stack
 
 __all__ = [
@@ -99,6 +100,9 @@ class ReportData:
     tolerance_eV : float
     charge : qwell.selfconsistent.SelfConsistentResult or None
         The Schrödinger–Poisson result when the stack is solved self-consistently.
+    photon_unit : str or None
+        Unit of lines and shifts chosen by the user (``--unit``); None: each line in the
+        unit of its spectral region (:mod:`qwell.spectral`).
     """
 
     stack: Stack
@@ -113,6 +117,7 @@ class ReportData:
     created_utc: _dt.datetime
     tolerance_eV: float = REPORT_TOLERANCE_EV
     charge: SelfConsistentResult | None = None
+    photon_unit: str | None = None
 
 
 def default_transitions(solution) -> tuple:
@@ -291,7 +296,7 @@ def sensitivity_rows(stack, chosen, *, composition_step: float = 0.01, jobs=None
 # everything the report shows
 # ---------------------------------------------------------------------------
 def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT_TOLERANCE_EV,
-                        sensitivity: bool = True) -> ReportData:
+                        sensitivity: bool = True, unit: str | None = None) -> ReportData:
     """Solve ``stack`` with both methods and gather what the report shows.
 
     Parameters
@@ -306,10 +311,13 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
         design engine's, :data:`REPORT_TOLERANCE_EV`).
     sensitivity : bool
         Compute the sensitivity page (the costly part).
+    unit : str, optional
+        Photon unit of lines and shifts (one of :data:`qwell.spectral.UNITS`).
 
     Warnings raised while solving are captured, listed in the report and
     returned in :attr:`ReportData.warnings` (not re-raised here).
     """
+    photon_unit = parse_unit(unit) if unit else None
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", QwellWarning)
         prof, sc = prepare_profile(stack)
@@ -335,4 +343,4 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
                       chosen=tuple(chosen), comparison=comparison, sensitivity=tuple(sens),
                       sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
                       created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
-                      tolerance_eV=tolerance_eV)
+                      tolerance_eV=tolerance_eV, photon_unit=photon_unit)

@@ -141,9 +141,12 @@ def diagram_blocks(data: ReportData) -> list:
     blocks.append(FigureBlock(470.0, draw))
     if data.chosen:
         rows = [[t.name, t.kind, _transition_energy_text(t), f"{t.wavelength_um:.5f}",
-                 f"{t.wavenumber_cm1:.2f}"] for t in data.chosen]
-        blocks.append(Table(["transition", "kind", "energy (eV)", "λ (µm)", "wavenumber (cm⁻¹)"],
-                            rows, ["l", "l", "r", "r", "r"], title="Transitions reviewed"))
+                 f"{t.wavenumber_cm1:.2f}",
+                 format_line(t.energy_eV, data.photon_unit or auto_unit(t.energy_eV))]
+                for t in data.chosen]
+        blocks.append(Table(["transition", "kind", "energy (eV)", "λ (µm)", "wavenumber (cm⁻¹)",
+                             "line"], rows, ["l", "l", "r", "r", "r", "r"],
+                            title="Transitions reviewed"))
     else:
         blocks.append(Paragraph("No transition to review: the stack has fewer than two states "
                                 "connected by an optical transition."))
@@ -498,7 +501,7 @@ def sensitivity_blocks(data: ReportData) -> list:
         for name, rows in by_t.items():
             # shifts in the unit of the line's spectral region (qwell.spectral): nm, µm or GHz
             e = e0.get(name, float("nan"))
-            u = auto_unit(e)
+            u = data.photon_unit or auto_unit(e)
             su, sym = unit_label(spread_unit(u)), column(u).split()[0]
 
             def shift(v, _e=e, _u=u):
