@@ -37,6 +37,7 @@ import numpy as np
 from .bands import band_of_label
 from .fileio import atomic_write_bytes
 from .plots import BAND_STYLE, shade_layers
+from .spectral import auto_unit, from_eV, unit_label
 
 __all__ = [
     "DIAGRAM_SIZE_IN",
@@ -279,7 +280,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
         Band name -> :class:`~qwell.solvers.results.Levels` (exact solver,
         with wavefunctions).
     transitions : sequence of qwell.optics.Transition
-        Transitions drawn as arrows, labelled with name and wavelength [µm].
+        Transitions drawn as arrows, labelled with name and line (nm, µm or THz by region).
     rect : (left, bottom, width, height)
         Area of the figure to use, in figure fractions; axes labels, the
         layer strip and the state-label column fit inside it.
@@ -592,7 +593,8 @@ def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, 
         pl, pu = _panel_of(plan, lower.band), _panel_of(plan, upper.band)
         if pl is None or pu is None:
             continue
-        label = f"{t.name}  {t.wavelength_um:.4g} µm"
+        u = auto_unit(t.energy_eV)  # the unit of the line's spectral region (qwell.spectral)
+        label = f"{t.name}  {float(from_eV(t.energy_eV, u)):.4g} {unit_label(u)}"
         style = dict(arrowstyle="-|>", mutation_scale=9, lw=1.1, color="black",
                      shrinkA=0, shrinkB=0)
         if pl is pu:

@@ -77,6 +77,7 @@ References
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -97,6 +98,7 @@ __all__ = [
     "intersubband_transitions",
     "interband_transitions",
     "select_transitions",
+    "canonical_transition",
     "strength",
     "spectrum",
     "plot_spectrum",
@@ -519,6 +521,32 @@ def interband_transitions(electrons, electron_band, holes, hole_band) -> tuple[T
     return tuple(out)
 
 
+_STATE_LABEL = re.compile(r"^(e|hh|lh)(\d+)$")
+_BAND_RANK = {"e": 0, "hh": 1, "lh": 2}
+
+
+def canonical_transition(name) -> str:
+    """The name under which a transition is listed: lower state first.
+
+    ``'e3-e2'`` is the line ``'e2-e3'``, ``'hh1-e1'`` the line ``'e1-hh1'``: the electron
+    state comes first, and of two states of one band the lower index.  Spaces and case
+    are ignored; a name that is not two state labels is returned cleaned but unchanged
+    (the caller's check names what is wrong).
+    """
+    key = str(name).strip().lower().replace(" ", "")
+    parts = key.split("-")
+    if len(parts) != 2:
+        return key
+    m = [_STATE_LABEL.match(x) for x in parts]
+    if not all(m):
+        return key
+    order = sorted(zip(parts, m), key=lambda pm: (_BAND_RANK[pm[1].group(1)],
+                                                  int(pm[1].group(2))))
+    if m[0].group(1) != m[1].group(1) and _BAND_RANK[m[0].group(1)] and _BAND_RANK[m[1].group(1)]:
+        return key  # heavy to light hole: not a listed line; leave it for the caller's check
+    return "-".join(p for p, _ in order)
+
+
 def select_transitions(transitions, names) -> tuple[Transition, ...]:
     """Pick transitions by name ('e1-e2', 'e1-hh1'), in the order of ``names``.
 
@@ -534,7 +562,7 @@ def select_transitions(transitions, names) -> tuple[Transition, ...]:
         table.setdefault(t.name.lower(), t)
     out = []
     for n in names:
-        key = str(n).strip().lower().replace(" ", "")
+        key = canonical_transition(n)
         if key not in table:
             avail = ", ".join(t.name for t in transitions) or "none"
             raise ParameterError(f"unknown transition {n!r}; available: {avail}")

@@ -11,6 +11,7 @@ because a monolayer depends on the layer's lattice constant (a/2 on (001)).
 
 from __future__ import annotations
 
+import math
 import re
 
 import pint
@@ -26,6 +27,7 @@ __all__ = [
     "thickness_nm",
     "spectral_to_eV",
     "eV_to_um",
+    "format_exponent",
     "HC_EV_UM",
 ]
 
@@ -182,3 +184,19 @@ def spectral_to_eV(value) -> float:
 def eV_to_um(energy_eV):
     """Vacuum wavelength in um of a photon energy in eV (λ = hc/E)."""
     return HC_EV_UM / energy_eV
+
+
+_SUPERSCRIPT = str.maketrans("0123456789-", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻")
+
+
+def format_exponent(value: float, digits: int = 3) -> str:
+    """A number with its power of ten written out, e.g. ``4.00×10¹¹`` (sheet densities).
+
+    ``digits`` significant digits; 0 is '0', non-finite values as Python writes them.
+    """
+    v = float(value)
+    if v == 0 or not math.isfinite(v):
+        return "0" if v == 0 else str(v)
+    mant, exp = f"{v:.{max(digits - 1, 0)}e}".split("e")
+    e = int(exp)
+    return mant if e == 0 else f"{mant}×10{str(e).translate(_SUPERSCRIPT)}"

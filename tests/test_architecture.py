@@ -20,12 +20,12 @@ ROOT = Path(__file__).resolve().parents[1] / "qwell"
 #: packages) count as one entry: their modules share the layer.
 LAYERS = (
     ("constants", "errors"),
-    ("units",),
+    ("units", "spectral"),
     ("fileio", "parallel", "yamlio"),
     ("materials",),
     ("strain", "formula"),
     ("stack", "stack_edit"),
-    ("bands", "profile"),
+    ("bands", "profile", "reference"),
     ("solvers",),
     ("optics", "poisson", "lifetimes", "carriers", "excitons"),
     ("selfconsistent",),

@@ -233,7 +233,9 @@ def test_thickness_sensitivity_against_finite_well_equations(well_report, gaas):
         rr = rows[(side, "thickness")]
         assert abs(rr.plus_nm) <= tol and abs(rr.minus_nm) <= tol
     text = _norm("\n".join(well_report["pages"]))
-    assert f"{r.plus_nm:+.2f}" in text and f"{r.minus_nm:+.2f}" in text
+    # a 9 µm line: the report gives its shifts in µm (the unit of its spectral region)
+    assert "Δλ for −step (µm)" in text
+    assert f"{r.plus_nm / 1e3:+.5f}" in text and f"{r.minus_nm / 1e3:+.5f}" in text
 
 
 def test_pdf_cites_sources_and_prints_cautions(well_report, gaas):

@@ -6,6 +6,7 @@ passed in as arguments.
 
 from __future__ import annotations
 
+import argparse
 import json
 import math
 import sys
@@ -17,10 +18,13 @@ import numpy as np
 from ..errors import ValidityWarning
 from ..levels import prepare_profile
 from ..materials import load_library
+from ..spectral import UNITS, parse_unit
 from ..stack import load_stack
+from ..units import format_exponent
 
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
-           "table", "fmt", "unit_text", "add_self_consistent_option", "add_library_option"]
+           "table", "fmt", "unit_text", "add_self_consistent_option", "add_library_option",
+           "add_unit_option"]
 
 #: Exit status of every user error (bad input, bad option).
 EXIT_USAGE = 2
@@ -39,6 +43,20 @@ def add_library_option(parser) -> None:
                         help="material library (YAML, see 'qwell materials --check'); "
                              "repeatable, applied after the stack's own 'library:' files, later "
                              "ones win")
+
+
+def _unit_choice(text: str) -> str:
+    try:
+        return parse_unit(text)
+    except ValueError as exc:  # argparse turns this into one line and exit 2
+        raise argparse.ArgumentTypeError(str(exc).split(": ", 1)[1]) from None
+
+
+def add_unit_option(parser) -> None:
+    """Add ``--unit`` (photon unit of printed lines) to a command that prints lines."""
+    parser.add_argument("--unit", type=_unit_choice, default=None, metavar="|".join(UNITS),
+                        help="photon unit of printed lines and spreads (default: by spectral "
+                             "region: nm below 2 µm, µm to 30 µm, THz with meV beyond)")
 
 
 def load(path, self_consistent: bool = False, libraries=()):
@@ -77,7 +95,8 @@ def print_self_consistent(sc) -> None:
           + ("not defined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV"))
     occ = {k: v for k, v in sc.sheet_densities_cm2.items() if v > 0}
     if occ:
-        print("sheet densities: " + ", ".join(f"{k} {v:.4g} cm⁻²" for k, v in occ.items()))
+        print("sheet densities: " + ", ".join(f"{k} {format_exponent(v)} cm⁻²"
+                                              for k, v in occ.items()))
     print()
 
 

@@ -13,14 +13,17 @@ from pathlib import Path
 
 import numpy as np
 
-from ..constants import HC_EV_UM
 from ..design import get_parameter, parse_parameter_value, size, sweep, tolerance
 from ..errors import ParameterError, QwellError
 from ..fileio import atomic_write_text
 from ..stack import dump_stack_yaml
+from ..spectral import LINE_SPEC as _LINE_SPEC
+from ..spectral import SPREAD_SPEC as _SPREAD_SPEC
+from ..spectral import (column, energy_of_um, energy_text, format_line, format_spread, from_eV, line_unit,
+                        spread_unit, unit_label)
 from ..units import spectral_to_eV
-from .common import (add_library_option, add_self_consistent_option, fmt, load, print_json,
-                     table, unit_text)
+from .common import (add_library_option, add_self_consistent_option, add_unit_option, fmt, load,
+                     print_json, table, unit_text)
 from .json_out import size_json, sweep_json, tolerance_json
 
 __all__ = ["register", "cmd_size", "cmd_sweep", "cmd_tolerance"]
@@ -43,6 +46,7 @@ def register(subparsers) -> None:
     s.add_argument("--emitter", metavar="e2-e3",
                    help="also report this intersubband line's LO-phonon lifetimes and figure "
                         "of merit at the sized value")
+    add_unit_option(s)
     _add_parallel(s)
     add_self_consistent_option(s)
     add_library_option(s)
@@ -70,6 +74,10 @@ def register(subparsers) -> None:
     w.add_argument("--emitter", metavar="e2-e3",
                    help="follow this intersubband line's LO-phonon lifetimes and figure of "
                         "merit over the sweep")
+    w.add_argument("--reference", metavar="LAYER",
+                   help="show state energies from the band edge at this layer's centre "
+                        "(levels of that layer stay flat in a field sweep)")
+    add_unit_option(w)
     _add_parallel(w)
     add_self_consistent_option(w)
     add_library_option(w)
@@ -92,6 +100,7 @@ def register(subparsers) -> None:
     t.add_argument("--distribution", default="normal", choices=["normal", "uniform"],
                    help="normal: tolerance = 1 sigma (default); uniform: on ±tolerance")
     t.add_argument("--json", action="store_true")
+    add_unit_option(t)
     _add_parallel(t)
     add_self_consistent_option(t)
     add_library_option(t)
@@ -139,9 +148,9 @@ def cmd_size(args) -> int:
     if args.write:
         atomic_write_text(args.write, dump_stack_yaml(res.stack.raw), protect=[args.stack])
     if args.json:
-        print_json(size_json(res))
+        print_json(size_json(res, args.unit))
         return 0
-    print_size(stack, p, target, res)
+    print_size(stack, p, target, res, args.unit)
     if args.write:
         print(f"wrote {args.write}")
     return 0
@@ -155,15 +164,21 @@ def _em(pairs, key, spec) -> str:
     return fmt(v, spec)
 
 
-def print_size(stack, p, target_eV: float, res) -> None:
-    """The target, the sized value and its error, whole-monolayer options, notes."""
-    print(f"{stack.name}: {res.transition} at {HC_EV_UM / target_eV:.6g} µm ({target_eV:.6g} eV)")
-    print(f"  {p.path} = {res.value:.6f}{unit_text(p.unit)}  ->  {res.wavelength_um:.6f} µm "
-          f"({res.energy_eV:.6f} eV, {100 * res.relative_error:+.2g} % from the target)")
+def print_size(stack, p, target_eV: float, res, unit: str | None = None) -> None:
+    """The target, the sized value and its error, whole-monolayer options, notes.
+
+    Lines are written in ``unit`` (default: the target's spectral region).
+    """
+    u = line_unit(target_eV, unit)
+    print(f"{stack.name}: {res.transition} at {format_line(target_eV, u)} "
+          f"({energy_text(target_eV, u, 5)})")
+    print(f"  {p.path} = {res.value:.6f}{unit_text(p.unit)}  ->  {format_line(res.energy_eV, u)} "
+          f"({energy_text(res.energy_eV, u)}, {100 * res.relative_error:+.2g} % from the target)")
     if res.monolayer_options:
-        rows = [[o.monolayers, f"{o.thickness_nm:.4f}", fmt(o.wavelength_um, ".5f"),
-                 fmt(o.energy_eV, ".6f")] for o in res.monolayer_options]
-        heads, aligns = ["ML", "thickness nm", "λ µm", "energy eV"], [">", ">", ">", ">"]
+        rows = [[o.monolayers, f"{o.thickness_nm:.4f}",
+                 format_line(o.energy_eV, u, with_unit=False), fmt(o.energy_eV, ".6f")]
+                for o in res.monolayer_options]
+        heads, aligns = ["ML", "thickness nm", column(u), "energy eV"], [">", ">", ">", ">"]
         if res.emitter:
             for o, row in zip(res.monolayer_options, rows):
                 row += [_em(o.emitter, "tau_upper_ps", ".3g"), _em(o.emitter, "tau_lower_ps", ".3g"),
@@ -243,19 +258,20 @@ def cmd_sweep(args) -> int:
     (p1, v1) = axes[0]
     p2, v2 = (axes[1] if len(axes) > 1 else (None, None))
     res = sweep(stack, p1.path, v1, args.transition, parameter2=None if p2 is None else p2.path,
-                values2=v2, sensitivity=args.sensitivity, emitter=args.emitter,
+                values2=v2, sensitivity=args.sensitivity, reference=args.reference,
+                emitter=args.emitter,
                 **_parallel_kw(args))
     if args.csv:
         atomic_write_text(args.csv, res.to_csv(), protect=[args.stack])
     if args.png:
-        res.plot(args.png, protect=[args.stack], title=stack.name)
+        res.plot(args.png, protect=[args.stack], title=stack.name, unit=args.unit)
     if args.json:
-        print_json(sweep_json(res))
+        print_json(sweep_json(res, args.unit))
         return 0
     if p2 is None:
-        print_sweep(stack, p1, v1, res)
+        print_sweep(stack, p1, v1, res, args.unit)
     else:
-        print_map(stack, p1, v1, p2, v2, res)
+        print_map(stack, p1, v1, p2, v2, res, args.unit)
     for n in res.notes:
         print(f"note: {n}")
     for f in (args.csv, args.png):
@@ -264,12 +280,14 @@ def cmd_sweep(args) -> int:
     return 0
 
 
-def print_sweep(stack, p1, v1, res) -> None:
-    """1-D sweep: state energies, and wavelength and dλ/dp of each followed transition."""
+def print_sweep(stack, p1, v1, res, unit: str | None = None) -> None:
+    """1-D sweep: state energies, and each followed line and its sensitivity in ``unit``."""
+    u = res.photon_unit(unit)
     heads = [f"{p1.path}{unit_text(p1.unit)}"] + list(res.state_labels)
     aligns = [">"] * len(heads)
     for t in res.transitions:
-        heads += [f"{t} λ µm", f"dλ {res.sensitivity_units[p1.path]}"]
+        heads += [f"{t} {column(u)}", f"d{column(u).split()[0]} "
+                  f"{res.sensitivity_unit_in(p1.path, u)}"]
         aligns += [">", ">"]
     keys = (("tau_upper_ps", "tau_u ps", ".3g"), ("tau_lower_ps", "tau_l ps", ".3g"),
             ("tau_upper_lower_ps", "tau_ul ps", ".3g"),
@@ -278,27 +296,43 @@ def print_sweep(stack, p1, v1, res) -> None:
     if res.emitter_line is not None:
         heads += [h for _, h, _ in keys]
         aligns += [">"] * len(keys)
+    lines = {t: res.line_in(t, u) for t in res.transitions}
+    sens = {t: res.sensitivity_in(t, p1.path, u) for t in res.transitions}
+    sspec = _SPREAD_SPEC[spread_unit(u)]
+    shown = {lab: res.state_energy_shown(lab) for lab in res.state_labels}
     rows = []
     for i, v in enumerate(v1):
-        row = [f"{v:.6g}"] + [fmt(res.state_energy_eV[lab][i], ".5f") for lab in res.state_labels]
+        row = [f"{v:.6g}"] + [fmt(float(shown[lab][i]), ".5f") for lab in res.state_labels]
         for t in res.transitions:
-            row += [fmt(res.wavelength_um[t][i], ".5f"), fmt(res.sensitivity[t][p1.path][i], ".3f")]
+            row += [fmt(float(lines[t][i]), _LINE_SPEC[u]), fmt(float(sens[t][i]), sspec)]
         if res.emitter_line is not None:
             row += [_em(((k, res.emitter[k][i]),), k, spec) for k, _, spec in keys]
         rows.append(row)
     print(f"{stack.name}: sweep of {p1.path} (state energies in eV"
+          + (f", from the band edge at the centre of {res.reference}" if res.reference else "")
           + (f"; emitter line {res.emitter_line}, LO-phonon lifetimes" if res.emitter_line
              else "") + ")")
     print(table(rows, heads, aligns))
+    print_anticrossings(res)
 
 
-def print_map(stack, p1, v1, p2, v2, res) -> None:
-    """2-D map: one wavelength table per followed transition (and the emitter figure)."""
+def print_anticrossings(res) -> None:
+    """One line per anticrossing: the pair, its minimum gap and where."""
+    for a in res.anticrossings:
+        print(f"anticrossing {a.lower}/{a.upper}: minimum gap {a.gap_meV:.4g} meV at "
+              f"{a.parameter} = {a.value:.4g}{unit_text(a.unit)} (smallest on the grid "
+              f"{1e3 * a.grid_gap_eV:.4g} meV)")
+
+
+def print_map(stack, p1, v1, p2, v2, res, unit: str | None = None) -> None:
+    """2-D map: one table per followed line, in ``unit``."""
+    u = res.photon_unit(unit)
     print(f"{stack.name}: map of {p1.path} x {p2.path}")
     for t in res.transitions:
-        print(f"\n{t} wavelength [µm]; rows {p1.path}, columns {p2.path}")
+        lines = res.line_in(t, u)
+        print(f"\n{t} {column(u).split()[0]} [{unit_label(u)}]; rows {p1.path}, columns {p2.path}")
         heads = [""] + [f"{v:.4g}" for v in v2]
-        rows = [[f"{v:.4g}"] + [fmt(res.wavelength_um[t][i, j], ".4f") for j in range(len(v2))]
+        rows = [[f"{v:.4g}"] + [fmt(float(lines[i, j]), _LINE_SPEC[u]) for j in range(len(v2))]
                 for i, v in enumerate(v1)]
         print(table(rows, heads, [">"] * len(heads)))
     if res.emitter_line is not None:
@@ -353,31 +387,51 @@ def cmd_tolerance(args) -> int:
                     monte_carlo=args.monte_carlo or 0, seed=args.seed,
                     distribution=args.distribution, **_parallel_kw(args))
     if args.json:
-        print_json(tolerance_json(res))
+        print_json(tolerance_json(res, args.unit))
         return 0
-    print_tolerance(stack, res)
+    print_tolerance(stack, res, args.unit)
     return 0
 
 
-def print_tolerance(stack, res) -> None:
-    """Contributions, worst case, root-sum-square, Monte Carlo statistics, notes."""
-    print(f"{stack.name}: {res.transition} at {res.nominal_wavelength_um:.5f} µm "
-          f"({res.nominal_energy_eV:.6f} eV)")
+def _um_line(lam_um: float, unit: str) -> str:
+    """A wavelength [µm] written as a line in ``unit`` (no unit text)."""
+    return format_line(energy_of_um(lam_um), unit, with_unit=False)
+
+
+def print_tolerance(stack, res, unit: str | None = None) -> None:
+    """Contributions, worst case, root-sum-square, Monte Carlo statistics, notes.
+
+    Lines are in ``unit`` (default: the nominal line's spectral region), spreads in its
+    spread unit (nm, µm, cm⁻¹, GHz for THz lines, meV).
+    """
+    e0 = res.nominal_energy_eV
+    u = line_unit(e0, unit)
+    su = unit_label(spread_unit(u))
+    print(f"{stack.name}: {res.transition} at {format_line(e0, u)} ({energy_text(e0, u)})")
     rows = [[c.parameter, f"{c.value:.6g}{unit_text(c.unit)}",
              f"±{c.delta:.4g}{unit_text(c.unit)} ({c.spec})",
-             fmt(c.wavelength_minus_um, ".5f"), fmt(c.wavelength_plus_um, ".5f"),
-             fmt(c.contribution_nm, "+.3f")] for c in res.contributions]
-    print(table(rows, ["parameter", "nominal", "tolerance", "λ(-) µm", "λ(+) µm",
-                       "contribution nm"], ["<", ">", "<", ">", ">", ">"]))
-    print(f"\nworst case: ±{fmt(res.worst_case_nm, '.3f')} nm (sum of |contributions|); "
-          f"corner designs {fmt(res.corner_min_um, '.5f')} .. {fmt(res.corner_max_um, '.5f')} µm")
-    print(f"root-sum-square: ±{fmt(res.rss_nm, '.3f')} nm")
+             _um_line(c.wavelength_minus_um, u), _um_line(c.wavelength_plus_um, u),
+             format_spread(c.contribution_nm, e0, u, sign="+", with_unit=False)]
+            for c in res.contributions]
+    print(table(rows, ["parameter", "nominal", "tolerance", column(u, "(-)"), column(u, "(+)"),
+                       f"contribution {su}"], ["<", ">", "<", ">", ">", ">"]))
+    corners = sorted(float(from_eV(energy_of_um(x), u)) if x and x > 0 else math.nan
+                     for x in (res.corner_min_um, res.corner_max_um))
+    print(f"\nworst case: {format_spread(res.worst_case_nm, e0, u, sign='±')} (sum of "
+          f"|contributions|); corner designs {fmt(corners[0], _LINE_SPEC[u])} .. "
+          f"{fmt(corners[1], _LINE_SPEC[u])} {unit_label(u)}")
+    print(f"root-sum-square: {format_spread(res.rss_nm, e0, u, sign='±')}")
     mc = res.monte_carlo
     if mc is not None:
         sigma = ("each tolerance taken as 1 sigma of a Gaussian" if mc.distribution == "normal"
                  else "each parameter uniform on ±tolerance")
+        pct = dict(mc.percentiles_um)
+        if u not in ("nm", "um"):  # a decreasing measure: its k-th percentile is λ's (100-k)-th
+            pct = {k: pct.get(100 - k, math.nan) for k in pct}
         print(f"Monte Carlo ({mc.samples} designs, {sigma}, seed {mc.seed}): mean "
-              f"{fmt(mc.mean_um, '.5f')} µm, std {fmt(mc.std_nm, '.3f')} nm, percentiles "
-              + ", ".join(f"{k}%: {fmt(v, '.5f')} µm" for k, v in mc.percentiles_um.items()))
+              f"{_um_line(mc.mean_um, u)} {unit_label(u)}"
+              f"{'' if u in ('nm', 'um') else ' (of the wavelengths)'}, std "
+              f"{format_spread(mc.std_nm, e0, u, sign='±')[1:]}, percentiles "
+              + ", ".join(f"{k}%: {_um_line(v, u)} {unit_label(u)}" for k, v in pct.items()))
     for n in res.notes:
         print(f"note: {n}")

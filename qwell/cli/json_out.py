@@ -14,6 +14,7 @@ import numpy as np
 
 from ..levels import compare_methods, depolarised_lines
 from ..materials import material_provenance, provenance_json
+from ..spectral import line_unit, measures, spread_measures
 
 __all__ = ["material_list_json", "material_json", "library_json", "library_check_json", "layer_profile_json", "profile_json",
            "self_consistent_json", "self_consistent_profile_json", "state_json",
@@ -177,6 +178,8 @@ def transition_json(transition) -> dict:
     return {"from": t.initial, "to": t.final, "kind": t.kind,
             "energy_eV": float(t.energy_eV), "wavelength_um": float(t.wavelength_um),
             "wavenumber_cm1": float(t.wavenumber_cm1), "frequency_THz": float(t.frequency_THz),
+            "wavelength_nm": measures(t.energy_eV)["wavelength_nm"],
+            "energy_meV": measures(t.energy_eV)["energy_meV"],
             "dipole_nm": _optional(t.dipole_nm),
             "oscillator_strength": _optional(t.oscillator_strength),
             "overlap": _optional(t.overlap), "te": _optional(t.te), "tm": _optional(t.tm),
@@ -316,18 +319,30 @@ def spectrum_json(spec) -> dict:
 # ---------------------------------------------------------------------------
 # design workflows
 # ---------------------------------------------------------------------------
-def size_json(res) -> dict:
-    """A :class:`~qwell.design.SizeResult`: the sized value and what it gives."""
+def size_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.SizeResult`: the sized value and what it gives.
+
+    Every line carries all its measures (``wavelength_nm``, ``wavelength_um``,
+    ``wavenumber_cm1``, ``frequency_THz``, ``energy_meV``); ``photon_unit`` is
+    the unit the table shows (``unit``, else the target's spectral region).
+    """
     return {
         "parameter": res.parameter, "unit": res.unit, "value": res.value,
         "wavelength_um": _finite(res.wavelength_um), "energy_eV": _finite(res.energy_eV),
+        **{k: v for k, v in measures(res.energy_eV).items() if k != "wavelength_um"},
         "monolayer_options": [{"monolayers": o.monolayers, "thickness_nm": o.thickness_nm,
                                "wavelength_um": _finite(o.wavelength_um),
+                               "energy_eV": _finite(o.energy_eV),
+                               **{k: v for k, v in measures(o.energy_eV).items()
+                                  if k != "wavelength_um"},
                                **({"emitter": emitter_pairs_json(o.emitter)}
                                   if res.emitter else {})}
                               for o in res.monolayer_options],
         "transition": res.transition, "target_energy_eV": res.target_energy_eV,
         "target_wavelength_um": res.target_wavelength_um,
+        **{k: v for k, v in measures(res.target_energy_eV, "target_").items()
+           if k != "target_wavelength_um"},
+        "photon_unit": line_unit(res.target_energy_eV, unit),
         "relative_error": _finite(res.relative_error), "bracket": list(res.bracket),
         "evaluations": res.evaluations,
         **({"emitter": emitter_pairs_json(res.emitter),
@@ -351,22 +366,42 @@ def _nulls(o):
     return o
 
 
-def sweep_json(res) -> dict:
-    """A :class:`~qwell.design.SweepResult` (1-D: scalars per key; 2-D: lists/maps)."""
+def sweep_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.SweepResult` (1-D: scalars per key; 2-D: lists/maps).
+
+    Each line carries every measure (``wavelength_nm``, ``wavenumber_cm1``,
+    ``frequency_THz``, ``energy_meV`` beside ``wavelength_um``) and its
+    sensitivity in every spread unit (``sensitivity_per_unit``: nm, um, cm1,
+    GHz, meV per engineering step); ``photon_unit`` is the unit of the table.
+    """
     one = len(res.parameters) == 1
     first = res.parameters[0]
     trans = {}
+    spread_keys = {"nm": "nm", "um": "um", "cm-1": "cm1", "THz": "GHz", "meV": "meV"}
     for t in res.transitions:
         sens = {p: _grid(res.sensitivity[t][p]) for p in res.parameters}
+        per = {p: {k: _grid(res.sensitivity_in(t, p, u)) for u, k in spread_keys.items()}
+               for p in res.parameters}
         trans[t] = {"energy_eV": _grid(res.energy_eV[t]),
                     "wavelength_um": _grid(res.wavelength_um[t]),
-                    "sensitivity_nm_per_unit": sens[first] if one else sens}
+                    "wavelength_nm": _grid(res.line_in(t, "nm")),
+                    "wavenumber_cm1": _grid(res.line_in(t, "cm-1")),
+                    "frequency_THz": _grid(res.line_in(t, "THz")),
+                    "energy_meV": _grid(res.line_in(t, "meV")),
+                    "sensitivity_nm_per_unit": sens[first] if one else sens,
+                    "sensitivity_per_unit": per[first] if one else per}
     return {
         "parameter": first if one else list(res.parameters),
         "unit": res.units[0] if one else list(res.units),
         "values": _grid(res.values[0]) if one else [_grid(v) for v in res.values],
+        "photon_unit": res.photon_unit(unit),
         "states": {lab: _grid(res.state_energy_eV[lab]) for lab in res.state_labels},
         "bound": {lab: np.asarray(res.state_bound[lab]).tolist() for lab in res.state_labels},
+        **({"reference": {"layer": res.reference,
+                          "edge_eV": {b: _grid(e) for b, e in res.reference_edge_eV.items()},
+                          "states_from_reference_eV": {lab: _grid(res.state_energy_shown(lab))
+                                                       for lab in res.state_labels}}}
+           if res.reference else {}),
         "transitions": trans,
         "sensitivity_unit": (res.sensitivity_units[first] if one
                              else dict(res.sensitivity_units)),
@@ -375,36 +410,60 @@ def sweep_json(res) -> dict:
                         **{k: _grid(v) for k, v in res.emitter.items()},
                         "lifetime_ps": {lab: _grid(v) for lab, v in res.lifetime_ps.items()}}}
            if res.emitter_line is not None else {}),
+        "anticrossings": [{"lower": a.lower, "upper": a.upper, "parameter": a.parameter,
+                           "unit": a.unit, "value": a.value, "gap_eV": a.gap_eV,
+                           "gap_meV": a.gap_meV, "grid_gap_eV": a.grid_gap_eV}
+                          for a in res.anticrossings],
         "notes": list(res.notes),
     }
 
 
-def monte_carlo_json(mc) -> dict:
-    """A :class:`~qwell.design.MonteCarloSummary`: wavelength statistics."""
+def monte_carlo_json(mc, energy_eV: float | None = None) -> dict:
+    """A :class:`~qwell.design.MonteCarloSummary`: wavelength statistics (the standard
+    deviation also as ``std_um``, ``std_cm1``, ``std_GHz``, ``std_meV`` at the nominal line
+    ``energy_eV``)."""
+    std = spread_measures(_finite(mc.std_nm), energy_eV, "std_") if energy_eV else {}
+    std.pop("std_nm", None)
     return {"samples": mc.samples, "valid": mc.valid, "distribution": mc.distribution,
             "sigma": ("tolerance = 1 sigma" if mc.distribution == "normal"
                       else "uniform on ±tolerance"),
             "seed": mc.seed, "mean_um": _finite(mc.mean_um), "std_nm": _finite(mc.std_nm),
+            **std,
             "percentiles_um": {str(k): _finite(v) for k, v in mc.percentiles_um.items()},
             "clipped": mc.clipped}
 
 
-def tolerance_json(res) -> dict:
-    """A :class:`~qwell.design.ToleranceResult`: contributions, worst case, RSS, Monte Carlo."""
+def tolerance_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.ToleranceResult`: contributions, worst case, RSS, Monte Carlo.
+
+    Spreads carry every spread unit (``contribution_nm``, ``contribution_um``,
+    ``contribution_cm1``, ``contribution_GHz``, ``contribution_meV``; the same for
+    ``sum_*`` and ``rss_*``), linear at the nominal line; ``photon_unit`` is the unit the
+    table shows.
+    """
+    e0 = _finite(res.nominal_energy_eV)
+
+    def spreads(delta_nm, prefix):
+        out = spread_measures(_finite(delta_nm), e0, prefix)
+        out.pop(f"{prefix}nm")
+        return out
     return {
         "transition": res.transition,
-        "nominal": {"energy_eV": _finite(res.nominal_energy_eV),
-                    "wavelength_um": _finite(res.nominal_wavelength_um)},
+        "photon_unit": line_unit(e0, unit),
+        "nominal": {"energy_eV": e0, "wavelength_um": _finite(res.nominal_wavelength_um),
+                    **{k: v for k, v in measures(e0).items() if k != "wavelength_um"}},
         "contributions": [{"parameter": c.parameter, "unit": c.unit, "value": c.value,
                            "delta": c.delta, "spec": c.spec,
                            "wavelength_plus_um": _finite(c.wavelength_plus_um),
                            "wavelength_minus_um": _finite(c.wavelength_minus_um),
-                           "contribution_nm": _finite(c.contribution_nm)}
+                           "contribution_nm": _finite(c.contribution_nm),
+                           **spreads(c.contribution_nm, "contribution_")}
                           for c in res.contributions],
-        "worst_case": {"sum_nm": _finite(res.worst_case_nm),
+        "worst_case": {"sum_nm": _finite(res.worst_case_nm), **spreads(res.worst_case_nm, "sum_"),
                        "corner_min_um": _finite(res.corner_min_um),
                        "corner_max_um": _finite(res.corner_max_um)},
-        "rss_nm": _finite(res.rss_nm),
-        "monte_carlo": None if res.monte_carlo is None else monte_carlo_json(res.monte_carlo),
+        "rss_nm": _finite(res.rss_nm), **spreads(res.rss_nm, "rss_"),
+        "monte_carlo": (None if res.monte_carlo is None
+                        else monte_carlo_json(res.monte_carlo, e0)),
         "notes": list(res.notes),
     }

@@ -11,6 +11,7 @@ One topic per module:
   :func:`evaluate_many`, the one evaluation engine (locally or on Dask);
 * :mod:`.sizing`: :func:`size` (a parameter value for a target wavelength);
 * :mod:`.sweeps`: :func:`sweep` (1-D and 2-D grids);
+* :mod:`.crossings`: :func:`find_anticrossings` (minimum gaps of neighbouring states);
 * :mod:`.tolerances`: :func:`tolerance` (worst case, corners, RSS, Monte
   Carlo) and :func:`sensitivities` (± shifts of several transitions).
 
@@ -23,6 +24,7 @@ from __future__ import annotations
 
 from ..formula import format_formula
 from ..stack_edit import KINDS, Parameter, apply_parameters, get_parameter, parameters
+from .crossings import Anticrossing, find_anticrossings
 from .evaluate import DesignPoint, bands_for_transitions, design_point, evaluate_many
 from .sizing import MonolayerOption, SizeResult, size
 from .sweeps import SweepResult, sweep
@@ -35,6 +37,8 @@ __all__ = [
     "SizeResult",
     "MonolayerOption",
     "SweepResult",
+    "Anticrossing",
+    "find_anticrossings",
     "Contribution",
     "MonteCarloSummary",
     "ToleranceResult",

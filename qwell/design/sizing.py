@@ -10,6 +10,8 @@ from pint import Quantity
 
 from ..constants import HC_EV_UM
 from ..errors import ConvergenceError, ParameterError
+from ..optics import canonical_transition
+from ..spectral import auto_unit, energy_text, format_line, from_eV, unit_label
 from ..stack_edit import Parameter, apply_parameters, get_parameter
 from ..units import spectral_to_eV
 from .evaluate import (bands_for_transitions, check_transitions, design_point, emit_warnings,
@@ -200,6 +202,7 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
 
     p = get_parameter(stack, parameter)
     e_target = _target_eV(target_eV)
+    transition = canonical_transition(transition)
     bands = bands_for_transitions([transition], bands)
     start = design_point(stack, {p.path: p.value}, bands=bands)
     check_transitions(start, [transition], _where(p))
@@ -250,10 +253,12 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
         else:
             reasons.append(f"{transition} has its {'largest' if e_target > emax else 'smallest'} "
                            f"energy near {p.describe(grid[k_ext])}, inside the range")
+        u = auto_unit(e_target)
+        ends = sorted((float(from_eV(emin, u)), float(from_eV(emax, u))))
         raise ParameterError(
-            f"target {lam_t:.5g} um ({e_target:.5g} eV) is out of reach by varying {p.path} "
-            f"over {_fmt_range(lo, hi, p.unit)}: {transition} spans "
-            f"{HC_EV_UM / emax:.5g}..{HC_EV_UM / emin:.5g} um ({emin:.5g}..{emax:.5g} eV)"
+            f"target {format_line(e_target, u)} ({energy_text(e_target, u, 5)}) is out of reach by varying "
+            f"{p.path} over {_fmt_range(lo, hi, p.unit)}: {transition} spans "
+            f"{ends[0]:.5g}..{ends[1]:.5g} {unit_label(u)} ({emin:.5g}..{emax:.5g} eV)"
             + ("; " + "; ".join(reasons) if reasons else ""))
     k0 = min(brackets, key=lambda b: abs(0.5 * (grid[b[0]] + grid[b[1]]) - p.value))
     a, b = float(grid[k0[0]]), float(grid[k0[1]])
@@ -289,8 +294,8 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
     if not abs(e - e_target) <= max(1e-6 * abs(e_target), 1e-7):
         # brentq closed in on a discontinuity, not a root: the label changed state there
         raise ParameterError(
-            f"target {lam_t:.5g} um falls on a jump of the {transition} curve near "
-            f"{p.describe(value)} ({HC_EV_UM / e:.5g} um there): the label passes to another "
+            f"target {format_line(e_target, auto_unit(e_target))} falls on a jump of the {transition} curve near "
+            f"{p.describe(value)} ({format_line(e, auto_unit(e_target))} there): the label passes to another "
             "state at that point (a resonance appears or leaves), so no design in "
             f"{_fmt_range(a, b, p.unit)} hits the target; see 'qwell sweep' over {p.path}")
     notes += jump_notes(p, grid, {}, {transition: energies})

@@ -21,6 +21,7 @@ from typing import Mapping
 import numpy as np
 
 from ..errors import ParameterError, UnitError
+from ..optics import canonical_transition
 from ..stack_edit import Parameter, get_parameter, parameters
 from ..units import parse_quantity, thickness_nm, to_float
 from .evaluate import (DEFAULT_TOLERANCE_EV, DesignPoint, bands_for_transitions,
@@ -292,6 +293,7 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
     n_mc = int(monte_carlo or 0)
     if n_mc < 0:
         raise ParameterError(f"monte_carlo = {monte_carlo!r}: expected a count >= 0")
+    transition = canonical_transition(transition)
     bands = bands_for_transitions([transition], bands)
     params = parameters(stack)
     nominal = design_point(stack, {}, bands=bands)
@@ -527,6 +529,7 @@ def sensitivities(stack, transitions=("e1-e2",), thickness_tol="1 ML", compositi
     names = [transitions] if isinstance(transitions, str) else list(transitions or ())
     if not names:
         raise ParameterError("no transition given; expected names such as e1-e2 or e1-hh1")
+    names = [canonical_transition(n) for n in names]
     bands = bands_for_transitions(names, bands)
     needed = tuple(dict.fromkeys(lab for n in names for lab in n.split("-")))
     params = parameters(stack)

@@ -79,7 +79,7 @@ def _output_dir(out_dir, create: bool | None) -> Path:
 
 
 def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
-                 create_out_dir: bool | None = None) -> ReportResult:
+                 create_out_dir: bool | None = None, unit: str | None = None) -> ReportResult:
     """Write the design-review PDF and the band-diagram PNG of a stack.
 
     Parameters
@@ -94,6 +94,8 @@ def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
     create_out_dir : bool, optional
         Create a missing folder; default: only for the default folder (a
         user-given folder must exist).
+    unit : str, optional
+        Photon unit of lines and shifts; default: each line's spectral region.
 
     Returns
     -------
@@ -122,7 +124,7 @@ def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
     d = _output_dir(out_dir, create_out_dir)
     if not os.access(d, os.W_OK | os.X_OK):
         raise QwellError(f"output folder {d} is not writable")
-    data = collect_report_data(stack, transitions=transitions)
+    data = collect_report_data(stack, transitions=transitions, unit=unit)
     pdf_bytes, pages = render_pdf(data)
     title = f"{stack.name}  (T = {stack.temperature_K:g} K)"
     png_bytes = band_diagram_png(data.profile, data.exact.levels, transitions=data.chosen,

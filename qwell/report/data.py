@@ -25,6 +25,7 @@ from ..lifetimes import Lifetimes, solution_lifetimes
 from ..optics import Transition, select_transitions
 from ..profile import Profile
 from ..selfconsistent import SelfConsistentResult
+from ..spectral import parse_unit
 from ..stack import Stack
 from .spectra import ReportSpectra, report_spectra
 
@@ -110,6 +111,9 @@ class ReportData:
         include an intersubband line (see :func:`report_lifetimes`).
     lifetimes_note : str
         Why the lifetimes are missing although an intersubband line is reviewed ('' else).
+    photon_unit : str or None
+        Unit of lines and shifts chosen by the user (``--unit``); None: each line in the
+        unit of its spectral region (:mod:`qwell.spectral`).
     """
 
     stack: Stack
@@ -127,6 +131,7 @@ class ReportData:
     spectra: ReportSpectra | None = None
     lifetimes: Lifetimes | None = None
     lifetimes_note: str = ""
+    photon_unit: str | None = None
 
 
 def default_transitions(solution) -> tuple:
@@ -308,7 +313,7 @@ def report_lifetimes(exact, chosen, named: bool) -> tuple:
 # everything the report shows
 # ---------------------------------------------------------------------------
 def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT_TOLERANCE_EV,
-                        sensitivity: bool = True) -> ReportData:
+                        sensitivity: bool = True, unit: str | None = None) -> ReportData:
     """Solve ``stack`` with both methods and gather what the report shows.
 
     Parameters
@@ -323,10 +328,13 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
         design engine's, :data:`REPORT_TOLERANCE_EV`).
     sensitivity : bool
         Compute the sensitivity page (the costly part).
+    unit : str, optional
+        Photon unit of lines and shifts (one of :data:`qwell.spectral.UNITS`).
 
     Warnings raised while solving are captured, listed in the report and
     returned in :attr:`ReportData.warnings` (not re-raised here).
     """
+    photon_unit = parse_unit(unit) if unit else None
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", QwellWarning)
         prof, sc = prepare_profile(stack)
@@ -359,4 +367,4 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
                       sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
                       created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
                       tolerance_eV=tolerance_eV, spectra=spectra, lifetimes=lifetimes,
-                      lifetimes_note=lifetimes_note)
+                      lifetimes_note=lifetimes_note, photon_unit=photon_unit)

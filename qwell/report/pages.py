@@ -24,8 +24,12 @@ from pathlib import Path
 from .. import __version__
 from ..diagram import draw_band_diagram
 from ..errors import QwellError
-from ..materials import from_memory_count, material_provenance, origin_label, parse_formula
+from ..materials import (from_memory_count, material_provenance,
+                         origin_label, parse_formula)
 from ..optics import EXCITON_NOTE
+from ..solvers.results import UNCOUPLED_WIDTH_EV
+from ..spectral import auto_unit, column, format_line, format_spread, spread_unit, unit_label
+from ..units import format_exponent
 from .data import ReportData
 from .spectra import spectra_draw, spectra_rows
 from .layout import FigureBlock, Flow, Heading, Item, PageBreak, Paragraph, Table, typeset_pdf
@@ -91,9 +95,9 @@ def _doping_text(d) -> str:
     if d.acceptors_cm3:
         parts.append(f"p {d.acceptors_cm3:.3g} cm⁻³")
     if d.sheet_cm2:
-        parts.append(f"n sheet {d.sheet_cm2:.3g} cm⁻²")
+        parts.append(f"n sheet {format_exponent(d.sheet_cm2)} cm⁻²")
     if d.sheet_acceptors_cm2:
-        parts.append(f"p sheet {d.sheet_acceptors_cm2:.3g} cm⁻²")
+        parts.append(f"p sheet {format_exponent(d.sheet_acceptors_cm2)} cm⁻²")
     return ", ".join(parts)
 
 
@@ -149,9 +153,12 @@ def diagram_blocks(data: ReportData) -> list:
     blocks.append(FigureBlock(470.0, draw))
     if data.chosen:
         rows = [[t.name, t.kind, _transition_energy_text(t), f"{t.wavelength_um:.5f}",
-                 f"{t.wavenumber_cm1:.2f}"] for t in data.chosen]
-        blocks.append(Table(["transition", "kind", "energy (eV)", "λ (µm)", "wavenumber (cm⁻¹)"],
-                            rows, ["l", "l", "r", "r", "r"], title="Transitions reviewed"))
+                 f"{t.wavenumber_cm1:.2f}",
+                 format_line(t.energy_eV, data.photon_unit or auto_unit(t.energy_eV))]
+                for t in data.chosen]
+        blocks.append(Table(["transition", "kind", "energy (eV)", "λ (µm)", "wavenumber (cm⁻¹)",
+                             "line"], rows, ["l", "l", "r", "r", "r", "r"],
+                            title="Transitions reviewed"))
     else:
         blocks.append(Paragraph("No transition to review: the stack has fewer than two states "
                                 "connected by an optical transition."))
@@ -165,7 +172,8 @@ def diagram_blocks(data: ReportData) -> list:
 def _charge_summary(sc) -> str:
     """One line on a Schrödinger–Poisson result for the settings table."""
     ef = sc.fermi_level_eV
-    occ = ", ".join(f"{k} {v:.3g} cm⁻²" for k, v in sc.sheet_densities_cm2.items() if v > 1e6)
+    occ = ", ".join(f"{k} {format_exponent(v)} cm⁻²" for k, v in sc.sheet_densities_cm2.items()
+                    if v > 1e6)
     return (f"yes: {sc.iterations} iterations, residual {sc.residual_meV:.2g} meV, Fermi level "
             + ("undefined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV")
             + (f"; sheet densities {occ}" if occ else ""))
@@ -368,7 +376,7 @@ def state_blocks(data: ReportData) -> list:
         if s is not None:
             status = "bound" if s.bound else "quasi-bound"
             if s.lifetime_s is not None:
-                status += f", τ = {s.lifetime_s:.3g} s"
+                status += f", τ = {1e12 * s.lifetime_s:.3g} ps"
             if not s.converged:
                 status += f", NOT converged (±{s.tolerance_eV:.2g} eV)"
         wkb = ""
@@ -399,7 +407,9 @@ def state_blocks(data: ReportData) -> list:
         blocks.append(Table(["band", "miniband", "bottom (eV)", "top (eV)", "width (meV)",
                              "period (nm)"],
                             [[m.band.replace("_", " "), str(m.index), f"{m.bottom_eV:.6f}",
-                              f"{m.top_eV:.6f}", f"{1e3 * m.width_eV:.3f}", f"{m.period_nm:.3f}"]
+                              f"{m.top_eV:.6f}",
+                              f"{1e3 * m.width_eV:.3f}" if m.coupled else
+                              f"< {1e3 * UNCOUPLED_WIDTH_EV:g} (uncoupled)", f"{m.period_nm:.3f}"]
                              for m in mb], ["l", "r", "r", "r", "r", "r"],
                             title="Minibands (Bloch's theorem on one period)"))
     notes = []
@@ -533,14 +543,21 @@ def sensitivity_blocks(data: ReportData) -> list:
         by_t = {}
         for r in data.sensitivity:
             by_t.setdefault(r.transition, []).append(r)
-        lam0 = {t.name: t.wavelength_um for t in data.chosen}
+        e0 = {t.name: t.energy_eV for t in data.chosen}
         for name, rows in by_t.items():
-            trs = [[r.layer, r.parameter, r.step_text, _f(r.minus_nm, "+.2f", "—"),
-                    _f(r.plus_nm, "+.2f", "—"), r.note] for r in rows]
-            blocks.append(Table(["layer", "parameter", "step", "Δλ for\n−step (nm)",
-                                 "Δλ for\n+step (nm)", "note"], trs,
+            # shifts in the unit of the line's spectral region (qwell.spectral): nm, µm or GHz
+            e = e0.get(name, float("nan"))
+            u = data.photon_unit or auto_unit(e)
+            su, sym = unit_label(spread_unit(u)), column(u).split()[0]
+
+            def shift(v, _e=e, _u=u):
+                return "—" if v is None else format_spread(v, _e, _u, sign="+", with_unit=False)
+            trs = [[r.layer, r.parameter, r.step_text, shift(r.minus_nm), shift(r.plus_nm),
+                    r.note] for r in rows]
+            blocks.append(Table(["layer", "parameter", "step", f"Δ{sym} for\n−step ({su})",
+                                 f"Δ{sym} for\n+step ({su})", "note"], trs,
                                 ["l", "l", "l", "r", "r", "l"], wrap=(5,),
-                                title=f"{name}: λ = {lam0.get(name, float('nan')):.5f} µm"))
+                                title=f"{name}: {sym} = {format_line(e, u)}"))
         blocks.append(Paragraph(
             "Each layer parameter is changed alone: the thickness by one monolayer (a/2 of the "
             "layer's material), the composition by ±0.01 (x, y as in the alloy family's formula, "
