@@ -61,7 +61,8 @@ import yaml
 
 from . import materials as _materials
 from .errors import MaterialError, StackError, UnitError
-from .units import expected_words, parse_quantity, thickness_nm as _thickness_nm, to_float, ureg
+from .unit_table import plain_split
+from .units import expected_words, is_quantity, parse_quantity, thickness_nm as _thickness_nm, to_float
 
 __all__ = [
     "Grade",
@@ -424,6 +425,9 @@ def _is_monolayers(value) -> bool:
 
 
 def _is_monolayers_any(value) -> bool:
+    split = plain_split(value)
+    if split is not None:   # a plain form: its unit says it, without the registry
+        return split[1] == "ML"
     try:
         q = parse_quantity(value)
     except UnitError:
@@ -1358,7 +1362,14 @@ _StackDumper.add_multi_representer(np.integer, _represent_np_int)
 _StackDumper.add_representer(MappingProxyType, _represent_mapping_proxy)
 
 
-_StackDumper.add_multi_representer(ureg.Quantity, _represent_quantity)
+def _represent_any(dumper, data):
+    # pint Quantities (only present if pint was imported) as '5.3 nm' strings
+    if is_quantity(data):
+        return _represent_quantity(dumper, data)
+    return dumper.represent_undefined(data)
+
+
+_StackDumper.add_multi_representer(object, _represent_any)
 
 
 def _no_aliases(self, data):  # write every layer out in full

@@ -142,8 +142,6 @@ import weakref
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import optimize as _opt
-from scipy import special as _sp
 
 from ..bands import _MIN_MASS_FRACTION, Band
 from ..constants import HBAR2_2M0_EV_NM2
@@ -248,6 +246,7 @@ def _build_elements(band: Band) -> list:
             if d[i] != d[i - 1] and d[i] != 0 and d[i - 1] != 0:
                 lo, hi = z[i - 1], z[i + 1]
                 sgn = 1.0 if d[i - 1] < 0 else -1.0   # minimum if falling then rising
+                from scipy import optimize as _opt  # heavy import (~90 ms): only graded pieces need it
                 r = _opt.minimize_scalar(lambda x, sgn=sgn, p=p:
                                          sgn * float(p.potential(np.array([x]))[0]),
                                          bounds=(lo, hi), method="bounded",
@@ -360,6 +359,7 @@ def _turning_point(band, el: _Element, energy: np.ndarray) -> np.ndarray:
         if fa0 == 0.0 or fb0 == 0.0 or np.sign(fa0) == np.sign(fb0):
             z0 = a0 if abs(fa0) <= abs(fb0) else b0
         else:
+            from scipy import optimize as _opt  # heavy import (~90 ms): only graded pieces need it
             z0 = _opt.brentq(lambda z: float(p.potential(np.array([z]))[0]) - e0, a0, b0,
                              xtol=1e-13 * max(1.0, abs(el.z_a), abs(el.z_b)), rtol=1e-15)
         return np.full_like(energy, min(max(z0, el.z_a), el.z_b))
@@ -452,6 +452,7 @@ def _element_phase(band, el: _Element, energy: np.ndarray):
 
 
 def _airy_W(xi, ql):
+    from scipy import special as _sp  # heavy import (~120 ms): only linear pieces need Airy
     ai, aip, bi, bip = _sp.airy(xi)
     w = ai - 1j * bi
     wp = aip - 1j * bip
