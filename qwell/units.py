@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import functools
 import re
+import sys
 
 from .constants import H_EV_S, HC_EV_UM
 from .errors import UnitError
@@ -28,7 +29,6 @@ __all__ = [
     "eV_to_um",
     "HC_EV_UM",
 ]
-
 
 
 @functools.cache
@@ -56,8 +56,6 @@ def __getattr__(name):  # module attributes built lazily: ureg, Q_
 
 def is_quantity(value) -> bool:
     """True if ``value`` is a pint Quantity (without importing pint when nobody has)."""
-    import sys  # only to look pint up without importing it
-
     pint = sys.modules.get("pint")
     return pint is not None and isinstance(value, pint.Quantity)
 
