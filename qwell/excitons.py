@@ -46,7 +46,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import exp1
 
 from .carriers import fft_convolve, inplane_mass_m0
 from .constants import E_C, EPS0_F_PER_M, HBAR2_2M0_EV_NM2, HC_EV_UM
@@ -161,6 +160,7 @@ def exciton_binding(electron, hole, *, electron_mass_m0: float, hole_mass_m0: fl
     mu = electron_mass_m0 * hole_mass_m0 / (electron_mass_m0 + hole_mass_m0)
     t_par = HBAR2_2M0_EV_NM2 / mu
     coul = COULOMB_EV_NM / float(dielectric_constant)
+    from scipy.special import exp1  # heavy import: only exciton binding needs it
 
     def energy(log_lam):
         lam = math.exp(log_lam)

@@ -83,7 +83,6 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-from scipy.integrate import cumulative_trapezoid
 
 from .constants import E_C, EPS0_F_PER_M, EV_PER_CM1, EV_PER_THZ, HBAR2_2M0_EV_NM2, HC_EV_UM
 from .errors import ParameterError
@@ -812,7 +811,10 @@ def coulomb_overlap_nm(state_a, state_b) -> float:
     zz = np.union1d(za, zb)
     pa = np.interp(zz, za, state_a.psi, left=0.0, right=0.0)
     pb = np.interp(zz, zb, state_b.psi, left=0.0, right=0.0)
-    inner = cumulative_trapezoid(pa * pb, zz, initial=0.0)
+    y = pa * pb
+    # cumulative trapezoid rule, the arithmetic of scipy.integrate.cumulative_trapezoid
+    # (initial=0) without importing scipy.integrate (~0.3 s of start-up)
+    inner = np.concatenate(([0.0], np.cumsum(np.diff(zz) * (y[1:] + y[:-1]) / 2.0)))
     return float(np.trapezoid(inner ** 2, zz))
 
 

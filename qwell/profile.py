@@ -29,7 +29,6 @@ from dataclasses import dataclass, field, replace
 from typing import Callable
 
 import numpy as np
-from scipy.interpolate import CubicSpline
 
 from .bands import BAND_NAMES, Band, Piece, RepeatInfo
 from .errors import MaterialError, StackError
@@ -246,6 +245,7 @@ class _LayerFunctions:
                          "d_ec", "d_hh", "d_lh"):
                 vals = np.array([getattr(p, attr) for p in pts])
                 if np.all(np.isfinite(vals)):
+                    from scipy.interpolate import CubicSpline  # heavy import: only graded layers need it
                     self.splines[attr] = CubicSpline(z, vals)
                 else:
                     self.splines[attr] = None

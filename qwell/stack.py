@@ -64,7 +64,9 @@ import yaml
 from . import materials as _materials
 from .errors import MaterialError, StackError, UnitError
 from .materials.library import BUILTIN as _BUILTIN_SET, load_library, material_set as _material_set
-from .units import expected_words, parse_quantity, thickness_nm as _thickness_nm, to_float, ureg
+from .unit_table import plain_split
+from .units import (expected_words, is_quantity, parse_quantity, thickness_nm as _thickness_nm,
+                    to_float)
 from .yamlio import (MAX_ALIASES, MAX_YAML_NODES, decode_text, parse_marked_yaml,  # noqa: F401
                      read_regular_file)
 
@@ -436,6 +438,9 @@ def _is_monolayers(value) -> bool:
 
 
 def _is_monolayers_any(value) -> bool:
+    split = plain_split(value)
+    if split is not None:   # a plain form: its unit says it, without the registry
+        return split[1] == "ML"
     try:
         q = parse_quantity(value)
     except UnitError:
@@ -1240,7 +1245,14 @@ _StackDumper.add_multi_representer(np.integer, _represent_np_int)
 _StackDumper.add_representer(MappingProxyType, _represent_mapping_proxy)
 
 
-_StackDumper.add_multi_representer(ureg.Quantity, _represent_quantity)
+def _represent_any(dumper, data):
+    # pint Quantities (only present if pint was imported) as '5.3 nm' strings
+    if is_quantity(data):
+        return _represent_quantity(dumper, data)
+    return dumper.represent_undefined(data)
+
+
+_StackDumper.add_multi_representer(object, _represent_any)
 
 
 def _no_aliases(self, data):  # write every layer out in full

@@ -12,16 +12,17 @@ because a monolayer depends on the layer's lattice constant (a/2 on (001)).
 from __future__ import annotations
 
 import math
+import functools
 import re
-
-import pint
+import sys
 
 from .constants import H_EV_S, HC_EV_UM
 from .errors import UnitError
+from .unit_table import plain_split, plain_value
 
 __all__ = [
-    "ureg",
-    "Q_",
+    "registry",
+    "is_quantity",
     "parse_quantity",
     "to_float",
     "thickness_nm",
@@ -31,9 +32,34 @@ __all__ = [
     "HC_EV_UM",
 ]
 
-ureg = pint.UnitRegistry()
-ureg.define("monolayer = [monolayer] = ML")
-Q_ = ureg.Quantity
+
+@functools.cache
+def registry():
+    """The one pint registry, built on first use.
+
+    pint and its registry take a few hundred milliseconds to import and build, so plain
+    values (:mod:`qwell.unit_table`) are read without them; ``qwell.units.ureg`` and
+    ``qwell.units.Q_`` still name the registry and its Quantity (built when first asked).
+    """
+    import pint  # heavy import (~0.3 s with the registry): only rare units need it
+
+    reg = pint.UnitRegistry()
+    reg.define("monolayer = [monolayer] = ML")
+    return reg
+
+
+def __getattr__(name):  # module attributes built lazily: ureg, Q_
+    if name == "ureg":
+        return registry()
+    if name == "Q_":
+        return registry().Quantity
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def is_quantity(value) -> bool:
+    """True if ``value`` is a pint Quantity (without importing pint when nobody has)."""
+    pint = sys.modules.get("pint")
+    return pint is not None and isinstance(value, pint.Quantity)
 
 # HC_EV_UM (h c [eV um]) comes from qwell.constants; it stays importable from here.
 
@@ -60,14 +86,16 @@ def expected_words(unit: str) -> str:
     return _UNIT_WORDS.get(unit, f"a quantity in {unit}")
 
 
-def parse_quantity(value, what: str = "value") -> pint.Quantity:
-    """Parse ``value`` (a string like ``'5 nm'`` or a pint Quantity).
+def parse_quantity(value, what: str = "value"):
+    """Parse ``value`` (a string like ``'5 nm'`` or a pint Quantity) into a pint Quantity.
 
     Raises
     ------
     UnitError
         If the value is a bare number, or not parseable.
     """
+    ureg = registry()
+    import pint  # already imported by registry(); the name is needed below
     if isinstance(value, pint.Quantity):
         return value
     if isinstance(value, bool) or value is None:
@@ -110,6 +138,11 @@ def to_float(value, unit: str, what: str | None = None) -> float:
         Missing unit, unreadable text or wrong dimension; the message says
         which unit is expected.
     """
+    fast = plain_value(value, unit)
+    if fast is not None:
+        return fast
+    import pint  # heavy import: only values outside the plain table need the registry
+
     words = what or expected_words(unit)
     try:
         q = parse_quantity(value, words)
@@ -137,6 +170,14 @@ def thickness_nm(value, monolayer_nm: float | None) -> float:
     UnitError
         When the value is not a length (or monolayers) or has no unit.
     """
+    split = plain_split(value)
+    if split is not None and split[1] == "ML" and monolayer_nm is not None:
+        return split[0] * monolayer_nm
+    fast = plain_value(value, "nm")
+    if fast is not None:
+        return fast
+    import pint  # heavy import: only values outside the plain table need the registry
+
     words = expected_words("nm")
     try:
         q = parse_quantity(value, words)
@@ -162,6 +203,11 @@ def spectral_to_eV(value) -> float:
     UnitError
         If the value is none of these.
     """
+    fast = _plain_spectral_eV(value)
+    if fast is not None:
+        return fast
+    import pint  # heavy import: only values outside the plain table need the registry
+
     q = parse_quantity(value, "a wavelength, energy, wavenumber or frequency")
     try:
         if q.check("[length]"):
@@ -179,6 +225,23 @@ def spectral_to_eV(value) -> float:
         pass
     raise UnitError(f"{value!r} is not a wavelength, energy, wavenumber or frequency "
                     "(e.g. '4.6 um', '270 meV', '1100 cm^-1', '65 THz')")
+
+
+def _plain_spectral_eV(value) -> float | None:
+    """:func:`spectral_to_eV` of a plain form (the same arithmetic), or None."""
+    lam_um = plain_value(value, "um")
+    if lam_um is not None:
+        return HC_EV_UM / lam_um if lam_um > 0 else None  # None: the registry path says why
+    energy = plain_value(value, "eV")
+    if energy is not None:
+        return energy
+    per_um = plain_value(value, "1/um")
+    if per_um is not None:
+        return per_um * HC_EV_UM
+    hz = plain_value(value, "Hz")
+    if hz is not None:
+        return hz * H_EV_S
+    return None
 
 
 def eV_to_um(energy_eV):

@@ -19,7 +19,8 @@ ROOT = Path(__file__).resolve().parents[1] / "qwell"
 #: below.  Sub-packages (materials/, solvers/, and design/, report/, cli/ when they are
 #: packages) count as one entry: their modules share the layer.
 LAYERS = (
-    ("constants", "errors"),
+    ("constants", "errors", "rootfind"),
+    ("unit_table",),
     ("units", "spectral"),
     ("fileio", "parallel", "yamlio"),
     ("materials",),

@@ -358,7 +358,8 @@ def test_select_and_json_contract():
     assert "e1-e2" in str(err.value) and "e2-e3" in str(err.value)
     d = transition_json(ts[0])
     assert set(d) == {"from", "to", "kind", "energy_eV", "wavelength_um", "wavenumber_cm1",
-                      "frequency_THz", "dipole_nm", "oscillator_strength", "overlap", "te",
+                      "frequency_THz", "wavelength_nm", "energy_meV", "dipole_nm",
+                      "oscillator_strength", "overlap", "te",
                       "tm", "strongest"}
     assert d["from"] == "e1" and d["to"] == "e2" and d["overlap"] is None
     text = json.dumps(d)

@@ -6,14 +6,13 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from pint import Quantity
 
 from ..constants import HC_EV_UM
 from ..errors import ConvergenceError, ParameterError
 from ..optics import canonical_transition
 from ..spectral import auto_unit, energy_text, format_line, from_eV, unit_label
 from ..stack_edit import Parameter, apply_parameters, get_parameter
-from ..units import spectral_to_eV
+from ..units import is_quantity, spectral_to_eV
 from .evaluate import (bands_for_transitions, check_transitions, design_point, emit_warnings,
                        evaluate_many, jump_notes)
 
@@ -113,7 +112,7 @@ def _default_bounds(p: Parameter) -> tuple[float, float]:
 
 
 def _target_eV(target) -> float:
-    if isinstance(target, (str, Quantity)):
+    if isinstance(target, str) or is_quantity(target):
         return spectral_to_eV(target)
     t = float(target)
     if not (math.isfinite(t) and t > 0):

@@ -139,8 +139,10 @@ _CONSISTENCY_TOL = 1e-6
 
 # --------------------------------------------------------------------------- data
 def _load(name: str):
+    # the C loader when libyaml is there (same constructors, ~5x faster start-up)
+    loader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
     with open(_DATA / name, encoding="utf-8") as fh:
-        return yaml.safe_load(fh)
+        return yaml.load(fh, Loader=loader)
 
 
 SOURCES: Mapping[str, dict] = _load("sources.yaml")

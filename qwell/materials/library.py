@@ -65,7 +65,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import LibraryError, MaterialError, StackError, UnitError, ValidityWarning
-from ..units import Q_, to_float
+from .. import units
+from ..units import to_float
 from ..yamlio import decode_text, one_line, parse_marked_yaml, read_regular_file
 from . import _database as db
 
@@ -717,7 +718,7 @@ def _convert(number: float, unit, target: str) -> float:
     if not isinstance(unit, str) or not unit.strip():
         raise UnitError(f"unit {_type_word(unit)} is not a unit")
     try:
-        q = Q_(number, unit.strip().replace("Å", "angstrom").replace("µ", "u"))
+        q = units.Q_(number, unit.strip().replace("Å", "angstrom").replace("µ", "u"))
     except Exception:  # pint raises several unrelated types
         raise UnitError(f"cannot read unit {unit!r}") from None
     try:
