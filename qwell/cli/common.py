@@ -13,11 +13,15 @@ from dataclasses import replace
 
 import numpy as np
 
+from ..constants import HBAR2_2M0_EV_NM2
+from ..errors import StackError
 from ..levels import prepare_profile
+from ..profile import band_profile
 from ..stack import load_stack
 
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
-           "table", "fmt", "unit_text", "add_self_consistent_option"]
+           "table", "fmt", "unit_text", "add_self_consistent_option", "check_work",
+           "estimate_bound_states", "MAX_BOUND_STATES_PER_BAND", "MAX_SOLVED_LAYERS"]
 
 #: Exit status of every user error (bad input, bad option).
 EXIT_USAGE = 2
@@ -30,10 +34,61 @@ def add_self_consistent_option(parser) -> None:
                              "(also set by 'self_consistent: true' in the stack)")
 
 
+#: Most bound states one band of an accepted stack may hold (a semiclassical count made
+#: before any solve): beyond it the states, envelopes and transitions would need more than
+#: ~1 GB and minutes.  A 1000-period superlattice with one miniband stays below it.
+MAX_BOUND_STATES_PER_BAND = 1500
+#: Most expanded layers a command solves (the loader alone accepts more): the solve time
+#: grows with the layer count, and 2,500 layers stay within ~30 s for ``levels``.
+MAX_SOLVED_LAYERS = 2500
+
+
+def estimate_bound_states(band) -> float:
+    """Semiclassical count of the bound states of a band (no solve).
+
+    N ≈ (1/π) ∫ sqrt(2 m(z) (E_lim - V(z))) / ħ dz over the stack, with E_lim the lower
+    cladding edge, evaluated at the middle of every piece (common practice, no source:
+    the Bohr-Sommerfeld phase integral).
+    """
+    starts = np.array([p.z_start_nm for p in band.pieces])
+    ends = np.array([p.z_end_nm for p in band.pieces])
+    if starts.size == 0:
+        return 0.0
+    mid = 0.5 * (starts + ends)
+    depth = np.maximum(band.confinement_limit_eV - band.potential(mid), 0.0)
+    k = np.sqrt(np.abs(band.edge_mass(mid)) * depth / HBAR2_2M0_EV_NM2)
+    return float(np.sum(k * (ends - starts)) / math.pi)
+
+
+def check_work(stack) -> None:
+    """Refuse a stack whose bound-state count (estimated on the flat-band profile) exceeds
+    :data:`MAX_BOUND_STATES_PER_BAND` in any band, before any solve or allocation.
+
+    Raises
+    ------
+    StackError
+        Naming the file, the band, the estimate and the limit.
+    """
+    if len(stack.layers) > MAX_SOLVED_LAYERS:
+        raise StackError(f"{len(stack.layers):,} layers after expanding the repeats, above the "
+                         f"limit of {MAX_SOLVED_LAYERS:,} for a solve (about 10 s per 1,000 "
+                         "layers); expected fewer periods", file=stack.path, key="layers")
+    prof = band_profile(stack)
+    for name, band in prof.bands.items():
+        n = estimate_bound_states(band)
+        if n > MAX_BOUND_STATES_PER_BAND:
+            raise StackError(f"the {name.replace('_', ' ')} band would hold about {n:,.0f} bound "
+                             f"states, above the limit of {MAX_BOUND_STATES_PER_BAND:,} (time "
+                             "and memory); expected thinner wells, fewer periods or lighter "
+                             "masses", file=stack.path, key="layers")
+
+
 def load(path, self_consistent: bool = False):
     """Load a stack; ``self_consistent`` (the ``--self-consistent`` flag) switches on the
-    charged path as if the stack said ``self_consistent: true``."""
+    charged path as if the stack said ``self_consistent: true``.  The stack's work is
+    checked before anything is solved (:func:`check_work`)."""
     stack = load_stack(path)
+    check_work(stack)
     if self_consistent and not stack.self_consistent:
         stack = replace(stack, self_consistent=True,
                         raw={**dict(stack.raw), "self_consistent": True})

@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 
 from ..errors import QwellError
+from ..fileio import OutputGroup, check_figure_target
 from ..levels import compare_methods, depolarised_lines, solve_profile
 from ..optics import plot_spectrum, select_transitions, spectrum, strength
 from .common import add_self_consistent_option, load, print_json, profile_and_charge, table
@@ -96,6 +97,9 @@ def cmd_levels(args) -> int:
     """Run ``qwell levels``; returns the exit status."""
     opts = LevelsOptions.from_args(args)
     stack = load(opts.stack_path, opts.self_consistent)
+    if opts.png:
+        OutputGroup([opts.png], protect=[opts.stack_path])  # checks the target before the work
+        check_figure_target(opts.png)
     prof, sc = profile_and_charge(stack, quiet=opts.json)
     sols = {m: solve_profile(prof, bands=opts.band, method=m, transitions=(m == "exact"),
                              hole_intersubband=opts.hole_intersubband) for m in opts.methods}

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from ..errors import QwellError
+from ..errors import QwellError, one_line
 from ..materials import get_material, known_materials
-from ..units import to_float
+from ..units import out_of_range, to_float
 from .common import print_json, table
 from .json_out import material_json, material_list_json
 
@@ -32,8 +32,9 @@ def cmd_materials(args) -> int:
                 print(f"  {n}")
         return 0
     temperature_K = to_float(args.temperature, "K", "a temperature (e.g. '300 K')")
-    if temperature_K <= 0:
-        raise QwellError(f"--temperature {args.temperature!r}: must be above 0 K")
+    why = out_of_range("temperature", temperature_K)
+    if why is not None:
+        raise QwellError(f"--temperature {one_line(repr(args.temperature))} {why}")
     mat = get_material(args.name, temperature_K)
     if args.json:
         print_json(material_json(mat, temperature_K))
