@@ -23,7 +23,7 @@ import warnings
 from .. import __version__
 from ..errors import QwellError, QwellWarning, one_line
 from . import design, levels, materials, profile, report
-from .common import EXIT_USAGE
+from .common import EXIT_USAGE, locate_error
 
 __all__ = ["main", "build_parser", "EXIT_USAGE"]
 
@@ -107,7 +107,7 @@ def main(argv=None) -> int:
         try:
             rc = args.func(args)
         except QwellError as exc:
-            print(_error_line(exc), file=sys.stderr)
+            print(_error_line(locate_error(exc, getattr(args, "stack", None))), file=sys.stderr)
             return EXIT_USAGE
         except KeyboardInterrupt:
             print("qwell: interrupted", file=sys.stderr)

@@ -14,14 +14,14 @@ from dataclasses import replace
 import numpy as np
 
 from ..constants import HBAR2_2M0_EV_NM2
-from ..errors import StackError
+from ..errors import ConvergenceError, QwellError, StackError
 from ..levels import prepare_profile
 from ..profile import band_profile
 from ..stack import load_stack
 
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
            "table", "fmt", "unit_text", "add_self_consistent_option", "check_work",
-           "estimate_bound_states", "MAX_BOUND_STATES_PER_BAND", "MAX_SOLVED_LAYERS"]
+           "estimate_bound_states", "MAX_BOUND_STATES_PER_BAND", "MAX_SOLVED_LAYERS", "locate_error"]
 
 #: Exit status of every user error (bad input, bad option).
 EXIT_USAGE = 2
@@ -167,3 +167,22 @@ def fmt(v, spec=".6g", none="—") -> str:
 def unit_text(unit) -> str:
     """' nm' for a unit, '' for a plain fraction."""
     return "" if unit == "fraction" else f" {unit}"
+
+
+def locate_error(exc, stack_path):
+    """A self-consistent failure (no neutral Fermi level, no convergence) as a StackError that
+    points at the stack file and its first doped layer; other errors unchanged."""
+    if not isinstance(exc, ConvergenceError) or not stack_path:
+        return exc
+    line, key = None, "self_consistent"
+    try:
+        stack = load_stack(stack_path)
+        doped = next((lay for lay in stack.layers if lay.doping is not None), None)
+        if doped is not None:
+            where = f"layers[{doped.index}]" if not stack.repeats else doped.label
+            line, key = doped.line, f"{where}.doping"
+    except QwellError:
+        pass
+    located = StackError(str(exc), file=str(stack_path), line=line, key=key)
+    located.history = list(getattr(exc, "history", []) or [])
+    return located
