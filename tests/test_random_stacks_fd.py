@@ -60,7 +60,7 @@ def fd_energies(band, h_nm: float, e_max_eV: float) -> np.ndarray:
     edges = [band.z_start_nm - CLADDING_EXTRA_NM] + [p.z_end_nm for p in band.pieces]
     edges[-1] += CLADDING_EXTRA_NM
     vs, ms = [], []
-    for i, p in enumerate(band.pieces):
+    for p in band.pieces:
         zc = np.array([0.5 * (p.z_start_nm + p.z_end_nm)])
         vs.append(float(p.potential(zc)[0]))
         ms.append(float(p.mass(zc)[0]))
