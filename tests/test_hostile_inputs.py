@@ -489,3 +489,16 @@ def test_interrupt_stops_workers_promptly(sig, tmp_path):
                    Path(f"/proc/{w}/status").read_text().lower() for w in workers)
     assert not (tmp_path / "x.csv").exists()
     assert sorted(p.name for p in tmp_path.iterdir()) == ["s.yaml"]
+
+
+def test_readme_limits_table_is_the_ranges_table():
+    # the README documents the ranges in one table; it must be qwell.units.RANGES
+    from qwell.units import RANGES
+
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    rows = {}
+    for line in readme.splitlines():
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        if len(cells) == 5 and cells[0] in RANGES:
+            rows[cells[0]] = (float(cells[2]), float(cells[3]), cells[4] or "1")
+    assert rows == {k: (lo, hi, u) for k, (lo, hi, u, _) in RANGES.items()}
