@@ -22,11 +22,13 @@ module-level function, or a :func:`functools.partial` of one).
 
 from __future__ import annotations
 
+import gc
 import math
 import multiprocessing
 import os
 import re
 import signal
+import socket
 import sys
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
@@ -183,15 +185,48 @@ def _dask_client(dask, timeout_s: float):
     except ImportError:
         raise ClusterError("--dask needs the optional package 'distributed' "
                            "(install it with: pip install 'qwell[dask]')") from None
+    _probe_scheduler(address, timeout_s)
+    failure = None
+    previous_hook = sys.unraisablehook
+    # a Client that failed to connect complains from its __del__ (a traceback on stderr);
+    # it is collected here, with that hook silenced, so the error stays one line
+    sys.unraisablehook = _ignore_unraisable
     try:
-        client = Client(address, timeout=timeout_s, set_as_default=False)
-    except Exception as exc:  # OSError, TimeoutError, ValueError (bad address), ...
-        why = " ".join(str(exc).split()) or type(exc).__name__
-        if len(why) > 120:
-            why = why[:117] + "..."
+        try:
+            client = Client(address, timeout=timeout_s, set_as_default=False)
+        except Exception as exc:  # OSError, TimeoutError, ValueError (bad address), ...
+            why = " ".join(str(exc).split()) or type(exc).__name__
+            if len(why) > 120:
+                why = why[:117] + "..."
+            failure = f"{type(exc).__name__}: {why}"
+        if failure is not None:
+            gc.collect()
+    finally:
+        sys.unraisablehook = previous_hook
+    if failure is not None:
         raise ClusterError(f"cannot reach the Dask scheduler at {address!r} within "
-                           f"{timeout_s:g} s ({type(exc).__name__}: {why})") from None
+                           f"{timeout_s:g} s ({one_line(failure)})")
     return client, True
+
+
+def _ignore_unraisable(unraisable) -> None:
+    return None
+
+
+def _probe_scheduler(address: str, timeout_s: float) -> None:
+    """Open (and close) a plain TCP connection to a tcp:// scheduler first: an unreachable
+    address fails here within the timeout, with one line, before any Dask machinery starts."""
+    m = re.match(r"^(?:tcp://)?(\[[0-9A-Fa-f:.]+\]|[^:/\[\]]+):(\d+)$", address)
+    if not m:
+        return  # tls, ws, ucx: left to distributed
+    host, port = m.group(1).strip("[]"), int(m.group(2))
+    try:
+        with socket.create_connection((host, port), timeout=timeout_s):
+            pass
+    except OSError as exc:
+        why = one_line(str(exc.strerror or exc or type(exc).__name__))
+        raise ClusterError(f"cannot reach the Dask scheduler at {address!r} within "
+                           f"{timeout_s:g} s ({why})") from None
 
 
 def _worker_init() -> None:

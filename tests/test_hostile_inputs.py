@@ -33,6 +33,7 @@ from pathlib import Path
 import pytest
 
 from qwell.cli import main
+from qwell.units import RANGES
 
 ROOT = Path(__file__).resolve().parents[1]
 MAX_SECONDS = 10.0
@@ -194,6 +195,9 @@ SWEEP_BAD = [
     (["--from", "4nm", "--to", "7nm", "--dask", "tcp://host:99999"], "--dask"),
     (["--from", "4nm", "--to", "7nm", "--dask", "tcp://a b:1"], "--dask"),
     (["--from", "4nm", "--to", "7nm", "--dask", ""], "--dask"),
+    (["--from", "4nm", "--to", "7nm", "--dask", "tcp://127.0.0.1:1", "--dask-timeout", "2"],
+     "cannot reach the Dask scheduler at 'tcp://127.0.0.1:1' within 2 s"),
+    (["--from", "4nm", "--to", "5um", "--points", "3"], "--vary well.thickness at 5000 nm"),
     (["--from", "4nm", "--to", "7nm", "--jobs", "0"], "--jobs"),
     (["--from", "4nm", "--to", "7nm", "--jobs", "100000"], "--jobs"),
     (["--from", "4nm", "--to", "7nm", "--dask-timeout", "nan"], "--dask-timeout"),
@@ -493,8 +497,6 @@ def test_interrupt_stops_workers_promptly(sig, tmp_path):
 
 def test_readme_limits_table_is_the_ranges_table():
     # the README documents the ranges in one table; it must be qwell.units.RANGES
-    from qwell.units import RANGES
-
     readme = (ROOT / "README.md").read_text(encoding="utf-8")
     rows = {}
     for line in readme.splitlines():

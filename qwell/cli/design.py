@@ -14,13 +14,21 @@ from pathlib import Path
 import numpy as np
 
 from ..constants import HC_EV_UM
-from ..design import get_parameter, parse_parameter_value, size, sweep, tolerance
-from ..errors import ParameterError, QwellError
+from ..design import apply_parameters, get_parameter, parse_parameter_value, size, sweep, tolerance
+from ..errors import ParameterError, QwellError, StackError
 from ..fileio import OutputGroup, atomic_write_text, check_figure_target
 from ..parallel import check_dask_address
 from ..stack import dump_stack_yaml
 from ..units import spectral_to_eV
-from .common import add_self_consistent_option, fmt, load, print_json, table, unit_text
+from .common import (
+    add_self_consistent_option,
+    check_work,
+    fmt,
+    load,
+    print_json,
+    table,
+    unit_text,
+)
 from .json_out import size_json, sweep_json, tolerance_json
 
 __all__ = ["register", "cmd_size", "cmd_sweep", "cmd_tolerance"]
@@ -127,6 +135,7 @@ def cmd_size(args) -> int:
         if args.lo is None or args.hi is None:
             raise QwellError("--from and --to go together; give both or neither")
         bounds = (parse_parameter_value(p, args.lo), parse_parameter_value(p, args.hi))
+        _check_range_work(stack, p, bounds)
     if args.write:
         if Path(args.write).exists() and Path(args.write).resolve() == Path(args.stack).resolve():
             raise QwellError(f"--write {args.write}: refusing to overwrite the input stack file")
@@ -238,7 +247,19 @@ def _sweep_axes(stack, args) -> list:
         axes.append((p, _axis_values(p, los[k], his[k], npts, step, _design_cap(args), args)))
     if len(axes) == 2:
         _check_count("the 2-D map", len(axes[0][1]) * len(axes[1][1]), _design_cap(args), args)
+    for p, vals in axes:
+        _check_range_work(stack, p, (float(np.min(vals)), float(np.max(vals))))
     return axes
+
+
+def _check_range_work(stack, p, ends) -> None:
+    """Each end of a parameter range must be a stack a command may solve (check_work)."""
+    for v in ends:
+        try:
+            check_work(apply_parameters(stack, {p.path: v}))
+        except StackError as exc:
+            raise ParameterError(f"--vary {p.path} at {v:.6g}{unit_text(p.unit)}: "
+                                 f"{exc.message}") from None
 
 
 def cmd_sweep(args) -> int:
