@@ -9,6 +9,7 @@ points at the exact place to fix.
 from __future__ import annotations
 
 __all__ = [
+    "one_line",
     "QwellError",
     "StackError",
     "LibraryError",
@@ -19,6 +20,15 @@ __all__ = [
     "QwellWarning",
     "ValidityWarning",
 ]
+
+
+def one_line(text: str) -> str:
+    """``text`` with line breaks and other control characters escaped (``\\n``), so that
+    a file name or value can never split a one-line message."""
+    if text.isprintable():
+        return text
+    return "".join(ch if ch.isprintable() else ch.encode("unicode_escape").decode("ascii")
+                   for ch in text)
 
 
 class QwellError(Exception):
@@ -51,7 +61,7 @@ class StackError(ValueError, QwellError):
     def __str__(self) -> str:
         where = ""
         if self.file:
-            where = str(self.file)
+            where = one_line(str(self.file))
             if self.line is not None:
                 where += f":{self.line}"
             where += ": "

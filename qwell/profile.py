@@ -157,11 +157,15 @@ class Profile:
         the gap difference vanishes).  Field tilt cancels at an interface.
         """
         out = []
+        top = np.fmax(self.heavy_hole_edge_eV, self.light_hole_edge_eV)
+        # samples are in growth order: first and last sample of each layer by bisection
+        # (one mask per layer made long stacks quadratic in the layer count)
+        order = np.asarray(self.sample_layer)
         for a, b in zip(self.layers[:-1], self.layers[1:]):
-            ia, ib = self.layer_samples(a.index), self.layer_samples(b.index)
-            ec_a, ec_b = self.conduction_edge_eV[ia][-1], self.conduction_edge_eV[ib][0]
-            top = np.fmax(self.heavy_hole_edge_eV, self.light_hole_edge_eV)
-            ev_a, ev_b = top[ia][-1], top[ib][0]
+            last_a = int(np.searchsorted(order, a.index, side="right")) - 1
+            first_b = int(np.searchsorted(order, b.index, side="left"))
+            ec_a, ec_b = self.conduction_edge_eV[last_a], self.conduction_edge_eV[first_b]
+            ev_a, ev_b = top[last_a], top[first_b]
             dec = float(ec_b - ec_a)
             dev = float(ev_b - ev_a) if np.isfinite(ev_a) and np.isfinite(ev_b) else None
             share = None
@@ -476,8 +480,9 @@ def _offset_warnings(prof: Profile, families: list) -> list[str]:
     ``conduction_edge`` per layer.
     """
     out = []
+    index_of = {lp.label: lp.index for lp in prof.layers}
     for o in prof.band_offsets():
-        i = next(lp.index for lp in prof.layers if lp.label == o["left"])
+        i = index_of[o["left"]]
         pair = {families[i], families[i + 1]}
         if pair == {"InGaAs", "GaAs"} and o["conduction_share"] is not None \
                 and 0 < o["conduction_share"] < 0.5:

@@ -695,8 +695,9 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
 
     if not converged:
         text = (f"self-consistent loop did not converge in {max_iterations} iterations: residual "
-                f"{res * 1e3:.3g} meV > {tolerance_meV:.3g} meV (mixing {mixing!r}); try "
-                "mixing='linear', a coarser grid_step_nm or more max_iterations")
+                f"{res * 1e3:.3g} meV > {tolerance_meV:.3g} meV (mixing {mixing!r}); lower the "
+                "doping (the layers' doping keys), give a fermi_level, or leave out "
+                "self_consistent / --self-consistent for flat bands")
         if strict:
             raise ConvergenceError(text, tolerance_reached=res * 1e3, history=history)
         message = text

@@ -65,8 +65,8 @@ from . import materials as _materials
 from .errors import MaterialError, StackError, UnitError
 from .materials.library import BUILTIN as _BUILTIN_SET, load_library, material_set as _material_set
 from .unit_table import plain_split
-from .units import (expected_words, is_quantity, parse_quantity, thickness_nm as _thickness_nm,
-                    to_float)
+from .units import (FIELD_RANGES, RANGES, expected_words, is_quantity, out_of_range,
+                    parse_quantity, thickness_nm as _thickness_nm, to_float)
 from .yamlio import (MAX_ALIASES, MAX_YAML_NODES, decode_text, parse_marked_yaml,  # noqa: F401
                      read_regular_file)
 
@@ -97,6 +97,10 @@ MAX_TEMPERATURE_K = 1000.0
 MAX_FIELD_KV_PER_CM = 2000.0
 #: Largest total thickness [nm] (100 um).
 MAX_TOTAL_THICKNESS_NM = 100_000.0
+#: Thinnest layer accepted [nm] (far below a monolayer; thinner values are typing errors).
+MIN_THICKNESS_NM = RANGES["thickness"][0]
+#: Longest stack name accepted [characters] (it heads every report page).
+MAX_NAME_CHARS = 200
 #: Deepest nesting of repeat blocks (a repeat inside a repeat is fine).
 MAX_REPEAT_DEPTH = 2
 
@@ -609,7 +613,18 @@ class _Builder:
             else:
                 out[fld] = self.finite(self.quantity(mapping, key, unit, kpath), mapping, key,
                                        kpath, expected_words(unit))
+            kind = FIELD_RANGES.get(fld)
+            if kind is not None:
+                self.in_range(kind, out[fld], mapping, key, kpath)
         return out
+
+    def in_range(self, kind, value, mapping, key, path):
+        """Refuse ``value`` outside ``units.RANGES[kind]`` (the README's limits table)."""
+        why = out_of_range(kind, value)
+        if why is not None:
+            shown = _short(mapping[key]) if key in mapping else f"{value:g}"
+            raise self.error(f"{shown} {why}", mapping, key, path)
+        return value
 
     def build_user_materials(self, top):
         spec = top["materials"]
@@ -773,6 +788,10 @@ class _Builder:
             raise self.error(f"thickness {_short(value)} exceeds the {MAX_TOTAL_THICKNESS_NM:g} nm "
                              "(100 um) limit of a stack; expected a thinner layer", entry,
                              "thickness", tpath)
+        if t < MIN_THICKNESS_NM:
+            raise self.error(f"thickness {_short(value)} is below {MIN_THICKNESS_NM:g} nm "
+                             "(far below one monolayer); expected a layer thickness of at least "
+                             f"{MIN_THICKNESS_NM:g} nm", entry, "thickness", tpath)
         return t
 
     def parse_grade(self, entry, path) -> Grade:
@@ -834,6 +853,8 @@ class _Builder:
                 if not math.isfinite(v) or v < 0:
                     raise self.error(f"negative density {_short(spec[key])}; expected a density "
                                      f">= 0 in {unit}", spec, key, f"{dpath}.{key}")
+                self.in_range("volume_density" if unit == "cm^-3" else "sheet_density", v,
+                              spec, key, f"{dpath}.{key}")
                 vals[fld] = v
         for key, fld in (("from", "from_nm"), ("to", "to_nm"), ("at", "at_nm")):
             if key in spec:
@@ -853,6 +874,7 @@ class _Builder:
                 raise self.error(f"donor level {_short(spec['donor_level'])} is negative; "
                                  "expected an energy >= 0 below the conduction edge "
                                  "(e.g. '6 meV')", spec, "donor_level", kpath)
+            self.in_range("donor_level", v, spec, "donor_level", kpath)
             vals["donor_level_eV"] = v
         has_volume = "donors" in spec or "acceptors" in spec
         has_sheet = "sheet" in spec or "sheet_acceptors" in spec
@@ -957,10 +979,18 @@ class _Builder:
                 raise self.error(f"got {_type_word(v)}; expected a free-text stack name", top,
                                  "name", "name")
             name = _one_line(str(v))
+            if len(name) > MAX_NAME_CHARS:
+                raise self.error(f"the name is {len(name)} characters long; expected a stack "
+                                 f"name of at most {MAX_NAME_CHARS} characters", top, "name",
+                                 "name")
 
         if "temperature" in top:
             t = self.quantity(top, "temperature", "K", "temperature")
-            if not math.isfinite(t) or t <= 0:
+            if not math.isfinite(t):
+                raise self.error(f"temperature {_short(top['temperature'])} is not finite; "
+                                 "expected a temperature > 0 K (e.g. '77 K')", top,
+                                 "temperature", "temperature")
+            if t <= 0:
                 raise self.error(f"temperature {_short(top['temperature'])} is not above 0 K; "
                                  "expected a temperature > 0 K (e.g. '77 K')", top,
                                  "temperature", "temperature")
@@ -997,6 +1027,7 @@ class _Builder:
         if "fermi_level" in top and top["fermi_level"] is not None:
             fermi = self.finite(self.quantity(top, "fermi_level", "eV", "fermi_level"), top,
                                 "fermi_level", "fermi_level", expected_words("eV"))
+            self.in_range("fermi_level", fermi, top, "fermi_level", "fermi_level")
 
         entries = top["layers"]
         self.count_layers(entries, "layers", 0, top, "layers")

@@ -19,6 +19,7 @@ that is not a plain form of a known unit.
 
 from __future__ import annotations
 
+import math
 import re
 
 __all__ = ["plain_split", "plain_value", "UNIT_FACTORS"]
@@ -79,7 +80,9 @@ def plain_split(text) -> tuple[float, str] | None:
         return None
     number = m.group(1)
     if "." in number or "e" in number or "E" in number:
-        return float(number), unit
+        value = float(number)
+        # '1e400 nm' is not plain: the full parser refuses a number that overflows
+        return (value, unit) if math.isfinite(value) else None
     # an integer literal is an int to pint ('-0 nm' is +0.0 there, not -0.0)
     return float(int(number)), unit
 
@@ -96,4 +99,5 @@ def plain_value(text, target: str) -> float | None:
     factor = UNIT_FACTORS.get((split[1], target))
     if factor is None:
         return None
-    return split[0] * factor
+    value = split[0] * factor
+    return value if math.isfinite(value) else None

@@ -13,17 +13,18 @@ from pathlib import Path
 
 import numpy as np
 
-from ..design import get_parameter, parse_parameter_value, size, sweep, tolerance
-from ..errors import ParameterError, QwellError
-from ..fileio import atomic_write_text
+from ..design import apply_parameters, get_parameter, parse_parameter_value, size, sweep, tolerance
+from ..errors import ParameterError, QwellError, StackError
+from ..fileio import OutputGroup, atomic_write_text, check_figure_target
+from ..parallel import check_dask_address
 from ..stack import dump_stack_yaml
 from ..spectral import LINE_SPEC as _LINE_SPEC
 from ..spectral import SPREAD_SPEC as _SPREAD_SPEC
 from ..spectral import (column, energy_of_um, energy_text, format_line, format_spread, from_eV, line_unit,
                         spread_unit, unit_label)
 from ..units import spectral_to_eV
-from .common import (add_library_option, add_self_consistent_option, add_unit_option, fmt, load,
-                     print_json, table, unit_text)
+from .common import (add_library_option, add_self_consistent_option, add_unit_option, check_work,
+                     fmt, load, print_json, table, unit_text)
 from .json_out import size_json, sweep_json, tolerance_json
 
 __all__ = ["register", "cmd_size", "cmd_sweep", "cmd_tolerance"]
@@ -121,9 +122,13 @@ def _parallel_kw(args) -> dict:
     """``jobs``, ``dask``, ``dask_timeout_s`` keywords of the design functions, checked."""
     if args.jobs is not None and args.jobs < 1:
         raise QwellError(f"--jobs {args.jobs}: expected a whole number >= 1")
-    if args.dask_timeout is not None and not args.dask_timeout > 0:
-        raise QwellError(f"--dask-timeout {args.dask_timeout:g}: expected a positive number "
-                         "of seconds")
+    if args.dask_timeout is not None and not 0 < args.dask_timeout <= 600:
+        raise QwellError(f"--dask-timeout {args.dask_timeout:g}: expected a number of seconds "
+                         "above 0 and at most 600")
+    if args.jobs is not None and args.jobs > 256:
+        raise QwellError(f"--jobs {args.jobs}: expected at most 256 worker processes")
+    if args.dask is not None:
+        check_dask_address(args.dask)
     return dict(jobs=args.jobs, dask=args.dask, dask_timeout_s=args.dask_timeout)
 
 
@@ -133,6 +138,7 @@ def _parallel_kw(args) -> dict:
 def cmd_size(args) -> int:
     """Run ``qwell size``; returns the exit status."""
     stack = load(args.stack, args.self_consistent, args.library)
+    parallel = _parallel_kw(args)
     p = get_parameter(stack, args.vary)
     target = spectral_to_eV(args.target)
     bounds = None
@@ -140,11 +146,12 @@ def cmd_size(args) -> int:
         if args.lo is None or args.hi is None:
             raise QwellError("--from and --to go together; give both or neither")
         bounds = (parse_parameter_value(p, args.lo), parse_parameter_value(p, args.hi))
+        _check_range_work(stack, p, bounds)
     if args.write:
         if Path(args.write).exists() and Path(args.write).resolve() == Path(args.stack).resolve():
             raise QwellError(f"--write {args.write}: refusing to overwrite the input stack file")
     res = size(stack, p.path, target, args.transition, bounds=bounds, emitter=args.emitter,
-               **_parallel_kw(args))
+               **parallel)
     if args.write:
         atomic_write_text(args.write, dump_stack_yaml(res.stack.raw), protect=[args.stack])
     if args.json:
@@ -203,7 +210,32 @@ def print_size(stack, p, target_eV: float, res, unit: str | None = None) -> None
 # ---------------------------------------------------------------------------
 # sweep
 # ---------------------------------------------------------------------------
-def _axis_values(p, lo, hi, points, step):
+#: Most designs one local run evaluates (sweep grid points, Monte Carlo samples); a run on
+#: a Dask cluster (--dask) may go to MAX_DASK_DESIGNS.  Results stay well under 1 GB.
+MAX_LOCAL_DESIGNS = 100_000
+MAX_DASK_DESIGNS = 1_000_000
+#: Largest --seed (numpy's generator takes seeds 0 .. 2**63 - 1 here).
+MAX_SEED = 2**63 - 1
+
+
+def _design_cap(args) -> int:
+    return MAX_DASK_DESIGNS if getattr(args, "dask", None) else MAX_LOCAL_DESIGNS
+
+
+def _beyond(args) -> str:
+    if getattr(args, "dask", None):
+        return "split the run into several smaller ones"
+    return (f"split the range into several runs, or run on a Dask cluster with --dask "
+            f"(up to {MAX_DASK_DESIGNS:,})")
+
+
+def _check_count(option: str, n: int, cap: int, args) -> None:
+    if n > cap:
+        raise ParameterError(f"{option}: {n:,} designs exceed the limit of {cap:,} per run; "
+                             f"{_beyond(args)}")
+
+
+def _axis_values(p, lo, hi, points, step, cap=MAX_LOCAL_DESIGNS, args=None):
     """Grid values of one swept parameter (in its unit), each checked against its range."""
     a = parse_parameter_value(p, lo)
     b = parse_parameter_value(p, hi)
@@ -211,13 +243,20 @@ def _axis_values(p, lo, hi, points, step):
         st = parse_parameter_value(p, step, delta=True)
         if not st > 0:
             raise ParameterError(f"--step {step!r}: expected a positive step")
-        n = int(math.floor(abs(b - a) / st + 1e-9)) + 1
+        ratio = abs(b - a) / st
+        if not math.isfinite(ratio) or ratio + 1 > cap:
+            count = f"{ratio + 1:,.0f}" if math.isfinite(ratio) else "too many"
+            raise ParameterError(f"--step {step!r}: {count} points from {lo} to {hi} exceed "
+                                 f"the limit of {cap:,} per run; give a larger step, or "
+                                 f"{_beyond(args)}")
+        n = int(math.floor(ratio + 1e-9)) + 1
         vals = a + np.sign(b - a) * st * np.arange(n)
     else:
         if points is None:
             points = 21
         if points < 1:
             raise ParameterError(f"--points {points}: expected at least 1")
+        _check_count(f"--points {points}", points, cap, args)
         vals = np.linspace(a, b, points)
     for v in vals:
         try:
@@ -247,24 +286,47 @@ def _sweep_axes(stack, args) -> list:
         p = get_parameter(stack, path)
         npts = pts[k] if k < len(pts) else None
         step = steps[k] if k < len(steps) else None
-        axes.append((p, _axis_values(p, los[k], his[k], npts, step)))
+        axes.append((p, _axis_values(p, los[k], his[k], npts, step, _design_cap(args), args)))
+    if len(axes) == 2:
+        _check_count("the 2-D map", len(axes[0][1]) * len(axes[1][1]), _design_cap(args), args)
+    for p, vals in axes:
+        _check_range_work(stack, p, (float(np.min(vals)), float(np.max(vals))))
     return axes
+
+
+def _check_range_work(stack, p, ends) -> None:
+    """Each end of a parameter range must be a stack a command may solve (check_work)."""
+    for v in ends:
+        try:
+            check_work(apply_parameters(stack, {p.path: v}))
+        except StackError as exc:
+            raise ParameterError(f"--vary {p.path} at {v:.6g}{unit_text(p.unit)}: "
+                                 f"{exc.message}") from None
 
 
 def cmd_sweep(args) -> int:
     """Run ``qwell sweep``; returns the exit status."""
     stack = load(args.stack, args.self_consistent, args.library)
+    parallel = _parallel_kw(args)
+    if args.csv or args.png:
+        OutputGroup([f for f in (args.csv, args.png) if f], protect=[args.stack])  # checks only
+    if args.png:
+        check_figure_target(args.png)
     axes = _sweep_axes(stack, args)
     (p1, v1) = axes[0]
     p2, v2 = (axes[1] if len(axes) > 1 else (None, None))
     res = sweep(stack, p1.path, v1, args.transition, parameter2=None if p2 is None else p2.path,
                 values2=v2, sensitivity=args.sensitivity, reference=args.reference,
-                emitter=args.emitter,
-                **_parallel_kw(args))
-    if args.csv:
-        atomic_write_text(args.csv, res.to_csv(), protect=[args.stack])
-    if args.png:
-        res.plot(args.png, protect=[args.stack], title=stack.name, unit=args.unit)
+                emitter=args.emitter, **parallel)
+    outputs = [f for f in (args.csv, args.png) if f]
+    if outputs:
+        # both files or neither: written to temporary names, renamed when both succeeded
+        with OutputGroup(outputs, protect=[args.stack]) as group:
+            if args.csv:
+                atomic_write_text(group.path(args.csv), res.to_csv(), protect=[args.stack])
+            if args.png:
+                res.plot(group.path(args.png), protect=[args.stack], title=stack.name,
+                         unit=args.unit)
     if args.json:
         print_json(sweep_json(res, args.unit))
         return 0
@@ -377,15 +439,21 @@ def _extra_tolerances(items) -> dict:
 def cmd_tolerance(args) -> int:
     """Run ``qwell tolerance``; returns the exit status."""
     stack = load(args.stack, args.self_consistent, args.library)
+    parallel = _parallel_kw(args)
     thick = _split_assignments(args.thickness, "--thickness") if args.thickness else {"*": "1 ML"}
     comp = (_split_assignments(args.composition, "--composition") if args.composition
             else {"*": "0.01"})
     extra = _extra_tolerances(args.vary)
     if args.monte_carlo is not None and args.monte_carlo < 0:
         raise QwellError(f"--monte-carlo {args.monte_carlo}: expected a count >= 0")
+    if args.monte_carlo:
+        _check_count(f"--monte-carlo {args.monte_carlo}", args.monte_carlo, _design_cap(args),
+                     args)
+    if not 0 <= args.seed <= MAX_SEED:
+        raise QwellError(f"--seed {args.seed}: expected a whole number from 0 to {MAX_SEED}")
     res = tolerance(stack, args.transition, thick, comp, extra,
                     monte_carlo=args.monte_carlo or 0, seed=args.seed,
-                    distribution=args.distribution, **_parallel_kw(args))
+                    distribution=args.distribution, **parallel)
     if args.json:
         print_json(tolerance_json(res, args.unit))
         return 0

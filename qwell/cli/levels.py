@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 
 from ..errors import QwellError
+from ..fileio import OutputGroup, check_figure_target
 from ..levels import compare_methods, depolarised_lines, solve_profile
 from ..optics import plot_spectrum, select_transitions, spectrum, strength
 from ..reference import reference_edges_eV
@@ -137,6 +138,9 @@ def cmd_levels(args) -> int:
     """Run ``qwell levels``; returns the exit status."""
     opts = LevelsOptions.from_args(args)
     stack = load(opts.stack_path, opts.self_consistent, opts.libraries)
+    if opts.png:
+        OutputGroup([opts.png], protect=[opts.stack_path])  # checks the target before the work
+        check_figure_target(opts.png)
     prof, sc = profile_and_charge(stack, quiet=opts.json)
     if opts.lifetimes:
         check_band(lambda: [s.label for s in solve_profile(prof, bands="conduction",

@@ -3,9 +3,9 @@ of each value, or ``--check FILE``: a material library checked before use."""
 
 from __future__ import annotations
 
-from ..errors import QwellError
+from ..errors import QwellError, one_line
 from ..materials import check_library, format_check, material_provenance, material_set, origin_label
-from ..units import to_float
+from ..units import out_of_range, to_float
 from .common import EXIT_USAGE, add_library_option, print_json, table
 from .json_out import library_check_json, material_json, material_list_json
 
@@ -49,8 +49,9 @@ def cmd_materials(args) -> int:
                 print(f"  {n}")
         return 0
     temperature_K = to_float(args.temperature, "K", "a temperature (e.g. '300 K')")
-    if temperature_K <= 0:
-        raise QwellError(f"--temperature {args.temperature!r}: must be above 0 K")
+    why = out_of_range("temperature", temperature_K)
+    if why is not None:
+        raise QwellError(f"--temperature {one_line(repr(args.temperature))} {why}")
     mat = mset.get_material(args.name, temperature_K)
     if args.json:
         print_json(material_json(mat, temperature_K, mset))
