@@ -14,7 +14,8 @@ from pathlib import Path
 import numpy as np
 
 from ..constants import HC_EV_UM
-from ..design import get_parameter, parse_parameter_value, size, sweep, tolerance
+from ..design import (get_parameter, parse_growth_rate, parse_parameter_value, size, sweep,
+                      tolerance)
 from ..errors import ParameterError, QwellError
 from ..fileio import atomic_write_text
 from ..stack import dump_stack_yaml
@@ -76,6 +77,9 @@ def register(subparsers) -> None:
                    help="absolute composition tolerance (default 0.01; repeatable)")
     t.add_argument("--vary", action="append", metavar="PATH=DELTA",
                    help="a further parameter and its tolerance, e.g. field=2kV/cm")
+    t.add_argument("--growth-rate", metavar="RATE",
+                   help="growth-rate error scaling every layer of a material together, "
+                        "e.g. 2%% (default: none)")
     t.add_argument("--monte-carlo", type=int, default=0, metavar="N",
                    help="number of random designs (default 0: none)")
     t.add_argument("--seed", type=int, default=1,
@@ -83,6 +87,8 @@ def register(subparsers) -> None:
     t.add_argument("--distribution", default="normal", choices=["normal", "uniform"],
                    help="normal: tolerance = 1 sigma (default); uniform: on ±tolerance")
     t.add_argument("--json", action="store_true")
+    t.add_argument("--png", metavar="FILE",
+                   help="write a histogram of the Monte Carlo wavelengths (needs --monte-carlo)")
     _add_parallel(t)
     add_self_consistent_option(t)
     t.set_defaults(func=cmd_tolerance)
@@ -294,35 +300,87 @@ def cmd_tolerance(args) -> int:
     extra = _extra_tolerances(args.vary)
     if args.monte_carlo is not None and args.monte_carlo < 0:
         raise QwellError(f"--monte-carlo {args.monte_carlo}: expected a count >= 0")
-    res = tolerance(stack, args.transition, thick, comp, extra,
+    rate = None
+    if args.growth_rate is not None:
+        try:
+            parse_growth_rate(args.growth_rate)
+        except ParameterError as exc:
+            raise QwellError(f"--growth-rate {args.growth_rate}: {exc}") from None
+        rate = args.growth_rate
+    if args.png and not args.monte_carlo:
+        raise QwellError(f"--png {args.png}: the histogram needs a Monte Carlo run; add "
+                         "--monte-carlo N")
+    res = tolerance(stack, args.transition, thick, comp, extra, growth_rate=rate,
                     monte_carlo=args.monte_carlo or 0, seed=args.seed,
                     distribution=args.distribution, **_parallel_kw(args))
+    if args.png:
+        res.plot(args.png, protect=[args.stack], title=stack.name)
     if args.json:
         print_json(tolerance_json(res))
         return 0
     print_tolerance(stack, res)
+    if args.png:
+        print(f"wrote {args.png}")
     return 0
 
 
 def print_tolerance(stack, res) -> None:
-    """Contributions, worst case, root-sum-square, Monte Carlo statistics, notes."""
+    """One-at-a-time rows, correlated groups, both views side by side, Monte Carlo, notes."""
     print(f"{stack.name}: {res.transition} at {res.nominal_wavelength_um:.5f} µm "
           f"({res.nominal_energy_eV:.6f} eV)")
     rows = [[c.parameter, f"{c.value:.6g}{unit_text(c.unit)}",
              f"±{c.delta:.4g}{unit_text(c.unit)} ({c.spec})",
              fmt(c.wavelength_minus_um, ".5f"), fmt(c.wavelength_plus_um, ".5f"),
              fmt(c.contribution_nm, "+.3f")] for c in res.contributions]
+    print("\nOne at a time (each parameter alone)")
     print(table(rows, ["parameter", "nominal", "tolerance", "λ(-) µm", "λ(+) µm",
                        "contribution nm"], ["<", ">", "<", ">", ">", ">"]))
-    print(f"\nworst case: ±{fmt(res.worst_case_nm, '.3f')} nm (sum of |contributions|); "
-          f"corner designs {fmt(res.corner_min_um, '.5f')} .. {fmt(res.corner_max_um, '.5f')} µm")
-    print(f"root-sum-square: ±{fmt(res.rss_nm, '.3f')} nm")
+    if res.groups:
+        grows = [[g.name, _members(g.members), f"±{g.spec}", fmt(g.wavelength_minus_um, ".5f"),
+                  fmt(g.wavelength_plus_um, ".5f"), fmt(g.contribution_nm, "+.3f"),
+                  fmt(g.members_sum_nm, "+.3f")] for g in res.groups]
+        print("\nCorrelated (every layer of one composition, or of one material for the growth "
+              "rate, moves together)")
+        print(table(grows, ["error source", "layers", "tolerance", "λ(-) µm", "λ(+) µm",
+                            "contribution nm", "sum alone nm"],
+                    ["<", "<", "<", ">", ">", ">", ">"]))
+    w = max(len(fmt(res.independent_worst_case_nm, ".3f")), len(fmt(res.worst_case_nm, ".3f")))
+    print(f"\n{'':17}  {'independent':>{w + 4}}  {'correlated':>{w + 4}}")
+    print(f"{'worst case':17}  ±{fmt(res.independent_worst_case_nm, '.3f'):>{w}} nm"
+          f"  ±{fmt(res.worst_case_nm, '.3f'):>{w}} nm  (sum of |contributions|; correlated used)")
+    print(f"{'root-sum-square':17}  ±{fmt(res.independent_rss_nm, '.3f'):>{w}} nm"
+          f"  ±{fmt(res.rss_nm, '.3f'):>{w}} nm  (a correlated group is one term)")
+    print(f"worst-case corner designs (correlated): {fmt(res.corner_min_um, '.5f')} .. "
+          f"{fmt(res.corner_max_um, '.5f')} µm")
     mc = res.monte_carlo
     if mc is not None:
         sigma = ("each tolerance taken as 1 sigma of a Gaussian" if mc.distribution == "normal"
-                 else "each parameter uniform on ±tolerance")
-        print(f"Monte Carlo ({mc.samples} designs, {sigma}, seed {mc.seed}): mean "
-              f"{fmt(mc.mean_um, '.5f')} µm, std {fmt(mc.std_nm, '.3f')} nm, percentiles "
-              + ", ".join(f"{k}%: {fmt(v, '.5f')} µm" for k, v in mc.percentiles_um.items()))
+                 else "each error uniform on ±tolerance")
+        print(f"Monte Carlo ({mc.samples} designs, correlated errors, {sigma}, seed {mc.seed}): "
+              f"mean {fmt(mc.mean_um, '.5f')} µm, std {fmt(mc.std_nm, '.3f')} nm"
+              + (f" over the {mc.valid} designs with the line" if mc.lost else ""))
+        print("  percentiles over all designs: "
+              + ", ".join(f"{k}%: {_pct_text(lo, hi)}"
+                          for k, (lo, hi) in mc.percentile_range_um.items()))
+        if mc.lost:
+            print(f"  lost: {mc.lost} of {mc.samples} designs "
+                  f"({100.0 * mc.lost / mc.samples:.3g} %) have no {res.transition}: "
+                  + "; ".join(f"{why} ({n})" for why, n in mc.lost_reasons))
     for n in res.notes:
         print(f"note: {n}")
+
+
+def _members(paths, limit: int = 3) -> str:
+    names = [p.rsplit(".", 1)[0] for p in paths]
+    if len(names) <= limit:
+        return ", ".join(names)
+    return ", ".join(names[:limit]) + f" … ({len(names)} layers)"
+
+
+def _pct_text(lo: float, hi: float) -> str:
+    """A percentile over all designs: one value, or the range the lost designs leave open."""
+    if math.isfinite(lo) and lo == hi:
+        return f"{lo:.5f} µm"
+    a = f"{lo:.5f}" if math.isfinite(lo) else "lost"
+    b = f"{hi:.5f}" if math.isfinite(hi) else "lost"
+    return f"{a} .. {b} µm"

@@ -12,7 +12,9 @@ One topic per module:
 * :mod:`.sizing`: :func:`size` (a parameter value for a target wavelength);
 * :mod:`.sweeps`: :func:`sweep` (1-D and 2-D grids);
 * :mod:`.tolerances`: :func:`tolerance` (worst case, corners, RSS, Monte
-  Carlo) and :func:`sensitivities` (± shifts of several transitions).
+  Carlo) and :func:`sensitivities` (± shifts of several transitions);
+* :mod:`.growth`: correlated growth errors (composition and growth-rate
+  groups); :mod:`.histogram`: the Monte Carlo histogram.
 
 Wavelength sensitivities are given in engineering units: nm of wavelength
 per monolayer (thickness; per nm when the layer has no lattice constant), per
@@ -26,7 +28,9 @@ from ..stack_edit import KINDS, Parameter, apply_parameters, get_parameter, para
 from .evaluate import DesignPoint, bands_for_transitions, design_point, evaluate_many
 from .sizing import MonolayerOption, SizeResult, size
 from .sweeps import SweepResult, sweep
-from .tolerances import (Contribution, MonteCarloSummary, Sensitivity, SensitivityResult,
+from .growth import CorrelatedGroup, parse_growth_rate
+from .histogram import plot_monte_carlo
+from .tolerances import (Contribution, GroupContribution, MonteCarloSummary, Sensitivity, SensitivityResult,
                         ToleranceResult, parse_parameter_value, sensitivities, tolerance)
 
 __all__ = [
@@ -36,6 +40,8 @@ __all__ = [
     "MonolayerOption",
     "SweepResult",
     "Contribution",
+    "GroupContribution",
+    "CorrelatedGroup",
     "MonteCarloSummary",
     "ToleranceResult",
     "Sensitivity",
@@ -52,5 +58,7 @@ __all__ = [
     "tolerance",
     "sensitivities",
     "parse_parameter_value",
+    "parse_growth_rate",
+    "plot_monte_carlo",
     "KINDS",
 ]
