@@ -24,7 +24,7 @@ LAYERS = (
     ("fileio", "parallel"),
     ("materials",),
     ("strain", "formula"),
-    ("stack", "stack_edit"),
+    ("stack", "stack_edit", "stack_text"),
     ("bands", "profile"),
     ("solvers",),
     ("optics", "poisson", "lifetimes", "absorption", "gain", "excitons"),

@@ -18,7 +18,7 @@ from ..design import (get_parameter, parse_growth_rate, parse_parameter_value, s
                       tolerance)
 from ..errors import ParameterError, QwellError
 from ..fileio import atomic_write_text
-from ..stack import dump_stack_yaml
+from ..stack_text import edit_stack_text
 from ..units import spectral_to_eV
 from .common import add_self_consistent_option, fmt, load, print_json, table, unit_text
 from .json_out import size_json, sweep_json, tolerance_json
@@ -39,7 +39,12 @@ def register(subparsers) -> None:
     s.add_argument("--from", dest="lo", metavar="VALUE", help="search range start (with units)")
     s.add_argument("--to", dest="hi", metavar="VALUE", help="search range end (with units)")
     s.add_argument("--json", action="store_true", help="machine-readable output")
-    s.add_argument("--write", metavar="FILE", help="write the sized stack as YAML")
+    s.add_argument("--write", metavar="FILE",
+                   help="write the sized stack to FILE: the input's text with the value in place "
+                        "(comments and order kept; never the input file)")
+    s.add_argument("--round-ml", action="store_true",
+                   help="with --write: write the thickness as the nearest whole number of "
+                        "monolayers (and print the line it gives)")
     _add_parallel(s)
     add_self_consistent_option(s)
     s.set_defaults(func=cmd_size)
@@ -127,19 +132,53 @@ def cmd_size(args) -> int:
         if args.lo is None or args.hi is None:
             raise QwellError("--from and --to go together; give both or neither")
         bounds = (parse_parameter_value(p, args.lo), parse_parameter_value(p, args.hi))
+    if args.round_ml and not args.write:
+        raise QwellError("--round-ml goes with --write FILE (the whole-monolayer options are "
+                         "listed without it)")
+    if args.round_ml and (p.kind != "thickness" or not p.monolayer_nm):
+        raise QwellError(f"--round-ml: {p.path} is not a thickness of a layer with a lattice "
+                         "constant; expected a LAYER.thickness of a crystal layer")
     if args.write:
         if Path(args.write).exists() and Path(args.write).resolve() == Path(args.stack).resolve():
             raise QwellError(f"--write {args.write}: refusing to overwrite the input stack file")
     res = size(stack, p.path, target, args.transition, bounds=bounds, **_parallel_kw(args))
+    written = None
     if args.write:
-        atomic_write_text(args.write, dump_stack_yaml(res.stack.raw), protect=[args.stack])
+        written = _write_sized(args, stack, p, res)
     if args.json:
-        print_json(size_json(res))
+        out = size_json(res)
+        if written is not None:
+            out["written"] = written
+        print_json(out)
         return 0
     print_size(stack, p, target, res)
-    if args.write:
-        print(f"wrote {args.write}")
+    if written is not None:
+        if written["monolayers"] is None:
+            print(f"wrote {args.write}: {p.path} = {written['value']!r}{unit_text(p.unit)}")
+        else:
+            print(f"wrote {args.write}: {p.path} = {written['monolayers']} ML "
+                  f"({written['value']:.4f} nm)  ->  {res.transition} at "
+                  f"{fmt(written['wavelength_um'], '.5f')} µm "
+                  f"({fmt(written['energy_eV'], '.6f')} eV)")
     return 0
+
+
+def _write_sized(args, stack, p, res) -> dict:
+    """Write the sized value into the input's own text (optionally whole monolayers)."""
+    text = Path(args.stack).read_text(encoding="utf-8")
+    value, ml, lam, energy = res.value, None, res.wavelength_um, res.energy_eV
+    if args.round_ml:
+        if not res.monolayer_options:
+            raise QwellError(f"--round-ml: no whole-monolayer option of {p.path} near "
+                             f"{res.value:.6g} nm")
+        best = min(res.monolayer_options, key=lambda o: abs(o.thickness_nm - res.value))
+        value, ml, lam, energy = best.thickness_nm, best.monolayers, best.wavelength_um, \
+            best.energy_eV
+    edited = edit_stack_text(stack, text, {p.path: value},
+                             monolayers={p.path: ml} if ml is not None else None)
+    atomic_write_text(args.write, edited, protect=[args.stack])
+    return {"file": str(args.write), "parameter": p.path, "value": value, "monolayers": ml,
+            "wavelength_um": lam, "energy_eV": energy}
 
 
 def print_size(stack, p, target_eV: float, res) -> None:
