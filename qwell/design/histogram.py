@@ -72,7 +72,7 @@ def plot_monte_carlo(res, path, *, protect=(), title: str | None = None):
         ax.plot([], [], " ", label=f"lost: {mc.lost} of {mc.samples} designs "
                                    f"({100.0 * mc.lost / mc.samples:.3g} %): {why}")
     sigma = ("tolerance = 1 σ" if mc.distribution == "normal" else "uniform on ±tolerance")
-    ax.set_xlabel("wavelength [µm]")
+    ax.set_xlabel("wavelength (µm)")
     ax.set_ylabel("designs per bin")
     head = title + ": " if title else ""
     ax.set_title(f"{head}{res.transition} Monte Carlo, {mc.samples} designs\n"

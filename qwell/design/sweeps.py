@@ -145,7 +145,7 @@ class SweepResult:
 
         def axis_label(i):
             u = self.units[i]
-            return self.parameters[i] + ("" if u == "fraction" else f" [{u}]")
+            return self.parameters[i] + ("" if u == "fraction" else f" ({u})")
 
         styles = ["-", "--", "-.", ":"]
         colors = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000"]
@@ -156,7 +156,7 @@ class SweepResult:
             for k, t in enumerate(self.transitions):
                 ax.plot(x, self.wavelength_um[t], styles[k % 4], color=colors[k % 7], lw=1.8,
                         label=t)
-            ax.set_ylabel("wavelength [µm]")
+            ax.set_ylabel("wavelength (µm)")
             if self.transitions:
                 ax.legend(loc="best")
             ax.grid(alpha=0.3)
@@ -164,7 +164,7 @@ class SweepResult:
             for k, lab in enumerate(self.state_labels):
                 ax2.plot(x, self.state_energy_eV[lab], styles[k % 4], color=colors[k % 7],
                          lw=1.4, label=lab)
-            ax2.set_ylabel("state energy [eV]")
+            ax2.set_ylabel("state energy (eV)")
             ax2.set_xlabel(axis_label(0))
             ax2.grid(alpha=0.3)
             if self.state_labels:
@@ -179,7 +179,7 @@ class SweepResult:
             masked = np.ma.masked_invalid(lam)
             mesh = ax.pcolormesh(X, Y, masked, shading="auto", cmap="cividis")
             cb = fig.colorbar(mesh, ax=ax)
-            cb.set_label(f"{t} wavelength [µm]")
+            cb.set_label(f"{t} wavelength (µm)")
             if np.isfinite(lam).sum() >= 4 and min(lam.shape) >= 2:
                 cs = ax.contour(X, Y, masked, colors="white", linewidths=0.9)
                 ax.clabel(cs, fmt="%.3g µm", fontsize=8)
