@@ -388,7 +388,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     """
     # matplotlib is heavy: imported when a diagram is drawn, not with qwell.diagram
     from matplotlib.lines import Line2D
-    from matplotlib.patches import ConnectionPatch
+    from matplotlib.patches import ConnectionPatch, Patch
 
     transitions = tuple(transitions)
     fw_pt = fig.get_figwidth() * 72.0
@@ -545,7 +545,11 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
             p["ax"].plot(profile.z_nm, arr, color=c, ls=ls, lw=1.8, zorder=3)
             if not any(h.get_label() == lab for h in handles):
                 handles.append(Line2D([], [], color=c, ls=ls, lw=1.8, label=lab))
-    handles.append(Line2D([], [], color="0.3", lw=1.0, label="|ψ|² of each state, baseline at its energy"))
+    handles.append(Line2D([], [], color=STATE_COLOURS[0], lw=1.0,
+                          label="|ψ|² of each state (own colour), baseline at its energy"))
+    if n_grouped:
+        handles.append(Patch(color=STATE_COLOURS[0], alpha=0.22, lw=0,
+                             label="miniband (states of the repeated periods)"))
     if transitions:
         handles.append(Line2D([], [], color="black", lw=1.0, marker=">", markersize=4,
                               label="chosen transition (wavelength)"))
