@@ -404,7 +404,9 @@ def print_tolerance(stack, res) -> None:
         if mc.lost:
             print(f"  lost: {mc.lost} of {mc.samples} designs "
                   f"({100.0 * mc.lost / mc.samples:.3g} %) have no {res.transition}: "
-                  + "; ".join(f"{why} ({n})" for why, n in mc.lost_reasons))
+                  + "; ".join(f"{why} ({n})" for why, n in mc.lost_reasons)
+                  + "; each percentile is given from the lost designs ranked at the short to "
+                    "ranked at the long end")
     for n in res.notes:
         print(f"note: {n}")
 
