@@ -55,6 +55,7 @@ def test_shared_composition_moves_together_and_is_not_root_sum_squared():
     assert res.rss_nm / res.independent_rss_nm == pytest.approx(math.sqrt(2), rel=1e-3)
 
 
+@pytest.mark.slow
 def test_growth_rate_of_an_infinite_like_well():
     # A 1000 eV deep well: infinite-well closed form E ∝ 1/L², λ ∝ L², so a growth-rate error r
     # gives (λ(L(1+r)) - λ(L(1-r)))/2 = 2 r λ exactly (dλ/dL = 2λ/L).  The finite depth leaves
