@@ -546,13 +546,13 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
             if not any(h.get_label() == lab for h in handles):
                 handles.append(Line2D([], [], color=c, ls=ls, lw=1.8, label=lab))
     handles.append(Line2D([], [], color=STATE_COLOURS[0], lw=1.0,
-                          label="|ψ|² of each state (own colour), baseline at its energy"))
+                          label="|ψ|² of a state, on its energy"))
     if n_grouped:
         handles.append(Patch(color=STATE_COLOURS[0], alpha=0.22, lw=0,
-                             label="miniband (states of the repeated periods)"))
+                             label="miniband (shaded)"))
     if transitions:
         handles.append(Line2D([], [], color="black", lw=1.0, marker=">", markersize=4,
-                              label="chosen transition (wavelength)"))
+                              label="chosen line (wavelength)"))
 
     # -- states (one colour each), miniband groups, labels -----------------------------
     drawn_labels = []
