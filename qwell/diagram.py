@@ -8,14 +8,20 @@ What is drawn
   labelled with their names and materials in a strip above the plot
   (horizontal when the text fits the layer, rotated otherwise; layers too
   narrow even for rotated text are listed under the plot);
-* each state's ``|psi|^2`` drawn on a baseline at the state energy, in the
-  direction of increasing carrier energy (up for electrons, down for holes),
-  scaled so that neighbouring states do not collide: the peak height is a
-  fraction of the smallest level spacing in the panel;
-* state labels (``e1``, ``hh1``, ...) in a column right of the plot, pushed
-  apart so they never overlap (:func:`spread_positions`), with leader lines;
-* the chosen transitions as arrows, labelled with name and wavelength,
-  staggered so the labels do not overlap.
+* each state's ``|psi|^2`` in its own colour (:data:`STATE_COLOURS`) on a
+  baseline at the state energy, in the direction of increasing carrier
+  energy (up for electrons, down for holes), on one scale per panel: the
+  largest peak is a fixed fraction of the panel's energy span, so it stays
+  clearly visible in multi-well stacks (not shrunk to the smallest spacing);
+* the state's label at the peak of its ``|psi|^2`` (where it overlaps no other
+  label), and every label in a column right of the plot, pushed apart so they
+  never overlap (:func:`spread_positions`), with leader lines;
+* minibands of repeated periods (:func:`miniband_groups`) shaded as bands in
+  their colour, with only their bottom, middle and top states drawn and a
+  note saying how many states are shown;
+* the chosen transitions as arrows above their labels (a label never hides
+  its arrow), labelled with name and wavelength, staggered so the labels do
+  not overlap.
 
 When conduction and valence states are far apart in energy (an interband
 design, gap ~1 eV), the figure uses two panels sharing the z axis:
@@ -44,7 +50,8 @@ __all__ = [
     "DIAGRAM_DPI",
     "DiagramInfo",
     "spread_positions",
-    "wavefunction_amplitude_eV",
+    "STATE_COLOURS",
+    "miniband_groups",
     "hole_bands_shown",
     "draw_band_diagram",
     "band_diagram_figure",
@@ -60,6 +67,16 @@ _HOLE_BANDS = ("heavy_hole", "light_hole")
 _FONT = 8.0          # label font size [pt]
 _TICK_FONT = 8.0
 _PSI_CUT = 0.01      # |psi|^2 below this fraction of its peak is not drawn
+_PSI_HEIGHT = 0.15   # the largest |psi|^2 of a panel is drawn this fraction of its span high
+_GROUP_MIN = 4       # a miniband holding this many states or more is drawn as a group
+_GROUP_DRAWN = 3     # states drawn (and labelled) per grouped miniband: bottom, middle, top
+
+#: One colour per state, cycled in energy order within a panel (our own choice: dark,
+#: saturated hues that stay apart on white and in greyscale print by their lightness).
+STATE_COLOURS = ("#1b4f9c", "#c0392b", "#1e8449", "#8e44ad", "#b9770e", "#117a8b",
+                 "#7b241c", "#5d6d7e", "#a93226", "#196f3d")
+#: Line style of a band's states (the band-edge styles of BAND_STYLE tell the edges apart).
+_STATE_STYLE = {"conduction": "-", "heavy_hole": "--", "light_hole": ":"}
 
 
 @dataclass(frozen=True)
@@ -80,6 +97,12 @@ class DiagramInfo:
         Layers too narrow to carry a label in the strip (listed under the plot).
     axes : tuple
         The matplotlib axes of the energy panels (top to bottom).
+    states_drawn : int
+        States whose ``|psi|^2`` was drawn.
+    states_total : int
+        States of the solution (grouped minibands draw a representative few).
+    groups : tuple of str
+        Grouped minibands, e.g. ``'e1–e50: 50 states, 3 drawn'``.
     """
 
     panels: tuple
@@ -88,6 +111,9 @@ class DiagramInfo:
     transition_labels: tuple
     unlabelled_layers: tuple
     axes: tuple
+    states_drawn: int = 0
+    states_total: int = 0
+    groups: tuple = ()
 
 
 # ---------------------------------------------------------------------------
@@ -151,24 +177,6 @@ def spread_positions(values, min_gap: float, lo: float = -math.inf, hi: float = 
     return out
 
 
-def wavefunction_amplitude_eV(energies_eV, span_eV: float, *, fraction: float = 0.8,
-                              floor: float = 0.035, ceiling: float = 0.22) -> float:
-    """Peak height [eV] of the drawn ``|psi|^2`` for the states of one panel.
-
-    ``fraction`` times the smallest spacing between the energies, so that a
-    state's curve stays below its upper neighbour's baseline, bounded to
-    ``[floor, ceiling]`` times the panel's energy span so that a lone state
-    or a near-degenerate doublet stays visible.
-    """
-    e = np.sort(np.asarray(energies_eV, dtype=float))
-    span = abs(float(span_eV)) or 1.0
-    if e.size < 2:
-        gap = ceiling * span / fraction
-    else:
-        gap = float(np.min(np.diff(e)))
-    return float(np.clip(fraction * gap, floor * span, ceiling * span))
-
-
 def hole_bands_shown(levels, transitions) -> bool:
     """Whether the hole edges "matter": a chosen transition involves holes, or only holes have states."""
     if any(getattr(t, "kind", "") == "interband" for t in transitions):
@@ -177,6 +185,45 @@ def hole_bands_shown(levels, transitions) -> bool:
     has_e = cond is not None and len(cond.states) > 0
     has_h = any(b in levels and len(levels[b].states) for b in _HOLE_BANDS)
     return has_h and not has_e
+
+
+def miniband_groups(lev, min_states: int = _GROUP_MIN) -> list:
+    """States of one band's Levels grouped by the miniband (Bloch) they lie in.
+
+    Returns ``[(miniband or None, [states])]`` in energy order: one entry per
+    miniband holding at least ``min_states`` states of the finite stack (a
+    long repeat block), and a one-state entry for every other state.
+    """
+    states = list(getattr(lev, "states", ()))
+    out, used = [], set()
+    for mb in getattr(lev, "minibands", ()) or ():
+        lo, hi = sorted((mb.bottom_eV, mb.top_eV))
+        tol = 1e-6 + 1e-3 * abs(hi - lo)
+        inside = [s for s in states if lo - tol <= s.energy_eV <= hi + tol
+                  and s.label not in used]
+        if len(inside) >= min_states:
+            out.append((mb, inside))
+            used.update(s.label for s in inside)
+    for s in states:
+        if s.label not in used:
+            out.append((None, [s]))
+    out.sort(key=lambda g: min(_carrier(s) for s in g[1]))
+    return out
+
+
+def _carrier(state) -> float:
+    """Carrier-convention energy of a state (up for electrons, down the diagram for holes)."""
+    e = getattr(state, "carrier_energy_eV", None)
+    return float(state.energy_eV if e is None else e)
+
+
+def _representatives(states, n: int = _GROUP_DRAWN) -> list:
+    """Bottom, middle and top states (carrier-energy order) of a grouped miniband."""
+    order = sorted(states, key=_carrier)
+    if len(order) <= n:
+        return order
+    idx = sorted({round(k * (len(order) - 1) / (n - 1)) for k in range(n)})
+    return [order[i] for i in idx]
 
 
 # ---------------------------------------------------------------------------
@@ -221,8 +268,12 @@ def _wrap_words(fig, text, width_pt, size):
     return lines
 
 
-def _state_curve(state, band_sign, amp_eV, zlo, zhi):
-    """(z, y, z_extent) of the drawn |psi|^2 curve of a state, or None without psi."""
+def _state_curve(state, band_sign, amp_eV, zlo, zhi, *, absolute: bool = False):
+    """(z, y) of the drawn |psi|^2 curve of a state, or None without psi.
+
+    ``amp_eV`` is the height of the state's own peak, or with ``absolute``
+    the height per unit |psi|^2 [eV nm] (one scale for every state of a panel).
+    """
     if state.z_nm is None or state.psi is None:
         return None
     z = np.asarray(state.z_nm, dtype=float)
@@ -236,8 +287,49 @@ def _state_curve(state, band_sign, amp_eV, zlo, zhi):
     idx = np.nonzero(keep)[0]
     sl = slice(idx[0], idx[-1] + 1)
     zz = z[sl]
-    yy = state.energy_eV + band_sign * amp_eV * p2[sl] / peak
+    yy = state.energy_eV + band_sign * amp_eV * p2[sl] / (1.0 if absolute else peak)
     return zz, yy
+
+
+def _layer_list(labels) -> str:
+    """``'qw (×50), bar'``: the copies of a repeated layer (``name#k``) counted, not listed."""
+    counts: dict = {}
+    for lab in labels:
+        base = lab.split("#", 1)[0]
+        counts[base] = counts.get(base, 0) + 1
+    return ", ".join(b if n == 1 else f"{b} (×{n})" for b, n in counts.items())
+
+
+def _peak_of(state) -> float:
+    """Largest |psi|^2 of a state [1/nm] (0 without a wavefunction)."""
+    if state.psi is None:
+        return 0.0
+    p2 = np.asarray(state.psi, dtype=float) ** 2
+    return float(np.max(p2)) if p2.size else 0.0
+
+
+def _entry_label(mb, states) -> str:
+    """Label of a state (``e1``, ``e3*`` quasi-bound) or of a grouped miniband."""
+    if mb is None:
+        s = states[0]
+        return s.label + ("" if s.bound else "*")
+    return f"{states[0].label}–{states[-1].label} ({len(states)})"
+
+
+def _peak_label(ax, state, zz, yy, colour, fontsize, placed, renderer) -> None:
+    """The state's label at the peak of its drawn |psi|^2, unless it would overlap another."""
+    i = int(np.argmax(np.abs(yy - state.energy_eV)))
+    up = yy[i] >= state.energy_eV
+    t = ax.text(zz[i], yy[i], state.label, fontsize=fontsize - 0.5, color=colour, ha="center",
+                va="bottom" if up else "top", zorder=8, parse_math=False, clip_on=True,
+                bbox=dict(boxstyle="square,pad=0.05", fc="white", ec="none", alpha=0.8))
+    bb = t.get_window_extent(renderer=renderer)
+    ax_bb = ax.get_window_extent(renderer=renderer)
+    inside = ax_bb.x0 <= bb.x0 and bb.x1 <= ax_bb.x1 and ax_bb.y0 <= bb.y0 and bb.y1 <= ax_bb.y1
+    if not inside or any(bb.overlaps(o) for o in placed):
+        t.remove()
+        return
+    placed.append(bb)
 
 
 def _panel_plan(profile, levels, bands_shown, transitions):
@@ -297,7 +389,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     """
     # matplotlib is heavy: imported when a diagram is drawn, not with qwell.diagram
     from matplotlib.lines import Line2D
-    from matplotlib.patches import ConnectionPatch
+    from matplotlib.patches import ConnectionPatch, Patch
 
     transitions = tuple(transitions)
     fw_pt = fig.get_figwidth() * 72.0
@@ -322,7 +414,15 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     # -- layer strip text plan (measured) ---------------------------------
     z0 = float(profile.layers[0].start_nm)
     z1 = float(profile.layers[-1].end_nm)
-    all_labels = [s.label + ("" if s.bound else "*") for lev in levels.values() for s in lev.states]
+    # one entry per single state or grouped miniband: (band, miniband, states, drawn states)
+    entries = {}
+    for b, lev in levels.items():
+        entries[b] = [(mb, st, st if mb is None else _representatives(st))
+                      for mb, st in miniband_groups(lev)]
+    all_labels = [_entry_label(mb, st) for es in entries.values() for mb, st, _ in es]
+    n_total = sum(len(st) for es in entries.values() for _, st, _ in es)
+    n_draw = sum(len(dr) for es in entries.values() for _, _, dr in es)
+    n_grouped = sum(1 for es in entries.values() for mb, _, _ in es if mb is not None)
     label_w = max([_text_extent_pt(fig, t, fontsize)[0] for t in all_labels] + [20.0])
     margin_l, margin_r = 58.0, 14.0 + label_w + 8.0     # y labels | state-label column
     quasi = any(t.endswith("*") for t in all_labels)
@@ -362,8 +462,11 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
         notes = []
         if quasi:
             notes.append("* quasi-bound state (can escape through a cladding)")
+        if n_grouped:
+            notes.append(f"{n_draw} of {n_total} states drawn: each miniband of the repeated "
+                         f"periods is shaded, with its bottom, middle and top states drawn")
         if unlabelled:
-            notes.append("narrow layers not labelled above: " + ", ".join(unlabelled))
+            notes.append("narrow layers not labelled above: " + _layer_list(unlabelled))
         note_lines = _wrap_words(fig, ";  ".join(notes), width_pt - margin_l - 8.0,
                                  fontsize) if notes else []
         unl_h = (1.3 * fontsize * len(note_lines) + 3.0) if note_lines else 0.0
@@ -386,7 +489,8 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
             e_all = edges + [s.energy_eV for _, s in states]
             lo, hi = (min(e_all), max(e_all)) if e_all else (0.0, 1.0)
             span0 = max(hi - lo, 1e-3)
-            amp = wavefunction_amplitude_eV([s.energy_eV for _, s in states], span0)
+            # one scale for the panel: its largest |psi|^2 peak is _PSI_HEIGHT of the span
+            amp = _PSI_HEIGHT * span0
             up = [s.energy_eV + amp for b, s in states if _sign(b) > 0]
             down = [s.energy_eV - amp for b, s in states if _sign(b) < 0]
             lo2 = min([lo] + down)
@@ -407,7 +511,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
         # more labels than fit in a panel's height: stagger them in columns
         cols = {}
         for p, h in zip(plan, heights):
-            n = len(p['states'])
+            n = sum(len(entries.get(b, [])) for b in p["bands"])
             cols[p['name']] = int(min(4, max(1, math.ceil(n * label_pitch / max(0.95 * h, 1.0)))))
         if cols == n_cols or (_pass == 2 and n_cols):
             break   # the layout above was made for these columns
@@ -442,34 +546,65 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
             p["ax"].plot(profile.z_nm, arr, color=c, ls=ls, lw=1.8, zorder=3)
             if not any(h.get_label() == lab for h in handles):
                 handles.append(Line2D([], [], color=c, ls=ls, lw=1.8, label=lab))
-    handles.append(Line2D([], [], color="0.3", lw=1.0, label="|ψ|² of each state, baseline at its energy"))
+    handles.append(Line2D([], [], color=STATE_COLOURS[0], lw=1.0,
+                          label="|ψ|² of a state, on its energy"))
+    if n_grouped:
+        handles.append(Patch(color=STATE_COLOURS[0], alpha=0.22, lw=0,
+                             label="miniband (shaded)"))
     if transitions:
         handles.append(Line2D([], [], color="black", lw=1.0, marker=">", markersize=4,
-                              label="chosen transition (wavelength)"))
+                              label="chosen line (wavelength)"))
 
-    # -- states and their labels ------------------------------------------------
+    # -- states (one colour each), miniband groups, labels -----------------------------
     drawn_labels = []
     curves = {}
+    peak_boxes = []
+    renderer = fig.canvas.get_renderer()
+    n_drawn = 0
+    group_notes = []
     for p in plan:
         ax = p["ax"]
         ylo, yhi = p["ylim"]
+        pentries = [(b, mb, st, dr) for b in p["bands"] for mb, st, dr in entries.get(b, [])]
+        pentries.sort(key=lambda e: (p["bands"].index(e[0]), min(_carrier(s) for s in e[2])))
+        peaks = [_peak_of(s) for _, _, _, dr in pentries for s in dr]
+        panel_peak = max([v for v in peaks if v > 0] + [0.0]) or 1.0
         lab_y, lab_txt, lab_col, lab_e, lab_sign = [], [], [], [], []
-        for b, s in p["states"]:
-            c, ls, _ = BAND_STYLE[b]
+        for k, (b, mb, st, dr) in enumerate(pentries):
+            col = STATE_COLOURS[k % len(STATE_COLOURS)]
+            ls = _STATE_STYLE.get(b, "-")
             sign = _sign(b)
-            cur = _state_curve(s, sign, p["amp"], z0, z1)
-            if cur is not None:
-                zz, yy = cur
-                ax.plot(zz, yy, color=c, ls=ls if b != "conduction" else "-", lw=1.0, zorder=4)
-                ax.plot([zz[0], zz[-1]], [s.energy_eV, s.energy_eV], color=c, lw=0.6, alpha=0.7,
-                        zorder=4)
-                curves[s.label] = (zz, np.abs(yy - s.energy_eV))
-            else:
-                ax.axhline(s.energy_eV, color=c, lw=0.6, ls=ls, zorder=4)
-            lab_y.append(s.energy_eV)
-            lab_txt.append(s.label if s.bound else f"{s.label}*")
-            lab_col.append(c)
-            lab_e.append(s.energy_eV)
+            zext = []
+            for s in dr:
+                cur = _state_curve(s, sign, p["amp"] / panel_peak, z0, z1, absolute=True)
+                n_drawn += 1
+                if cur is not None:
+                    zz, yy = cur
+                    ax.plot(zz, yy, color=col, ls=ls, lw=1.1, zorder=4)
+                    ax.plot([zz[0], zz[-1]], [s.energy_eV, s.energy_eV], color=col, lw=0.6,
+                            alpha=0.7, zorder=4)
+                    curves[s.label] = (zz, np.abs(yy - s.energy_eV))
+                    zext += [zz[0], zz[-1]]
+                    if mb is None or s is dr[0] or s is dr[-1]:
+                        _peak_label(ax, s, zz, yy, col, fontsize, peak_boxes, renderer)
+                else:
+                    ax.axhline(s.energy_eV, color=col, lw=0.6, ls=ls, zorder=4)
+                drawn_labels.append(s.label)
+            if mb is not None:
+                e_lo = min(x.energy_eV for x in st)
+                e_hi = max(x.energy_eV for x in st)
+                za, zb = (min(zext), max(zext)) if zext else (z0, z1)
+                # a miniband narrower than 1 % of the axis is widened to stay visible as a band
+                pad = max(0.0, 0.5 * (0.012 * (yhi - ylo) - (e_hi - e_lo)))
+                ax.fill_between([za, zb], [e_lo - pad] * 2, [e_hi + pad] * 2, color=col,
+                                alpha=0.22, lw=0, zorder=2)
+                group_notes.append(f"{st[0].label}–{st[-1].label}: {len(st)} states, "
+                                   f"{len(dr)} drawn")
+            e_mid = 0.5 * (min(x.energy_eV for x in st) + max(x.energy_eV for x in st))
+            lab_y.append(e_mid)
+            lab_txt.append(_entry_label(mb, st))
+            lab_col.append(col)
+            lab_e.append(e_mid)
             lab_sign.append(sign)
         if not lab_y:
             continue
@@ -492,13 +627,12 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
             ax.text(1.0 + xo / ax_w, y, txt, transform=trans, fontsize=fontsize, color=col,
                     va="center", ha="left", clip_on=False, zorder=10, parse_math=False,
                     bbox=dict(boxstyle="square,pad=0.1", fc="white", ec="none"))
-            drawn_labels.append(txt.rstrip("*"))
 
     # -- transitions --------------------------------------------------------------
     tr_labels = []
     if transitions:
         tr_labels = _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize,
-                                      ConnectionPatch)
+                                      ConnectionPatch, placed=peak_boxes)
 
     # -- strip, title, legend, break marks ---------------------------------------
     strip_rect = ((left_pt + margin_l) / fw_pt, plot_top / fh_pt, ax_w / fw_pt, strip_h / fh_pt)
@@ -531,7 +665,8 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     return DiagramInfo(panels=tuple(p["name"] for p in plan),
                        bands=tuple(b for p in plan for b in p["bands"]),
                        state_labels=tuple(drawn_labels), transition_labels=tuple(tr_labels),
-                       unlabelled_layers=tuple(unlabelled), axes=tuple(axes))
+                       unlabelled_layers=tuple(unlabelled), axes=tuple(axes),
+                       states_drawn=n_drawn, states_total=n_total, groups=tuple(group_notes))
 
 
 def _sign(band: str) -> int:
@@ -556,8 +691,13 @@ def _panel_of(plan, band):
     return None
 
 
-def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, ConnectionPatch):
-    """Arrows between the states of each transition, labels placed without overlap."""
+def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, ConnectionPatch,
+                      placed=()):
+    """Arrows between the states of each transition, labels placed without overlap.
+
+    The arrows lie above the labels (a label never hides its arrow), and a
+    label is kept clear of the state labels already placed (``placed``:
+    display-space boxes)."""
     renderer = fig.canvas.get_renderer()
     # x positions: where both states of a transition live (the lower state's
     # extent when they do not overlap), united over the transitions
@@ -583,7 +723,7 @@ def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, 
         a, b = max(mid - 0.5 * need, z0), min(mid + 0.5 * need, z1)
     xs = [a + (k + 1) * (b - a) / (n + 1) for k in range(n)]
     centre = 0.5 * (a + b)
-    placed = []   # display-space bboxes of labels
+    placed = list(placed)   # display-space bboxes of labels
     texts = []
     for t, x in zip(transitions, xs):
         si, sf = _find_state(levels, t.initial), _find_state(levels, t.final)
@@ -600,18 +740,18 @@ def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, 
         if pl is pu:
             ax = pl["ax"]
             ax.annotate("", xy=(x, upper.energy_eV), xytext=(x, lower.energy_eV),
-                        arrowprops=style, zorder=6)
+                        arrowprops=style, zorder=9)
             candidates_ax, y_mid = ax, 0.5 * (lower.energy_eV + upper.energy_eV)
         else:
             con = ConnectionPatch(xyA=(x, lower.energy_eV), coordsA=pl["ax"].transData,
                                   xyB=(x, upper.energy_eV), coordsB=pu["ax"].transData,
-                                  zorder=6, **style)
+                                  zorder=9, **style)
             fig.add_artist(con)
             candidates_ax = pl["ax"]
             ylo, yhi = pl["ylim"]
             y_mid = yhi - 0.06 * (yhi - ylo)
         right = x >= centre
-        txt = candidates_ax.text(x, y_mid, ("  " + label) if right else (label + "  "),
+        txt = candidates_ax.text(x, y_mid, ("   " + label) if right else (label + "   "),
                                  ha="left" if right else "right", va="center",
                                  fontsize=fontsize, zorder=7, parse_math=False,
                                  bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none",

@@ -724,11 +724,11 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
         raise ParameterError(f"unknown axis {axis!r}; use 'wavelength' or 'energy'")
     if ax_kind == "wavelength":
         x = spec.wavelength_um
-        xlabel = "Wavelength (µm)"
+        xlabel = "wavelength (µm)"
         pos = [HC_EV_UM / t.energy_eV for t in spec.lines]
     else:
         x = spec.energy_eV
-        xlabel = "Photon energy (eV)"
+        xlabel = "photon energy (eV)"
         pos = [t.energy_eV for t in spec.lines]
     fig, ax = plt.subplots(figsize=(8.0, 4.5), dpi=150)
     try:
@@ -762,7 +762,7 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
         ax.set_xlim(xmin, xmax)
         ax.set_ylim(0.0, 1.08)
         ax.set_xlabel(xlabel, fontsize=11)
-        ylab = "Absorption (arb. units, peak = 1)"
+        ylab = "absorption (arb. units, peak = 1)"
         ax.set_ylabel(ylab, fontsize=11)
         shape = spec.shape.capitalize()
         sub = f"{shape}, FWHM {spec.linewidth_meV:g} meV"

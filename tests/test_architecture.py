@@ -25,7 +25,7 @@ LAYERS = (
     ("fileio", "parallel", "yamlio"),
     ("materials",),
     ("strain", "formula"),
-    ("stack", "stack_edit"),
+    ("stack", "stack_edit", "stack_text"),
     ("bands", "profile", "reference"),
     ("solvers",),
     ("optics", "poisson", "lifetimes", "carriers", "excitons"),

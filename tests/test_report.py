@@ -40,7 +40,6 @@ from qwell.diagram import (
     DIAGRAM_SIZE_IN,
     band_diagram_figure,
     spread_positions,
-    wavefunction_amplitude_eV,
 )
 from qwell.errors import ParameterError, QwellError, ValidityWarning
 from qwell.stack import load_stack
@@ -506,13 +505,6 @@ def test_spread_positions_keeps_order_and_gap(values, gap):
 def test_spread_positions_stays_in_range():
     out = spread_positions([0.0, 0.0, 0.0], 1.0, lo=0.0, hi=10.0)
     assert np.allclose(np.sort(out), [0.0, 1.0, 2.0])
-
-
-def test_wavefunction_amplitude_below_level_spacing():
-    e = np.array([0.1, 0.15, 0.3])
-    amp = wavefunction_amplitude_eV(e, span_eV=1.0)
-    assert amp < 0.05                        # below the smallest spacing
-    assert amp >= 0.035                      # but visible (floor: 3.5 % of the span)
 
 
 def test_render_is_readable_pdf_in_memory(well_report):

@@ -13,11 +13,12 @@ from pathlib import Path
 
 import numpy as np
 
-from ..design import apply_parameters, get_parameter, parse_parameter_value, size, sweep, tolerance
+from ..design import (apply_parameters, get_parameter, parse_growth_rate, parse_parameter_value,
+                      size, sweep, tolerance)
 from ..errors import ParameterError, QwellError, StackError
 from ..fileio import OutputGroup, atomic_write_text, check_figure_target
 from ..parallel import check_dask_address
-from ..stack import dump_stack_yaml
+from ..stack_text import edit_stack_text
 from ..spectral import LINE_SPEC as _LINE_SPEC
 from ..spectral import SPREAD_SPEC as _SPREAD_SPEC
 from ..spectral import (column, energy_of_um, energy_text, format_line, format_spread, from_eV, line_unit,
@@ -43,7 +44,12 @@ def register(subparsers) -> None:
     s.add_argument("--from", dest="lo", metavar="VALUE", help="search range start (with units)")
     s.add_argument("--to", dest="hi", metavar="VALUE", help="search range end (with units)")
     s.add_argument("--json", action="store_true", help="machine-readable output")
-    s.add_argument("--write", metavar="FILE", help="write the sized stack as YAML")
+    s.add_argument("--write", metavar="FILE",
+                   help="write the sized stack to FILE: the input's text with the value in place "
+                        "(comments and order kept; never the input file)")
+    s.add_argument("--round-ml", action="store_true",
+                   help="with --write: write the thickness as the nearest whole number of "
+                        "monolayers (and print the line it gives)")
     s.add_argument("--emitter", metavar="e2-e3",
                    help="also report this intersubband line's LO-phonon lifetimes and figure "
                         "of merit at the sized value")
@@ -94,6 +100,9 @@ def register(subparsers) -> None:
                    help="absolute composition tolerance (default 0.01; repeatable)")
     t.add_argument("--vary", action="append", metavar="PATH=DELTA",
                    help="a further parameter and its tolerance, e.g. field=2kV/cm")
+    t.add_argument("--growth-rate", metavar="RATE",
+                   help="growth-rate error scaling every layer of a material together, "
+                        "e.g. 2%% (default: none)")
     t.add_argument("--monte-carlo", type=int, default=0, metavar="N",
                    help="number of random designs (default 0: none)")
     t.add_argument("--seed", type=int, default=1,
@@ -101,6 +110,8 @@ def register(subparsers) -> None:
     t.add_argument("--distribution", default="normal", choices=["normal", "uniform"],
                    help="normal: tolerance = 1 sigma (default); uniform: on ±tolerance")
     t.add_argument("--json", action="store_true")
+    t.add_argument("--png", metavar="FILE",
+                   help="write a histogram of the Monte Carlo wavelengths (needs --monte-carlo)")
     add_unit_option(t)
     _add_parallel(t)
     add_self_consistent_option(t)
@@ -147,20 +158,55 @@ def cmd_size(args) -> int:
             raise QwellError("--from and --to go together; give both or neither")
         bounds = (parse_parameter_value(p, args.lo), parse_parameter_value(p, args.hi))
         _check_range_work(stack, p, bounds)
+    if args.round_ml and not args.write:
+        raise QwellError("--round-ml goes with --write FILE (the whole-monolayer options are "
+                         "listed without it)")
+    if args.round_ml and (p.kind != "thickness" or not p.monolayer_nm):
+        raise QwellError(f"--round-ml: {p.path} is not a thickness of a layer with a lattice "
+                         "constant; expected a LAYER.thickness of a crystal layer")
     if args.write:
         if Path(args.write).exists() and Path(args.write).resolve() == Path(args.stack).resolve():
             raise QwellError(f"--write {args.write}: refusing to overwrite the input stack file")
     res = size(stack, p.path, target, args.transition, bounds=bounds, emitter=args.emitter,
                **parallel)
+    written = None
     if args.write:
-        atomic_write_text(args.write, dump_stack_yaml(res.stack.raw), protect=[args.stack])
+        written = _write_sized(args, stack, p, res)
     if args.json:
-        print_json(size_json(res, args.unit))
+        out = size_json(res, args.unit)
+        if written is not None:
+            out["written"] = written
+        print_json(out)
         return 0
     print_size(stack, p, target, res, args.unit)
-    if args.write:
-        print(f"wrote {args.write}")
+    if written is not None:
+        u = line_unit(target, args.unit)
+        if written["monolayers"] is None:
+            print(f"wrote {args.write}: {p.path} = {written['value']!r}{unit_text(p.unit)}")
+        else:
+            print(f"wrote {args.write}: {p.path} = {written['monolayers']} ML "
+                  f"({written['value']:.4f} nm)  ->  {res.transition} at "
+                  f"{format_line(written['energy_eV'], u)} "
+                  f"({fmt(written['energy_eV'], '.6f')} eV)")
     return 0
+
+
+def _write_sized(args, stack, p, res) -> dict:
+    """Write the sized value into the input's own text (optionally whole monolayers)."""
+    text = Path(args.stack).read_text(encoding="utf-8")
+    value, ml, lam, energy = res.value, None, res.wavelength_um, res.energy_eV
+    if args.round_ml:
+        if not res.monolayer_options:
+            raise QwellError(f"--round-ml: no whole-monolayer option of {p.path} near "
+                             f"{res.value:.6g} nm")
+        best = min(res.monolayer_options, key=lambda o: abs(o.thickness_nm - res.value))
+        value, ml, lam, energy = best.thickness_nm, best.monolayers, best.wavelength_um, \
+            best.energy_eV
+    edited = edit_stack_text(stack, text, {p.path: value},
+                             monolayers={p.path: ml} if ml is not None else None)
+    atomic_write_text(args.write, edited, protect=[args.stack])
+    return {"file": str(args.write), "parameter": p.path, "value": value, "monolayers": ml,
+            "wavelength_um": lam, "energy_eV": energy}
 
 
 def _em(pairs, key, spec) -> str:
@@ -451,13 +497,29 @@ def cmd_tolerance(args) -> int:
                      args)
     if not 0 <= args.seed <= MAX_SEED:
         raise QwellError(f"--seed {args.seed}: expected a whole number from 0 to {MAX_SEED}")
-    res = tolerance(stack, args.transition, thick, comp, extra,
+    rate = None
+    if args.growth_rate is not None:
+        try:
+            parse_growth_rate(args.growth_rate)
+        except ParameterError as exc:
+            raise QwellError(f"--growth-rate {args.growth_rate}: {exc}") from None
+        rate = args.growth_rate
+    if args.png:
+        if not args.monte_carlo:
+            raise QwellError(f"--png {args.png}: the histogram needs a Monte Carlo run; add "
+                             "--monte-carlo N")
+        check_figure_target(args.png)
+    res = tolerance(stack, args.transition, thick, comp, extra, growth_rate=rate,
                     monte_carlo=args.monte_carlo or 0, seed=args.seed,
                     distribution=args.distribution, **parallel)
+    if args.png:
+        res.plot(args.png, protect=[args.stack], title=stack.name)
     if args.json:
         print_json(tolerance_json(res, args.unit))
         return 0
     print_tolerance(stack, res, args.unit)
+    if args.png:
+        print(f"wrote {args.png}")
     return 0
 
 
@@ -467,7 +529,7 @@ def _um_line(lam_um: float, unit: str) -> str:
 
 
 def print_tolerance(stack, res, unit: str | None = None) -> None:
-    """Contributions, worst case, root-sum-square, Monte Carlo statistics, notes.
+    """One-at-a-time rows, correlated groups, both views side by side, Monte Carlo, notes.
 
     Lines are in ``unit`` (default: the nominal line's spectral region), spreads in its
     spread unit (nm, µm, cm⁻¹, GHz for THz lines, meV).
@@ -475,31 +537,76 @@ def print_tolerance(stack, res, unit: str | None = None) -> None:
     e0 = res.nominal_energy_eV
     u = line_unit(e0, unit)
     su = unit_label(spread_unit(u))
+
+    def spread(d, sign="+"):
+        return format_spread(d, e0, u, sign=sign, with_unit=False)
+
     print(f"{stack.name}: {res.transition} at {format_line(e0, u)} ({energy_text(e0, u)})")
     rows = [[c.parameter, f"{c.value:.6g}{unit_text(c.unit)}",
              f"±{c.delta:.4g}{unit_text(c.unit)} ({c.spec})",
              _um_line(c.wavelength_minus_um, u), _um_line(c.wavelength_plus_um, u),
-             format_spread(c.contribution_nm, e0, u, sign="+", with_unit=False)]
-            for c in res.contributions]
+             spread(c.contribution_nm)] for c in res.contributions]
+    print("\nOne at a time (each parameter alone)")
     print(table(rows, ["parameter", "nominal", "tolerance", column(u, "(-)"), column(u, "(+)"),
                        f"contribution {su}"], ["<", ">", "<", ">", ">", ">"]))
+    if res.groups:
+        grows = [[g.name, _members(g.members), f"±{g.spec}", _um_line(g.wavelength_minus_um, u),
+                  _um_line(g.wavelength_plus_um, u), spread(g.contribution_nm),
+                  spread(g.members_sum_nm)] for g in res.groups]
+        print("\nCorrelated (every layer of one composition, or of one material for the growth "
+              "rate, moves together)")
+        print(table(grows, ["error source", "layers", "tolerance", column(u, "(-)"),
+                            column(u, "(+)"), f"contribution {su}", f"sum alone {su}"],
+                    ["<", "<", "<", ">", ">", ">", ">"]))
+    iw, cw = spread(res.independent_worst_case_nm, "±"), spread(res.worst_case_nm, "±")
+    ir, cr = spread(res.independent_rss_nm, "±"), spread(res.rss_nm, "±")
+    w = max(len(iw), len(cw), len(ir), len(cr))
+    print(f"\n{'':17}  {'independent':>{w + 1 + len(su)}}  {'correlated':>{w + 1 + len(su)}}")
+    print(f"{'worst case':17}  {iw:>{w}} {su}  {cw:>{w}} {su}  (sum of |contributions|; "
+          "correlated used)")
+    print(f"{'root-sum-square':17}  {ir:>{w}} {su}  {cr:>{w}} {su}  (a correlated group is one "
+          "term)")
     corners = sorted(float(from_eV(energy_of_um(x), u)) if x and x > 0 else math.nan
                      for x in (res.corner_min_um, res.corner_max_um))
-    print(f"\nworst case: {format_spread(res.worst_case_nm, e0, u, sign='±')} (sum of "
-          f"|contributions|); corner designs {fmt(corners[0], _LINE_SPEC[u])} .. "
+    print(f"worst-case corner designs (correlated): {fmt(corners[0], _LINE_SPEC[u])} .. "
           f"{fmt(corners[1], _LINE_SPEC[u])} {unit_label(u)}")
-    print(f"root-sum-square: {format_spread(res.rss_nm, e0, u, sign='±')}")
     mc = res.monte_carlo
     if mc is not None:
         sigma = ("each tolerance taken as 1 sigma of a Gaussian" if mc.distribution == "normal"
-                 else "each parameter uniform on ±tolerance")
-        pct = dict(mc.percentiles_um)
+                 else "each error uniform on ±tolerance")
+        pct = dict(mc.percentile_range_um)
         if u not in ("nm", "um"):  # a decreasing measure: its k-th percentile is λ's (100-k)-th
-            pct = {k: pct.get(100 - k, math.nan) for k in pct}
-        print(f"Monte Carlo ({mc.samples} designs, {sigma}, seed {mc.seed}): mean "
-              f"{_um_line(mc.mean_um, u)} {unit_label(u)}"
+            pct = {k: tuple(reversed(pct.get(100 - k, (math.nan, math.nan)))) for k in pct}
+        print(f"Monte Carlo ({mc.samples} designs, correlated errors, {sigma}, seed {mc.seed}): "
+              f"mean {_um_line(mc.mean_um, u)} {unit_label(u)}"
               f"{'' if u in ('nm', 'um') else ' (of the wavelengths)'}, std "
-              f"{format_spread(mc.std_nm, e0, u, sign='±')[1:]}, percentiles "
-              + ", ".join(f"{k}%: {_um_line(v, u)} {unit_label(u)}" for k, v in pct.items()))
+              f"{format_spread(mc.std_nm, e0, u, sign='±')[1:]}"
+              + (f" over the {mc.valid} designs with the line" if mc.lost else ""))
+        print("  percentiles over all designs: "
+              + ", ".join(f"{k}%: {_pct_text(lo, hi, u)}" for k, (lo, hi) in pct.items()))
+        if mc.lost:
+            print(f"  lost: {mc.lost} of {mc.samples} designs "
+                  f"({100.0 * mc.lost / mc.samples:.3g} %) have no {res.transition}: "
+                  + "; ".join(f"{why} ({n})" for why, n in mc.lost_reasons)
+                  + "; each percentile is given from the lost designs ranked at the short to "
+                    "ranked at the long end")
     for n in res.notes:
         print(f"note: {n}")
+
+
+def _members(paths, limit: int = 3) -> str:
+    names = [p.rsplit(".", 1)[0] for p in paths]
+    if len(names) <= limit:
+        return ", ".join(names)
+    return ", ".join(names[:limit]) + f" … ({len(names)} layers)"
+
+
+def _pct_text(lo: float, hi: float, unit: str = "um") -> str:
+    """A percentile over all designs [wavelengths in µm], written in ``unit``: one value, or
+    the range the lost designs leave open."""
+    label = unit_label(unit)
+    if math.isfinite(lo) and lo == hi:
+        return f"{_um_line(lo, unit)} {label}"
+    a = _um_line(lo, unit) if math.isfinite(lo) else "lost"
+    b = _um_line(hi, unit) if math.isfinite(hi) else "lost"
+    return f"{a} .. {b} {label}"

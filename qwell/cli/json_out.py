@@ -430,7 +430,13 @@ def monte_carlo_json(mc, energy_eV: float | None = None) -> dict:
             "seed": mc.seed, "mean_um": _finite(mc.mean_um), "std_nm": _finite(mc.std_nm),
             **std,
             "percentiles_um": {str(k): _finite(v) for k, v in mc.percentiles_um.items()},
-            "clipped": mc.clipped}
+            "clipped": mc.clipped, "lost": mc.lost,
+            "lost_fraction": (mc.lost / mc.samples) if mc.samples else None,
+            "lost_reasons": [{"what": w, "designs": n} for w, n in mc.lost_reasons],
+            "percentile_range_um": {str(k): [_finite(lo), _finite(hi)]
+                                    for k, (lo, hi) in mc.percentile_range_um.items()},
+            "percentiles_over": "all samples; the lost ones ranked at either end give the range",
+            "model": "correlated: one draw per composition group and per growth-rate group"}
 
 
 def tolerance_json(res, unit: str | None = None) -> dict:
@@ -459,10 +465,22 @@ def tolerance_json(res, unit: str | None = None) -> dict:
                            "contribution_nm": _finite(c.contribution_nm),
                            **spreads(c.contribution_nm, "contribution_")}
                           for c in res.contributions],
+        "groups": [{"name": g.name, "kind": g.kind, "members": list(g.members), "spec": g.spec,
+                    "wavelength_plus_um": _finite(g.wavelength_plus_um),
+                    "wavelength_minus_um": _finite(g.wavelength_minus_um),
+                    "contribution_nm": _finite(g.contribution_nm),
+                    **spreads(g.contribution_nm, "contribution_"),
+                    "members_sum_nm": _finite(g.members_sum_nm)} for g in res.groups],
+        "growth_rate": res.growth_rate,
         "worst_case": {"sum_nm": _finite(res.worst_case_nm), **spreads(res.worst_case_nm, "sum_"),
+                       "view": "correlated",
                        "corner_min_um": _finite(res.corner_min_um),
                        "corner_max_um": _finite(res.corner_max_um)},
         "rss_nm": _finite(res.rss_nm), **spreads(res.rss_nm, "rss_"),
+        "independent": {"worst_case_nm": _finite(res.independent_worst_case_nm),
+                        **spreads(res.independent_worst_case_nm, "worst_case_"),
+                        "rss_nm": _finite(res.independent_rss_nm),
+                        **spreads(res.independent_rss_nm, "rss_")},
         "monte_carlo": (None if res.monte_carlo is None
                         else monte_carlo_json(res.monte_carlo, e0)),
         "notes": list(res.notes),

@@ -13,7 +13,9 @@ One topic per module:
 * :mod:`.sweeps`: :func:`sweep` (1-D and 2-D grids);
 * :mod:`.crossings`: :func:`find_anticrossings` (minimum gaps of neighbouring states);
 * :mod:`.tolerances`: :func:`tolerance` (worst case, corners, RSS, Monte
-  Carlo) and :func:`sensitivities` (± shifts of several transitions).
+  Carlo) and :func:`sensitivities` (± shifts of several transitions);
+* :mod:`.growth`: correlated growth errors (composition and growth-rate
+  groups); :mod:`.histogram`: the Monte Carlo histogram.
 
 Wavelength sensitivities are given in engineering units: nm of wavelength
 per monolayer (thickness; per nm when the layer has no lattice constant), per
@@ -28,7 +30,9 @@ from .crossings import Anticrossing, find_anticrossings
 from .evaluate import DesignPoint, bands_for_transitions, design_point, evaluate_many
 from .sizing import MonolayerOption, SizeResult, size
 from .sweeps import SweepResult, sweep
-from .tolerances import (Contribution, MonteCarloSummary, Sensitivity, SensitivityResult,
+from .growth import CorrelatedGroup, parse_growth_rate
+from .histogram import plot_monte_carlo
+from .tolerances import (Contribution, GroupContribution, MonteCarloSummary, Sensitivity, SensitivityResult,
                         ToleranceResult, parse_parameter_value, sensitivities, tolerance)
 
 __all__ = [
@@ -40,6 +44,8 @@ __all__ = [
     "Anticrossing",
     "find_anticrossings",
     "Contribution",
+    "GroupContribution",
+    "CorrelatedGroup",
     "MonteCarloSummary",
     "ToleranceResult",
     "Sensitivity",
@@ -56,5 +62,7 @@ __all__ = [
     "tolerance",
     "sensitivities",
     "parse_parameter_value",
+    "parse_growth_rate",
+    "plot_monte_carlo",
     "KINDS",
 ]

@@ -183,7 +183,7 @@ class SweepResult:
 
         def axis_label(i):
             u = self.units[i]
-            return self.parameters[i] + ("" if u == "fraction" else f" [{u}]")
+            return self.parameters[i] + ("" if u == "fraction" else f" ({u})")
 
         styles = ["-", "--", "-.", ":"]
         colors = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000"]
@@ -203,8 +203,8 @@ class SweepResult:
             for k, lab in enumerate(self.state_labels):
                 ax2.plot(x, self.state_energy_shown(lab), styles[k % 4], color=colors[k % 7],
                          lw=1.4, label=lab)
-            ax2.set_ylabel("state energy [eV]" if not self.reference
-                           else f"state energy from the {self.reference} edge [eV]")
+            ax2.set_ylabel("state energy (eV)" if not self.reference
+                           else f"state energy from the {self.reference} edge (eV)")
             for a in self.anticrossings:  # the closest approach, with its gap
                 ax2.axvline(a.value, color="0.5", ls=":", lw=0.9)
                 lo_e = np.interp(a.value, x, self.state_energy_shown(a.lower))

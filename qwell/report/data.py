@@ -19,6 +19,7 @@ from dataclasses import dataclass
 
 from .. import design
 from ..constants import HC_EV_UM
+from ..diagram import miniband_groups
 from ..errors import QwellError, QwellWarning
 from ..levels import Solution, compare_methods, prepare_profile, solve_profile
 from ..lifetimes import Lifetimes, solution_lifetimes
@@ -139,10 +140,22 @@ def default_transitions(solution) -> tuple:
 
     The strongest intersubband line from the ground state (flagged
     ``strongest`` by :mod:`qwell.optics`) and the fundamental interband line
-    ``e1-hh1``, when they exist.
+    ``e1-hh1``, when they exist.  A line between two states of one
+    miniband of a long repeat block (wavelengths of mm) is never chosen: the
+    strongest line from the ground state out of its miniband is taken instead.
     """
     out = []
-    inter = [t for t in solution.transitions if t.kind == "intersubband" and t.strongest]
+    group = _miniband_of(solution)
+    inter = [t for t in solution.transitions if t.kind == "intersubband" and t.strongest
+             and not _intra_miniband(t, group)]
+    if not inter:
+        # the flagged line lies inside one miniband (a long repeat block): take the strongest
+        # line from the ground state to another miniband or state instead
+        cands = [t for t in solution.transitions if t.kind == "intersubband"
+                 and not _intra_miniband(t, group) and t.oscillator_strength is not None
+                 and t.initial in ("e1", "hh1")]
+        if cands:
+            inter = [max(cands, key=lambda t: abs(t.oscillator_strength))]
     if inter:
         out.append(inter[0])
     for name in ("e1-hh1",):
@@ -151,6 +164,24 @@ def default_transitions(solution) -> tuple:
                 out.append(t)
                 break
     return tuple(out)
+
+
+def _miniband_of(solution) -> dict:
+    """State label -> index of the grouped miniband holding it (states of long repeats)."""
+    out = {}
+    k = 0
+    for lev in solution.levels.values():
+        for mb, states in miniband_groups(lev):
+            if mb is not None:
+                out.update({s.label: k for s in states})
+                k += 1
+    return out
+
+
+def _intra_miniband(t, group: dict) -> bool:
+    """Whether both states of a transition lie in one miniband (not a line to review)."""
+    a, b = group.get(t.initial), group.get(t.final)
+    return a is not None and a == b
 
 
 # ---------------------------------------------------------------------------
