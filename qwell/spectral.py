@@ -26,7 +26,8 @@ import numpy as np
 from .constants import EV_PER_CM1, EV_PER_THZ, HC_EV_NM, HC_EV_UM
 from .errors import QwellError
 
-__all__ = ["UNITS", "SPREAD_UNITS", "LINE_SPEC", "SPREAD_SPEC", "energy_of_um", "parse_unit", "auto_unit", "line_unit", "from_eV",
+__all__ = [
+    "axis_label","UNITS", "SPREAD_UNITS", "LINE_SPEC", "SPREAD_SPEC", "energy_of_um", "parse_unit", "auto_unit", "line_unit", "from_eV",
            "spread_from_nm", "spread_unit", "measures", "spread_measures", "format_line",
            "format_spread", "energy_text", "unit_label", "column", "UnitChoiceError", "NEAR_IR_LIMIT_UM",
            "FAR_IR_LIMIT_UM"]
@@ -188,6 +189,14 @@ def column(unit: str, mark: str = "") -> str:
     """Table heading of a line in ``unit``: 'λ µm', 'ν(-) THz', '1/λ cm⁻¹', 'E meV'."""
     unit = parse_unit(unit)
     return f"{_SYMBOLS[unit]}{mark} {unit_label(unit)}"
+
+
+def axis_label(unit: str) -> str:
+    """Plot-axis label of a line in ``unit``: 'wavelength (µm)', 'frequency (THz)', ..."""
+    unit = parse_unit(unit)
+    what = {"nm": "wavelength", "um": "wavelength", "cm-1": "wavenumber", "THz": "frequency",
+            "meV": "photon energy"}[unit]
+    return f"{what} ({unit_label(unit)})"
 
 
 def unit_label(unit: str) -> str:

@@ -513,7 +513,7 @@ def cmd_tolerance(args) -> int:
                     monte_carlo=args.monte_carlo or 0, seed=args.seed,
                     distribution=args.distribution, **parallel)
     if args.png:
-        res.plot(args.png, protect=[args.stack], title=stack.name)
+        res.plot(args.png, protect=[args.stack], title=stack.name, unit=args.unit)
     if args.json:
         print_json(tolerance_json(res, args.unit))
         return 0

@@ -13,6 +13,7 @@ import numpy as np
 from ..errors import ParameterError
 from ..fileio import atomic_savefig
 from ..optics import canonical_transition
+from ..spectral import axis_label as line_axis_label
 from ..spectral import (auto_unit, from_eV, parse_unit, spread_from_nm, spread_unit,
                         unit_label)
 from ..levels import stack_profile
@@ -195,7 +196,7 @@ class SweepResult:
             for k, t in enumerate(self.transitions):
                 ax.plot(x, self.line_in(t, unit), styles[k % 4], color=colors[k % 7], lw=1.8,
                         label=t)
-            ax.set_ylabel(_axis_name(unit))
+            ax.set_ylabel(line_axis_label(unit))
             if self.transitions:
                 ax.legend(loc="best")
             ax.grid(alpha=0.3)
@@ -243,7 +244,7 @@ class SweepResult:
             masked = np.ma.masked_invalid(lam)
             mesh = ax.pcolormesh(X, Y, masked, shading="auto", cmap="cividis")
             cb = fig.colorbar(mesh, ax=ax)
-            cb.set_label(f"{t} {_axis_name(unit)}")
+            cb.set_label(f"{t} {line_axis_label(unit)}")
             if np.isfinite(lam).sum() >= 4 and min(lam.shape) >= 2:
                 cs = ax.contour(X, Y, masked, colors="white", linewidths=0.9)
                 ax.clabel(cs, fmt=f"%.4g {ulab}", fontsize=8)
@@ -277,13 +278,6 @@ def _cell_edges(values) -> np.ndarray:
         return np.array([v[0] - 0.5, v[0] + 0.5])
     mid = 0.5 * (v[1:] + v[:-1])
     return np.concatenate([[v[0] - (mid[0] - v[0])], mid, [v[-1] + (v[-1] - mid[-1])]])
-
-
-def _axis_name(unit: str) -> str:
-    """Axis label of a line in ``unit``: 'wavelength [µm]', 'frequency [THz]', ..."""
-    what = {"nm": "wavelength", "um": "wavelength", "cm-1": "wavenumber", "THz": "frequency",
-            "meV": "photon energy"}[unit]
-    return f"{what} [{unit_label(unit)}]"
 
 
 def _as_values(p: Parameter, values) -> np.ndarray:

@@ -207,9 +207,9 @@ class ToleranceResult:
     independent_rss_nm: float = math.nan
     growth_rate: float = 0.0
 
-    def plot(self, path, *, protect=(), title: str | None = None):
+    def plot(self, path, *, protect=(), title: str | None = None, unit: str | None = None):
         """Histogram PNG of the Monte Carlo (see :func:`qwell.design.histogram.plot_monte_carlo`)."""
-        return plot_monte_carlo(self, path, protect=protect, title=title)
+        return plot_monte_carlo(self, path, protect=protect, title=title, unit=unit)
 
 
 def parse_parameter_value(p: Parameter, value, *, delta: bool = False) -> float:
