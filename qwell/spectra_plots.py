@@ -72,20 +72,22 @@ def pick_densities(table, count: int = 3):
 
 
 def draw_gain_spectra(ax, table, indices=None):
-    """Gain [cm^-1] vs wavelength [um] at some densities of a GainTable."""
+    """Gain [cm^-1] vs wavelength (nm below 2 µm, else µm) at some densities of a GainTable."""
     idx = pick_densities(table) if indices is None else list(indices)
-    lam = table.wavelength_um
+    # the unit of the region: nm below 2 µm (a laser well), µm beyond
+    scale, unit = (1e3, "nm") if float(np.nanmax(table.wavelength_um)) < 2.0 else (1.0, "µm")
+    lam = table.wavelength_um * scale
     pol = table.polarisation.upper()
     g_all = table.gain_te_cm1 if table.polarisation == "te" else table.gain_tm_cm1
     for k, i in enumerate(idx):
         ax.plot(lam, g_all[i], color=_COLOURS[k % 5], ls=_STYLES[k % 5], lw=1.6,
                 label=f"{table.densities_cm2[i]:.2g} cm$^{{-2}}$")
         if table.peak_gain_cm1[i] > 0:
-            ax.plot([table.peak_wavelength_um[i]], [table.peak_gain_cm1[i]], marker="o", ms=4,
+            ax.plot([table.peak_wavelength_um[i] * scale], [table.peak_gain_cm1[i]], marker="o", ms=4,
                     color=_COLOURS[k % 5])
     ax.axhline(0.0, color="0.3", lw=0.8)
     ax.set_xlim(float(lam.min()), float(lam.max()))
-    ax.set_xlabel("wavelength (µm)")
+    ax.set_xlabel(f"wavelength ({unit})")
     ax.set_ylabel(f"material gain, {pol} (cm$^{{-1}}$)")
     ax.grid(True, color="0.88", lw=0.6, zorder=0)
     ax.legend(loc="lower right", fontsize=8, frameon=False, title="injected n = p",

@@ -437,6 +437,21 @@ def state_blocks(data: ReportData) -> list:
     return blocks
 
 
+def _table_unit(data: ReportData, lines) -> str:
+    """Unit of a table's line column: the user's ``--unit``, else a wavelength in the unit of
+    the lines' spectral region (nm below 2 µm, else µm)."""
+    if data.photon_unit:
+        return data.photon_unit
+    energies = sorted(t.energy_eV for t in lines)
+    return "nm" if auto_unit(energies[len(energies) // 2]) == "nm" else "um"
+
+
+def _column_head(unit: str) -> str:
+    """'λ\n(nm)', 'ν\n(THz)', ...: a table heading over two lines."""
+    symbol, label = column(unit).split(" ", 1)
+    return f"{symbol}\n({label})"
+
+
 def transition_blocks(data: ReportData) -> list:
     """Page 5: transitions with energies, wavelengths and strengths."""
     blocks = [Heading("Optical transitions")]
@@ -445,18 +460,22 @@ def transition_blocks(data: ReportData) -> list:
     inter = [t for t in trans if t.kind == "intersubband"]
     band = [t for t in trans if t.kind == "interband"]
     if inter:
+        u = _table_unit(data, inter)
         rows = [[("» " if t.name in chosen else "") + t.name, f"{t.energy_eV:.6f}",
-                 f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}", f"{t.frequency_THz:.3f}",
+                 format_line(t.energy_eV, u, with_unit=False), f"{t.wavenumber_cm1:.2f}",
+                 f"{t.frequency_THz:.3f}",
                  _f(t.dipole_nm, ".4f"), _f(t.oscillator_strength, ".4f")] for t in inter]
-        blocks.append(Table(["transition", "energy\n(eV)", "λ\n(µm)", "wavenumber\n(cm⁻¹)",
+        blocks.append(Table(["transition", "energy\n(eV)", _column_head(u), "wavenumber\n(cm⁻¹)",
                              "frequency\n(THz)", "dipole\n|⟨i|z|j⟩| (nm)", "oscillator\nstrength f"],
                             rows, ["l"] + ["r"] * 6,
                             title="Intersubband (strongest first)"))
     if band:
+        u = _table_unit(data, band)
         rows = [[("» " if t.name in chosen else "") + t.name, f"{t.energy_eV:.6f}",
-                 f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}", _f(t.overlap, ".4f"),
+                 format_line(t.energy_eV, u, with_unit=False), f"{t.wavenumber_cm1:.2f}",
+                 _f(t.overlap, ".4f"),
                  _f(t.te, ".4f"), _f(t.tm, ".4f"), "yes" if t.strongest else ""] for t in band]
-        blocks.append(Table(["transition", "energy\n(eV)", "λ\n(µm)", "wavenumber\n(cm⁻¹)",
+        blocks.append(Table(["transition", "energy\n(eV)", _column_head(u), "wavenumber\n(cm⁻¹)",
                              "overlap\n|⟨e|h⟩|²", "TE", "TM", "Δn = 0"], rows,
                             ["l"] + ["r"] * 6 + ["l"], title="Interband (strongest first)"))
     if not trans:
