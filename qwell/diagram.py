@@ -8,14 +8,20 @@ What is drawn
   labelled with their names and materials in a strip above the plot
   (horizontal when the text fits the layer, rotated otherwise; layers too
   narrow even for rotated text are listed under the plot);
-* each state's ``|psi|^2`` drawn on a baseline at the state energy, in the
-  direction of increasing carrier energy (up for electrons, down for holes),
-  scaled so that neighbouring states do not collide: the peak height is a
-  fraction of the smallest level spacing in the panel;
-* state labels (``e1``, ``hh1``, ...) in a column right of the plot, pushed
-  apart so they never overlap (:func:`spread_positions`), with leader lines;
-* the chosen transitions as arrows, labelled with name and wavelength,
-  staggered so the labels do not overlap.
+* each state's ``|psi|^2`` in its own colour (:data:`STATE_COLOURS`) on a
+  baseline at the state energy, in the direction of increasing carrier
+  energy (up for electrons, down for holes), on one scale per panel: the
+  largest peak is a fixed fraction of the panel's energy span, so it stays
+  clearly visible in multi-well stacks (not shrunk to the smallest spacing);
+* the state's label at the peak of its ``|psi|^2`` (where it overlaps no other
+  label), and every label in a column right of the plot, pushed apart so they
+  never overlap (:func:`spread_positions`), with leader lines;
+* minibands of repeated periods (:func:`miniband_groups`) shaded as bands in
+  their colour, with only their bottom, middle and top states drawn and a
+  note saying how many states are shown;
+* the chosen transitions as arrows above their labels (a label never hides
+  its arrow), labelled with name and wavelength, staggered so the labels do
+  not overlap.
 
 When conduction and valence states are far apart in energy (an interband
 design, gap ~1 eV), the figure uses two panels sharing the z axis:
@@ -37,13 +43,15 @@ import numpy as np
 from .bands import band_of_label
 from .fileio import atomic_write_bytes
 from .plots import BAND_STYLE, shade_layers
+from .spectral import auto_unit, from_eV, unit_label
 
 __all__ = [
     "DIAGRAM_SIZE_IN",
     "DIAGRAM_DPI",
     "DiagramInfo",
     "spread_positions",
-    "wavefunction_amplitude_eV",
+    "STATE_COLOURS",
+    "miniband_groups",
     "hole_bands_shown",
     "draw_band_diagram",
     "band_diagram_figure",
@@ -59,6 +67,16 @@ _HOLE_BANDS = ("heavy_hole", "light_hole")
 _FONT = 8.0          # label font size [pt]
 _TICK_FONT = 8.0
 _PSI_CUT = 0.01      # |psi|^2 below this fraction of its peak is not drawn
+_PSI_HEIGHT = 0.15   # the largest |psi|^2 of a panel is drawn this fraction of its span high
+_GROUP_MIN = 4       # a miniband holding this many states or more is drawn as a group
+_GROUP_DRAWN = 3     # states drawn (and labelled) per grouped miniband: bottom, middle, top
+
+#: One colour per state, cycled in energy order within a panel (our own choice: dark,
+#: saturated hues that stay apart on white and in greyscale print by their lightness).
+STATE_COLOURS = ("#1b4f9c", "#c0392b", "#1e8449", "#8e44ad", "#b9770e", "#117a8b",
+                 "#7b241c", "#5d6d7e", "#a93226", "#196f3d")
+#: Line style of a band's states (the band-edge styles of BAND_STYLE tell the edges apart).
+_STATE_STYLE = {"conduction": "-", "heavy_hole": "--", "light_hole": ":"}
 
 
 @dataclass(frozen=True)
@@ -79,6 +97,12 @@ class DiagramInfo:
         Layers too narrow to carry a label in the strip (listed under the plot).
     axes : tuple
         The matplotlib axes of the energy panels (top to bottom).
+    states_drawn : int
+        States whose ``|psi|^2`` was drawn.
+    states_total : int
+        States of the solution (grouped minibands draw a representative few).
+    groups : tuple of str
+        Grouped minibands, e.g. ``'e1–e50: 50 states, 3 drawn'``.
     """
 
     panels: tuple
@@ -88,6 +112,9 @@ class DiagramInfo:
     unlabelled_layers: tuple
     axes: tuple
     fermi_label: str | None = None
+    states_drawn: int = 0
+    states_total: int = 0
+    groups: tuple = ()
 
 
 # ---------------------------------------------------------------------------
@@ -151,24 +178,6 @@ def spread_positions(values, min_gap: float, lo: float = -math.inf, hi: float = 
     return out
 
 
-def wavefunction_amplitude_eV(energies_eV, span_eV: float, *, fraction: float = 0.8,
-                              floor: float = 0.035, ceiling: float = 0.22) -> float:
-    """Peak height [eV] of the drawn ``|psi|^2`` for the states of one panel.
-
-    ``fraction`` times the smallest spacing between the energies, so that a
-    state's curve stays below its upper neighbour's baseline, bounded to
-    ``[floor, ceiling]`` times the panel's energy span so that a lone state
-    or a near-degenerate doublet stays visible.
-    """
-    e = np.sort(np.asarray(energies_eV, dtype=float))
-    span = abs(float(span_eV)) or 1.0
-    if e.size < 2:
-        gap = ceiling * span / fraction
-    else:
-        gap = float(np.min(np.diff(e)))
-    return float(np.clip(fraction * gap, floor * span, ceiling * span))
-
-
 def hole_bands_shown(levels, transitions) -> bool:
     """Whether the hole edges "matter": a chosen transition involves holes, or only holes have states."""
     if any(getattr(t, "kind", "") == "interband" for t in transitions):
@@ -177,6 +186,45 @@ def hole_bands_shown(levels, transitions) -> bool:
     has_e = cond is not None and len(cond.states) > 0
     has_h = any(b in levels and len(levels[b].states) for b in _HOLE_BANDS)
     return has_h and not has_e
+
+
+def miniband_groups(lev, min_states: int = _GROUP_MIN) -> list:
+    """States of one band's Levels grouped by the miniband (Bloch) they lie in.
+
+    Returns ``[(miniband or None, [states])]`` in energy order: one entry per
+    miniband holding at least ``min_states`` states of the finite stack (a
+    long repeat block), and a one-state entry for every other state.
+    """
+    states = list(getattr(lev, "states", ()))
+    out, used = [], set()
+    for mb in getattr(lev, "minibands", ()) or ():
+        lo, hi = sorted((mb.bottom_eV, mb.top_eV))
+        tol = 1e-6 + 1e-3 * abs(hi - lo)
+        inside = [s for s in states if lo - tol <= s.energy_eV <= hi + tol
+                  and s.label not in used]
+        if len(inside) >= min_states:
+            out.append((mb, inside))
+            used.update(s.label for s in inside)
+    for s in states:
+        if s.label not in used:
+            out.append((None, [s]))
+    out.sort(key=lambda g: min(_carrier(s) for s in g[1]))
+    return out
+
+
+def _carrier(state) -> float:
+    """Carrier-convention energy of a state (up for electrons, down the diagram for holes)."""
+    e = getattr(state, "carrier_energy_eV", None)
+    return float(state.energy_eV if e is None else e)
+
+
+def _representatives(states, n: int = _GROUP_DRAWN) -> list:
+    """Bottom, middle and top states (carrier-energy order) of a grouped miniband."""
+    order = sorted(states, key=_carrier)
+    if len(order) <= n:
+        return order
+    idx = sorted({round(k * (len(order) - 1) / (n - 1)) for k in range(n)})
+    return [order[i] for i in idx]
 
 
 # ---------------------------------------------------------------------------
@@ -221,8 +269,12 @@ def _wrap_words(fig, text, width_pt, size):
     return lines
 
 
-def _state_curve(state, band_sign, amp_eV, zlo, zhi):
-    """(z, y, z_extent) of the drawn |psi|^2 curve of a state, or None without psi."""
+def _state_curve(state, band_sign, amp_eV, zlo, zhi, *, absolute: bool = False):
+    """(z, y) of the drawn |psi|^2 curve of a state, or None without psi.
+
+    ``amp_eV`` is the height of the state's own peak, or with ``absolute``
+    the height per unit |psi|^2 [eV nm] (one scale for every state of a panel).
+    """
     if state.z_nm is None or state.psi is None:
         return None
     z = np.asarray(state.z_nm, dtype=float)
@@ -236,8 +288,49 @@ def _state_curve(state, band_sign, amp_eV, zlo, zhi):
     idx = np.nonzero(keep)[0]
     sl = slice(idx[0], idx[-1] + 1)
     zz = z[sl]
-    yy = state.energy_eV + band_sign * amp_eV * p2[sl] / peak
+    yy = state.energy_eV + band_sign * amp_eV * p2[sl] / (1.0 if absolute else peak)
     return zz, yy
+
+
+def _layer_list(labels) -> str:
+    """``'qw (×50), bar'``: the copies of a repeated layer (``name#k``) counted, not listed."""
+    counts: dict = {}
+    for lab in labels:
+        base = lab.split("#", 1)[0]
+        counts[base] = counts.get(base, 0) + 1
+    return ", ".join(b if n == 1 else f"{b} (×{n})" for b, n in counts.items())
+
+
+def _peak_of(state) -> float:
+    """Largest |psi|^2 of a state [1/nm] (0 without a wavefunction)."""
+    if state.psi is None:
+        return 0.0
+    p2 = np.asarray(state.psi, dtype=float) ** 2
+    return float(np.max(p2)) if p2.size else 0.0
+
+
+def _entry_label(mb, states) -> str:
+    """Label of a state (``e1``, ``e3*`` quasi-bound) or of a grouped miniband."""
+    if mb is None:
+        s = states[0]
+        return s.label + ("" if s.bound else "*")
+    return f"{states[0].label}–{states[-1].label} ({len(states)})"
+
+
+def _peak_label(ax, state, zz, yy, colour, fontsize, placed, renderer) -> None:
+    """The state's label at the peak of its drawn |psi|^2, unless it would overlap another."""
+    i = int(np.argmax(np.abs(yy - state.energy_eV)))
+    up = yy[i] >= state.energy_eV
+    t = ax.text(zz[i], yy[i], state.label, fontsize=fontsize - 0.5, color=colour, ha="center",
+                va="bottom" if up else "top", zorder=8, parse_math=False, clip_on=True,
+                bbox=dict(boxstyle="square,pad=0.05", fc="white", ec="none", alpha=0.8))
+    bb = t.get_window_extent(renderer=renderer)
+    ax_bb = ax.get_window_extent(renderer=renderer)
+    inside = ax_bb.x0 <= bb.x0 and bb.x1 <= ax_bb.x1 and ax_bb.y0 <= bb.y0 and bb.y1 <= ax_bb.y1
+    if not inside or any(bb.overlaps(o) for o in placed):
+        t.remove()
+        return
+    placed.append(bb)
 
 
 def _panel_plan(profile, levels, bands_shown, transitions):
@@ -281,7 +374,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
         Band name -> :class:`~qwell.solvers.results.Levels` (exact solver,
         with wavefunctions).
     transitions : sequence of qwell.optics.Transition
-        Transitions drawn as arrows, labelled with name and wavelength [µm].
+        Transitions drawn as arrows, labelled with name and line (nm, µm or THz by region).
     rect : (left, bottom, width, height)
         Area of the figure to use, in figure fractions; axes labels, the
         layer strip and the state-label column fit inside it.
@@ -302,7 +395,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     """
     # matplotlib is heavy: imported when a diagram is drawn, not with qwell.diagram
     from matplotlib.lines import Line2D
-    from matplotlib.patches import ConnectionPatch
+    from matplotlib.patches import ConnectionPatch, Patch
 
     transitions = tuple(transitions)
     fw_pt = fig.get_figwidth() * 72.0
@@ -327,7 +420,15 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     # -- layer strip text plan (measured) ---------------------------------
     z0 = float(profile.layers[0].start_nm)
     z1 = float(profile.layers[-1].end_nm)
-    all_labels = [s.label + ("" if s.bound else "*") for lev in levels.values() for s in lev.states]
+    # one entry per single state or grouped miniband: (band, miniband, states, drawn states)
+    entries = {}
+    for b, lev in levels.items():
+        entries[b] = [(mb, st, st if mb is None else _representatives(st))
+                      for mb, st in miniband_groups(lev)]
+    all_labels = [_entry_label(mb, st) for es in entries.values() for mb, st, _ in es]
+    n_total = sum(len(st) for es in entries.values() for _, st, _ in es)
+    n_draw = sum(len(dr) for es in entries.values() for _, _, dr in es)
+    n_grouped = sum(1 for es in entries.values() for mb, _, _ in es if mb is not None)
     label_w = max([_text_extent_pt(fig, t, fontsize)[0] for t in all_labels] + [20.0])
     margin_l, margin_r = 58.0, 14.0 + label_w + 8.0     # y labels | state-label column
     quasi = any(t.endswith("*") for t in all_labels)
@@ -367,8 +468,11 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
         notes = []
         if quasi:
             notes.append("* quasi-bound state (can escape through a cladding)")
+        if n_grouped:
+            notes.append(f"{n_draw} of {n_total} states drawn: each miniband of the repeated "
+                         f"periods is shaded, with its bottom, middle and top states drawn")
         if unlabelled:
-            notes.append("narrow layers not labelled above: " + ", ".join(unlabelled))
+            notes.append("narrow layers not labelled above: " + _layer_list(unlabelled))
         note_lines = _wrap_words(fig, ";  ".join(notes), width_pt - margin_l - 8.0,
                                  fontsize) if notes else []
         unl_h = (1.3 * fontsize * len(note_lines) + 3.0) if note_lines else 0.0
@@ -393,7 +497,8 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
                 e_all.append(fermi_level_eV)
             lo, hi = (min(e_all), max(e_all)) if e_all else (0.0, 1.0)
             span0 = max(hi - lo, 1e-3)
-            amp = wavefunction_amplitude_eV([s.energy_eV for _, s in states], span0)
+            # one scale for the panel: its largest |psi|^2 peak is _PSI_HEIGHT of the span
+            amp = _PSI_HEIGHT * span0
             up = [s.energy_eV + amp for b, s in states if _sign(b) > 0]
             down = [s.energy_eV - amp for b, s in states if _sign(b) < 0]
             lo2 = min([lo] + down)
@@ -414,7 +519,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
         # more labels than fit in a panel's height: stagger them in columns
         cols = {}
         for p, h in zip(plan, heights):
-            n = len(p['states'])
+            n = sum(len(entries.get(b, [])) for b in p["bands"])
             cols[p['name']] = int(min(4, max(1, math.ceil(n * label_pitch / max(0.95 * h, 1.0)))))
         if cols == n_cols or (_pass == 2 and n_cols):
             break   # the layout above was made for these columns
@@ -449,34 +554,65 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
             p["ax"].plot(profile.z_nm, arr, color=c, ls=ls, lw=1.8, zorder=3)
             if not any(h.get_label() == lab for h in handles):
                 handles.append(Line2D([], [], color=c, ls=ls, lw=1.8, label=lab))
-    handles.append(Line2D([], [], color="0.3", lw=1.0, label="|ψ|² of each state, baseline at its energy"))
+    handles.append(Line2D([], [], color=STATE_COLOURS[0], lw=1.0,
+                          label="|ψ|² of a state, on its energy"))
+    if n_grouped:
+        handles.append(Patch(color=STATE_COLOURS[0], alpha=0.22, lw=0,
+                             label="miniband (shaded)"))
     if transitions:
         handles.append(Line2D([], [], color="black", lw=1.0, marker=">", markersize=4,
-                              label="chosen transition (wavelength)"))
+                              label="chosen line (wavelength)"))
 
-    # -- states and their labels ------------------------------------------------
+    # -- states (one colour each), miniband groups, labels -----------------------------
     drawn_labels = []
     curves = {}
+    peak_boxes = []
+    renderer = fig.canvas.get_renderer()
+    n_drawn = 0
+    group_notes = []
     for p in plan:
         ax = p["ax"]
         ylo, yhi = p["ylim"]
+        pentries = [(b, mb, st, dr) for b in p["bands"] for mb, st, dr in entries.get(b, [])]
+        pentries.sort(key=lambda e: (p["bands"].index(e[0]), min(_carrier(s) for s in e[2])))
+        peaks = [_peak_of(s) for _, _, _, dr in pentries for s in dr]
+        panel_peak = max([v for v in peaks if v > 0] + [0.0]) or 1.0
         lab_y, lab_txt, lab_col, lab_e, lab_sign = [], [], [], [], []
-        for b, s in p["states"]:
-            c, ls, _ = BAND_STYLE[b]
+        for k, (b, mb, st, dr) in enumerate(pentries):
+            col = STATE_COLOURS[k % len(STATE_COLOURS)]
+            ls = _STATE_STYLE.get(b, "-")
             sign = _sign(b)
-            cur = _state_curve(s, sign, p["amp"], z0, z1)
-            if cur is not None:
-                zz, yy = cur
-                ax.plot(zz, yy, color=c, ls=ls if b != "conduction" else "-", lw=1.0, zorder=4)
-                ax.plot([zz[0], zz[-1]], [s.energy_eV, s.energy_eV], color=c, lw=0.6, alpha=0.7,
-                        zorder=4)
-                curves[s.label] = (zz, np.abs(yy - s.energy_eV))
-            else:
-                ax.axhline(s.energy_eV, color=c, lw=0.6, ls=ls, zorder=4)
-            lab_y.append(s.energy_eV)
-            lab_txt.append(s.label if s.bound else f"{s.label}*")
-            lab_col.append(c)
-            lab_e.append(s.energy_eV)
+            zext = []
+            for s in dr:
+                cur = _state_curve(s, sign, p["amp"] / panel_peak, z0, z1, absolute=True)
+                n_drawn += 1
+                if cur is not None:
+                    zz, yy = cur
+                    ax.plot(zz, yy, color=col, ls=ls, lw=1.1, zorder=4)
+                    ax.plot([zz[0], zz[-1]], [s.energy_eV, s.energy_eV], color=col, lw=0.6,
+                            alpha=0.7, zorder=4)
+                    curves[s.label] = (zz, np.abs(yy - s.energy_eV))
+                    zext += [zz[0], zz[-1]]
+                    if mb is None or s is dr[0] or s is dr[-1]:
+                        _peak_label(ax, s, zz, yy, col, fontsize, peak_boxes, renderer)
+                else:
+                    ax.axhline(s.energy_eV, color=col, lw=0.6, ls=ls, zorder=4)
+                drawn_labels.append(s.label)
+            if mb is not None:
+                e_lo = min(x.energy_eV for x in st)
+                e_hi = max(x.energy_eV for x in st)
+                za, zb = (min(zext), max(zext)) if zext else (z0, z1)
+                # a miniband narrower than 1 % of the axis is widened to stay visible as a band
+                pad = max(0.0, 0.5 * (0.012 * (yhi - ylo) - (e_hi - e_lo)))
+                ax.fill_between([za, zb], [e_lo - pad] * 2, [e_hi + pad] * 2, color=col,
+                                alpha=0.22, lw=0, zorder=2)
+                group_notes.append(f"{st[0].label}–{st[-1].label}: {len(st)} states, "
+                                   f"{len(dr)} drawn")
+            e_mid = 0.5 * (min(x.energy_eV for x in st) + max(x.energy_eV for x in st))
+            lab_y.append(e_mid)
+            lab_txt.append(_entry_label(mb, st))
+            lab_col.append(col)
+            lab_e.append(e_mid)
             lab_sign.append(sign)
         if not lab_y:
             continue
@@ -499,7 +635,6 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
             ax.text(1.0 + xo / ax_w, y, txt, transform=trans, fontsize=fontsize, color=col,
                     va="center", ha="left", clip_on=False, zorder=10, parse_math=False,
                     bbox=dict(boxstyle="square,pad=0.1", fc="white", ec="none"))
-            drawn_labels.append(txt.rstrip("*"))
 
     # -- Fermi level of a doped stack ---------------------------------------------
     fermi_label = None
@@ -521,7 +656,7 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     tr_labels = []
     if transitions:
         tr_labels = _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize,
-                                      ConnectionPatch)
+                                      ConnectionPatch, placed=peak_boxes)
 
     # -- strip, title, legend, break marks ---------------------------------------
     strip_rect = ((left_pt + margin_l) / fw_pt, plot_top / fh_pt, ax_w / fw_pt, strip_h / fh_pt)
@@ -555,7 +690,8 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
                        bands=tuple(b for p in plan for b in p["bands"]),
                        state_labels=tuple(drawn_labels), transition_labels=tuple(tr_labels),
                        unlabelled_layers=tuple(unlabelled), axes=tuple(axes),
-                       fermi_label=fermi_label)
+                       fermi_label=fermi_label, states_drawn=n_drawn, states_total=n_total,
+                       groups=tuple(group_notes))
 
 
 def _sign(band: str) -> int:
@@ -580,8 +716,13 @@ def _panel_of(plan, band):
     return None
 
 
-def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, ConnectionPatch):
-    """Arrows between the states of each transition, labels placed without overlap."""
+def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, ConnectionPatch,
+                      placed=()):
+    """Arrows between the states of each transition, labels placed without overlap.
+
+    The arrows lie above the labels (a label never hides its arrow), and a
+    label is kept clear of the state labels already placed (``placed``:
+    display-space boxes)."""
     renderer = fig.canvas.get_renderer()
     # x positions: where both states of a transition live (the lower state's
     # extent when they do not overlap), united over the transitions
@@ -607,7 +748,7 @@ def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, 
         a, b = max(mid - 0.5 * need, z0), min(mid + 0.5 * need, z1)
     xs = [a + (k + 1) * (b - a) / (n + 1) for k in range(n)]
     centre = 0.5 * (a + b)
-    placed = []   # display-space bboxes of labels
+    placed = list(placed)   # display-space bboxes of labels
     texts = []
     for t, x in zip(transitions, xs):
         si, sf = _find_state(levels, t.initial), _find_state(levels, t.final)
@@ -617,24 +758,25 @@ def _draw_transitions(fig, plan, levels, transitions, curves, z0, z1, fontsize, 
         pl, pu = _panel_of(plan, lower.band), _panel_of(plan, upper.band)
         if pl is None or pu is None:
             continue
-        label = f"{t.name}  {t.wavelength_um:.4g} µm"
+        u = auto_unit(t.energy_eV)  # the unit of the line's spectral region (qwell.spectral)
+        label = f"{t.name}  {float(from_eV(t.energy_eV, u)):.4g} {unit_label(u)}"
         style = dict(arrowstyle="-|>", mutation_scale=9, lw=1.1, color="black",
                      shrinkA=0, shrinkB=0)
         if pl is pu:
             ax = pl["ax"]
             ax.annotate("", xy=(x, upper.energy_eV), xytext=(x, lower.energy_eV),
-                        arrowprops=style, zorder=6)
+                        arrowprops=style, zorder=9)
             candidates_ax, y_mid = ax, 0.5 * (lower.energy_eV + upper.energy_eV)
         else:
             con = ConnectionPatch(xyA=(x, lower.energy_eV), coordsA=pl["ax"].transData,
                                   xyB=(x, upper.energy_eV), coordsB=pu["ax"].transData,
-                                  zorder=6, **style)
+                                  zorder=9, **style)
             fig.add_artist(con)
             candidates_ax = pl["ax"]
             ylo, yhi = pl["ylim"]
             y_mid = yhi - 0.06 * (yhi - ylo)
         right = x >= centre
-        txt = candidates_ax.text(x, y_mid, ("  " + label) if right else (label + "  "),
+        txt = candidates_ax.text(x, y_mid, ("   " + label) if right else (label + "   "),
                                  ha="left" if right else "right", va="center",
                                  fontsize=fontsize, zorder=7, parse_math=False,
                                  bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none",
@@ -728,3 +870,54 @@ def save_band_diagram(profile, levels, path, *, transitions=(), title=None, prot
     data = band_diagram_png(profile, levels, transitions=transitions, title=title,
                             fermi_level_eV=fermi_level_eV)
     return atomic_write_bytes(path, data, protect=protect)
+
+
+def plot_band_diagram(ax, solution, *, transitions=(), title=None, show_holes=None,
+                      fontsize: float = _FONT) -> DiagramInfo:
+    """Draw a solved stack's band diagram in the place of a caller's Axes.
+
+    The diagram may need two panels (conduction and valence bands with a broken
+    axis between them) and a label column, so it takes over the area of ``ax``:
+    ``ax`` is removed from its figure and the diagram's own axes fill its
+    position (returned in :attr:`DiagramInfo.axes`).
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Axes whose area the diagram fills; its figure must have a canvas with a
+        renderer (e.g. ``matplotlib.pyplot.subplots()`` or an Agg figure).
+    solution : qwell.levels.Solution
+        An exact solve with wavefunctions (:func:`qwell.solve_stack`).
+    transitions : sequence of str or qwell.optics.Transition
+        Lines drawn as arrows, by name (``'e1-e2'``) or as transitions of
+        ``solution``.
+    title : str, optional
+    show_holes : bool, optional
+        Force the hole edges on or off (default: when a hole line is drawn or
+        no conduction state exists).
+    fontsize : float
+        Label font size [pt].
+
+    Returns
+    -------
+    DiagramInfo
+
+    Examples
+    --------
+    >>> import matplotlib
+    >>> matplotlib.use("Agg")
+    >>> import matplotlib.pyplot as plt
+    >>> import qwell
+    >>> sol = qwell.solve_stack(qwell.load_stack("layers/lwir-detector.yaml"))
+    >>> fig, ax = plt.subplots(figsize=(7, 4.5))
+    >>> info = qwell.plot_band_diagram(ax, sol, transitions=["e1-e2"])
+    >>> info.state_labels[:2]
+    ('e1', 'e2')
+    """
+    fig = ax.figure
+    box = ax.get_position()
+    ax.remove()
+    chosen = tuple(solution.transition(t) if isinstance(t, str) else t for t in transitions)
+    return draw_band_diagram(fig, solution.profile, solution.levels, transitions=chosen,
+                             rect=(box.x0, box.y0, box.width, box.height), title=title,
+                             show_holes=show_holes, fontsize=fontsize)

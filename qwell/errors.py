@@ -9,8 +9,10 @@ points at the exact place to fix.
 from __future__ import annotations
 
 __all__ = [
+    "one_line",
     "QwellError",
     "StackError",
+    "LibraryError",
     "MaterialError",
     "UnitError",
     "ConvergenceError",
@@ -18,6 +20,15 @@ __all__ = [
     "QwellWarning",
     "ValidityWarning",
 ]
+
+
+def one_line(text: str) -> str:
+    """``text`` with line breaks and other control characters escaped (``\\n``), so that
+    a file name or value can never split a one-line message."""
+    if text.isprintable():
+        return text
+    return "".join(ch if ch.isprintable() else ch.encode("unicode_escape").decode("ascii")
+                   for ch in text)
 
 
 class QwellError(Exception):
@@ -50,7 +61,7 @@ class StackError(ValueError, QwellError):
     def __str__(self) -> str:
         where = ""
         if self.file:
-            where = str(self.file)
+            where = one_line(str(self.file))
             if self.line is not None:
                 where += f":{self.line}"
             where += ": "
@@ -58,6 +69,14 @@ class StackError(ValueError, QwellError):
             where = f"line {self.line}: "
         key = f"{self.key}: " if self.key else ""
         return f"{where}{key}{self.message}"
+
+
+class LibraryError(StackError):
+    """A material-library file is invalid (same ``FILE:LINE: KEY: message`` form).
+
+    A library is an input file like a stack, so it shares the stack error's
+    file/line/key fields and message layout.
+    """
 
 
 class MaterialError(ValueError, QwellError):

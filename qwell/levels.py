@@ -10,7 +10,6 @@ This is the Python API behind ``qwell levels``::
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 
@@ -73,44 +72,6 @@ class Solution:
                 return t
         raise ParameterError(f"no transition {name!r}; available: "
                              + (", ".join(t.name for t in self.transitions) or "none"))
-
-    def to_json(self) -> dict:
-        return {
-            "stack": self.stack.name,
-            "temperature_K": self.stack.temperature_K,
-            "method": self.method,
-            "states": [_state_json(s) for s in self.states],
-            "transitions": [t.to_json() for t in self.transitions],
-            "minibands": [_miniband_json(m) for b in self.levels.values() for m in b.minibands],
-            "self_consistent": (None if self.self_consistent is None
-                                else self_consistent_json(self.self_consistent)),
-            "notes": list(self.notes) + [n for b in self.levels.values() for n in b.notes]
-                     + [b.message for b in self.levels.values() if b.message],
-        }
-
-
-def self_consistent_json(sc) -> dict:
-    """Summary of a Schrödinger–Poisson result for JSON output."""
-    ef = sc.fermi_level_eV
-    return {"fermi_level_eV": None if ef is None or math.isnan(ef) else float(ef),
-            "iterations": int(sc.iterations), "residual_meV": float(sc.residual_meV),
-            "charge_residual": float(sc.charge_residual), "converged": bool(sc.converged),
-            "sheet_densities_cm2": {k: float(v) for k, v in sc.sheet_densities_cm2.items()},
-            "boundary": sc.boundary}
-
-
-def _state_json(s) -> dict:
-    return {"band": s.band, "label": s.label, "index": s.index,
-            "energy_eV": float(s.energy_eV), "bound": bool(s.bound),
-            "lifetime_s": None if s.lifetime_s is None else float(s.lifetime_s),
-            "tolerance_eV": float(s.tolerance_eV), "converged": bool(s.converged),
-            **({"region": s.region} if s.region is not None else {}),
-            **({"validity": float(s.validity)} if s.validity is not None else {})}
-
-
-def _miniband_json(m) -> dict:
-    return {"band": m.band, "index": m.index, "bottom_eV": m.bottom_eV, "top_eV": m.top_eV,
-            "width_eV": m.width_eV, "repeat_index": m.repeat_index, "period_nm": m.period_nm}
 
 
 def _bands_for(which) -> tuple:
@@ -216,6 +177,15 @@ def solve_stack(stack, *, self_consistent: bool | None = None, **options) -> Sol
     With ``self_consistent`` (or the stack key) the states are those of the
     self-consistent potential and the solution carries the charge result in
     :attr:`Solution.self_consistent`.
+
+    Examples
+    --------
+    >>> from qwell import load_stack, solve_stack
+    >>> sol = solve_stack(load_stack("layers/lwir-detector.yaml"), bands="conduction")
+    >>> [s.label for s in sol.states]
+    ['e1', 'e2']
+    >>> round(sol.transition("e1-e2").wavelength_um, 3)
+    8.33
     """
     prof, sc = prepare_profile(stack, self_consistent=self_consistent)
     sol = solve_profile(prof, **options)

@@ -22,14 +22,18 @@ module-level function, or a :func:`functools.partial` of one).
 
 from __future__ import annotations
 
+import gc
 import math
 import multiprocessing
 import os
+import re
+import signal
+import socket
 import sys
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
 
-from .errors import QwellError
+from .errors import QwellError, one_line
 
 __all__ = [
     "ClusterError",
@@ -40,6 +44,7 @@ __all__ = [
     "DASK_TIMEOUT_S",
     "MIN_PARALLEL_ITEMS",
     "Progress",
+    "check_dask_address",
 ]
 
 #: Seconds to wait for a Dask scheduler before giving up.
@@ -140,6 +145,29 @@ def _mp_context():
     return multiprocessing.get_context()
 
 
+_DASK_ADDRESS = re.compile(r"^(?:(?:tcp|tls|ws|wss|ucx)://)?"
+                           r"(?:[A-Za-z0-9](?:[A-Za-z0-9.-]{0,252})|\[[0-9A-Fa-f:.]+\])"
+                           r":(\d{1,5})$")
+
+
+def check_dask_address(address: str) -> str:
+    """Check the form of a Dask scheduler address (``[tcp://]host:port``) before any
+    connection is tried.
+
+    Raises
+    ------
+    ClusterError
+        Not of the form ``tcp://host:port`` (or tls, ws, wss, ucx), or a port
+        outside 1-65535.
+    """
+    text = address.strip() if isinstance(address, str) else ""
+    m = _DASK_ADDRESS.match(text)
+    if not m or not 1 <= int(m.group(1)) <= 65535:
+        raise ClusterError(f"--dask {one_line(repr(address))[:60]}: not a scheduler address; "
+                           "expected tcp://HOST:PORT, e.g. tcp://127.0.0.1:8786")
+    return text
+
+
 def _dask_client(dask, timeout_s: float):
     """(client, owned) for an address string or an existing Client."""
     if not isinstance(dask, str):
@@ -150,21 +178,80 @@ def _dask_client(dask, timeout_s: float):
     address = dask.strip()
     if not address:
         raise ClusterError("--dask: empty address; expected e.g. tcp://127.0.0.1:8786")
+    check_dask_address(address)
     # distributed is an optional extra (qwell[dask]) and heavy: imported only when asked for
     try:
         from distributed import Client
     except ImportError:
         raise ClusterError("--dask needs the optional package 'distributed' "
                            "(install it with: pip install 'qwell[dask]')") from None
+    _probe_scheduler(address, timeout_s)
+    failure = None
+    previous_hook = sys.unraisablehook
+    # a Client that failed to connect complains from its __del__ (a traceback on stderr);
+    # it is collected here, with that hook silenced, so the error stays one line
+    sys.unraisablehook = _ignore_unraisable
     try:
-        client = Client(address, timeout=timeout_s, set_as_default=False)
-    except Exception as exc:  # OSError, TimeoutError, ValueError (bad address), ...
-        why = " ".join(str(exc).split()) or type(exc).__name__
-        if len(why) > 120:
-            why = why[:117] + "..."
+        try:
+            client = Client(address, timeout=timeout_s, set_as_default=False)
+        except Exception as exc:  # OSError, TimeoutError, ValueError (bad address), ...
+            why = " ".join(str(exc).split()) or type(exc).__name__
+            if len(why) > 120:
+                why = why[:117] + "..."
+            failure = f"{type(exc).__name__}: {why}"
+        if failure is not None:
+            gc.collect()
+    finally:
+        sys.unraisablehook = previous_hook
+    if failure is not None:
         raise ClusterError(f"cannot reach the Dask scheduler at {address!r} within "
-                           f"{timeout_s:g} s ({type(exc).__name__}: {why})") from None
+                           f"{timeout_s:g} s ({one_line(failure)})")
     return client, True
+
+
+def _ignore_unraisable(unraisable) -> None:
+    return None
+
+
+def _probe_scheduler(address: str, timeout_s: float) -> None:
+    """Open (and close) a plain TCP connection to a tcp:// scheduler first: an unreachable
+    address fails here within the timeout, with one line, before any Dask machinery starts."""
+    m = re.match(r"^(?:tcp://)?(\[[0-9A-Fa-f:.]+\]|[^:/\[\]]+):(\d+)$", address)
+    if not m:
+        return  # tls, ws, ucx: left to distributed
+    host, port = m.group(1).strip("[]"), int(m.group(2))
+    try:
+        with socket.create_connection((host, port), timeout=timeout_s):
+            pass
+    except OSError as exc:
+        why = one_line(str(exc.strerror or exc or type(exc).__name__))
+        raise ClusterError(f"cannot reach the Dask scheduler at {address!r} within "
+                           f"{timeout_s:g} s ({why})") from None
+
+
+def _worker_init() -> None:
+    """Workers leave Ctrl-C and SIGTERM to the parent, which stops them (see _stop_pool)."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+def _stop_pool(pool) -> None:
+    """Cancel pending chunks and terminate the worker processes at once."""
+    procs = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for proc in procs:
+        try:
+            proc.terminate()
+        except (OSError, AttributeError, ValueError):
+            pass
+    deadline = time.monotonic() + 1.0
+    for proc in procs:
+        try:
+            proc.join(max(0.0, deadline - time.monotonic()))
+            if proc.is_alive():
+                proc.kill()
+        except (OSError, AttributeError, ValueError, AssertionError):
+            pass
 
 
 def map_chunked(fn, items, *, jobs=None, dask=None, dask_timeout_s: float = DASK_TIMEOUT_S,
@@ -229,13 +316,20 @@ def map_chunked(fn, items, *, jobs=None, dask=None, dask_timeout_s: float = DASK
             return out
         parts = chunk(items, n_jobs * chunks_per_worker)
         results = [None] * len(parts)
-        with ProcessPoolExecutor(max_workers=min(n_jobs, len(parts)),
-                                 mp_context=_mp_context()) as pool:
+        pool = ProcessPoolExecutor(max_workers=min(n_jobs, len(parts)), mp_context=_mp_context(),
+                                   initializer=_worker_init)
+        try:
             futures = {pool.submit(fn, part): i for i, part in enumerate(parts)}
             for fut in as_completed(futures):
                 i = futures[fut]
                 results[i] = fut.result()
                 bar.update(len(parts[i]))
+        except BaseException:
+            # Ctrl-C, SIGTERM or a failed chunk: stop the workers now instead of waiting
+            # for the chunks they are computing
+            _stop_pool(pool)
+            raise
+        pool.shutdown(wait=True)
         return [r for part in results for r in part]
     finally:
         bar.close()

@@ -66,13 +66,10 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.sparse as sp
-from scipy.sparse.linalg import spsolve
-from scipy.special import expit
 
 from .constants import E_C, EPS0_F_PER_M, HBAR_J_S, KB_EV_PER_K, M0_KG
 from .errors import MaterialError, StackError
-from .materials import grade_function
+from .materials.library import BUILTIN as _BUILTIN_SET
 
 __all__ = [
     "POISSON_EV_NM2_PER_CM3",
@@ -148,6 +145,7 @@ def sheet_density_2d_derivative(mass_m0, temperature_K, fermi_minus_subband_eV) 
     if temperature_K <= 0:
         return dos * (x > 0)
     kt = KB_EV_PER_K * float(temperature_K)
+    from scipy.special import expit  # heavy import (~120 ms): only doped stacks need it
     return dos * expit(x / kt)
 
 
@@ -193,8 +191,9 @@ def _layer_dielectric(stack, layer):
     if layer.grade is None:
         mats = [stack.material_of(layer)]
     else:
-        fn = grade_function(layer.grade.start, layer.grade.end, stack.temperature_K,
-                            stack.user_materials)
+        mset = getattr(stack, "material_set", None) or _BUILTIN_SET
+        fn = mset.grade_function(layer.grade.start, layer.grade.end, stack.temperature_K,
+                                 stack.user_materials)
         mats = [fn(0.0), fn(1.0)]
         if layer.overrides:
             mats = [m.with_overrides(**dict(layer.overrides)) for m in mats]
@@ -379,6 +378,7 @@ def ionised_donors_cm3(doping: DopingOnGrid, conduction_edge_eV, fermi_level_eV:
         return doping.donors_cm3.copy()
     kt = KB_EV_PER_K * temperature_K
     ed = np.asarray(conduction_edge_eV, dtype=float) - doping.donor_binding_eV
+    from scipy.special import expit  # heavy import (~120 ms): only doped stacks need it
     frac = expit(-((fermi_level_eV - ed) / kt + math.log(DONOR_DEGENERACY)))
     return doping.donors_cm3 + doping.donors_level_cm3 * frac
 
@@ -390,6 +390,7 @@ def ionised_donors_derivative(doping: DopingOnGrid, conduction_edge_eV, fermi_le
         return np.zeros_like(doping.donors_cm3)
     kt = KB_EV_PER_K * temperature_K
     ed = np.asarray(conduction_edge_eV, dtype=float) - doping.donor_binding_eV
+    from scipy.special import expit  # heavy import (~120 ms): only doped stacks need it
     s = expit(-((fermi_level_eV - ed) / kt + math.log(DONOR_DEGENERACY)))
     return -doping.donors_level_cm3 * s * (1.0 - s) / kt
 
@@ -397,18 +398,20 @@ def ionised_donors_derivative(doping: DopingOnGrid, conduction_edge_eV, fermi_le
 # ---------------------------------------------------------------------------
 # Poisson solve
 # ---------------------------------------------------------------------------
-def poisson_operator(grid: PoissonGrid) -> sp.csr_matrix:
+def poisson_operator(grid: PoissonGrid):
     """Matrix of the left side of eq. (2): ``(A U)_i = sum_f a_f (U_nb - U_i)``, zero end fluxes."""
     a = grid.face_eps / grid.face_nm
     n = grid.size
     diag = np.zeros(n)
     diag[:-1] -= a
     diag[1:] -= a
+    import scipy.sparse as sp  # heavy import: only doped stacks need it
     return sp.diags([a, diag, a], [-1, 0, 1], shape=(n, n), format="csr")
 
 
-def _boundary_system(grid: PoissonGrid, matrix: sp.spmatrix, rhs: np.ndarray, boundary: str):
+def _boundary_system(grid: PoissonGrid, matrix, rhs: np.ndarray, boundary: str):
     """Apply the boundary condition: replace one row by the gauge ``U_0 = 0``."""
+    import scipy.sparse as sp  # heavy import: only doped stacks need it
     m = sp.lil_matrix(matrix)
     b = np.array(rhs, dtype=float)
     if boundary == "neutral":
@@ -443,6 +446,7 @@ def solve_poisson(grid: PoissonGrid, charge_cm3, *, boundary: str = "neutral") -
     q = np.asarray(charge_cm3, dtype=float)
     rhs = POISSON_EV_NM2_PER_CM3 * grid.cell_nm * q
     m, b = _boundary_system(grid, poisson_operator(grid), rhs, boundary)
+    from scipy.sparse.linalg import spsolve  # heavy import: only doped stacks need it
     return spsolve(m, b)
 
 

@@ -29,11 +29,10 @@ from dataclasses import dataclass, field, replace
 from typing import Callable
 
 import numpy as np
-from scipy.interpolate import CubicSpline
 
 from .bands import BAND_NAMES, Band, Piece, RepeatInfo
 from .errors import MaterialError, StackError
-from .materials import get_material, grade_function
+from .materials.library import BUILTIN as _BUILTIN_SET
 from .strain import critical_thickness_nm, critical_thickness_of_misfit_nm, strain as _strain
 
 __all__ = ["LayerProfile", "Profile", "band_profile", "FIELD_EV_PER_NM_PER_KV_CM"]
@@ -93,17 +92,6 @@ class LayerProfile:
     @property
     def thickness_nm(self) -> float:
         return self.end_nm - self.start_nm
-
-    def to_json(self) -> dict:
-        return {"name": self.label, "material": self.material, "start_nm": self.start_nm,
-                "end_nm": self.end_nm, "thickness_nm": self.thickness_nm,
-                "strain_xx": self.strain_xx, "strain_zz": self.strain_zz,
-                "strain_shift_conduction_eV": self.strain_shift_conduction_eV,
-                "strain_shift_heavy_hole_eV": self.strain_shift_heavy_hole_eV,
-                "strain_shift_light_hole_eV": self.strain_shift_light_hole_eV,
-                "critical_thickness_nm": (None if math.isinf(self.critical_thickness_nm)
-                                          else self.critical_thickness_nm),
-                "warnings": list(self.warnings)}
 
 
 @dataclass(frozen=True)
@@ -169,11 +157,15 @@ class Profile:
         the gap difference vanishes).  Field tilt cancels at an interface.
         """
         out = []
+        top = np.fmax(self.heavy_hole_edge_eV, self.light_hole_edge_eV)
+        # samples are in growth order: first and last sample of each layer by bisection
+        # (one mask per layer made long stacks quadratic in the layer count)
+        order = np.asarray(self.sample_layer)
         for a, b in zip(self.layers[:-1], self.layers[1:]):
-            ia, ib = self.layer_samples(a.index), self.layer_samples(b.index)
-            ec_a, ec_b = self.conduction_edge_eV[ia][-1], self.conduction_edge_eV[ib][0]
-            top = np.fmax(self.heavy_hole_edge_eV, self.light_hole_edge_eV)
-            ev_a, ev_b = top[ia][-1], top[ib][0]
+            last_a = int(np.searchsorted(order, a.index, side="right")) - 1
+            first_b = int(np.searchsorted(order, b.index, side="left"))
+            ec_a, ec_b = self.conduction_edge_eV[last_a], self.conduction_edge_eV[first_b]
+            ev_a, ev_b = top[last_a], top[first_b]
             dec = float(ec_b - ec_a)
             dev = float(ev_b - ev_a) if np.isfinite(ev_a) and np.isfinite(ev_b) else None
             share = None
@@ -185,26 +177,6 @@ class Profile:
                         "delta_conduction_eV": dec, "delta_valence_eV": dev,
                         "conduction_share": share})
         return out
-
-    def to_json(self) -> dict:
-        def arr(a):
-            return [None if not np.isfinite(v) else round(float(v), 9) for v in a]
-        return {
-            "stack": self.stack.name,
-            "temperature_K": self.stack.temperature_K,
-            "field_kV_per_cm": self.stack.field_kV_per_cm,
-            "substrate": self.stack.substrate,
-            "z_nm": arr(self.z_nm),
-            "conduction_edge_eV": arr(self.conduction_edge_eV),
-            "heavy_hole_edge_eV": arr(self.heavy_hole_edge_eV),
-            "light_hole_edge_eV": arr(self.light_hole_edge_eV),
-            "electron_mass": arr(self.electron_mass),
-            "heavy_hole_mass": arr(self.heavy_hole_mass),
-            "light_hole_mass": arr(self.light_hole_mass),
-            "layers": [lay.to_json() for lay in self.layers],
-            "band_offsets": self.band_offsets(),
-            "warnings": list(self.warnings),
-        }
 
 
 # ---------------------------------------------------------------------------
@@ -277,6 +249,7 @@ class _LayerFunctions:
                          "d_ec", "d_hh", "d_lh"):
                 vals = np.array([getattr(p, attr) for p in pts])
                 if np.all(np.isfinite(vals)):
+                    from scipy.interpolate import CubicSpline  # heavy import: only graded layers need it
                     self.splines[attr] = CubicSpline(z, vals)
                 else:
                     self.splines[attr] = None
@@ -311,6 +284,11 @@ _BAND_ATTRS = {
 }
 
 
+def _material_set(stack):
+    """The stack's material tables (built-in plus its libraries)."""
+    return getattr(stack, "material_set", None) or _BUILTIN_SET
+
+
 def _layer_material_fn(stack, layer):
     """(f(t) -> Material, display name, uniform?) for one layer."""
     T = stack.temperature_K
@@ -319,7 +297,7 @@ def _layer_material_fn(stack, layer):
         mat = stack.material_of(layer)
         return (lambda t, _m=mat: _m), mat.name, True
     g = layer.grade
-    fn = grade_function(g.start, g.end, T, stack.user_materials)
+    fn = _material_set(stack).grade_function(g.start, g.end, T, stack.user_materials)
     if overrides:
         def at(t, _fn=fn, _o=overrides):
             return _fn(float(g.fraction(np.array([t]))[0])).with_overrides(**_o)
@@ -359,7 +337,8 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
     T = stack.temperature_K
     substrate_mat = None
     if stack.substrate:
-        substrate_mat = get_material(stack.substrate, T, stack.user_materials)
+        substrate_mat = _material_set(stack).get_material(stack.substrate, T,
+                                                          stack.user_materials)
     slope = stack.field_kV_per_cm * FIELD_EV_PER_NM_PER_KV_CM
 
     funcs: list[_LayerFunctions] = []
@@ -523,8 +502,9 @@ def _offset_warnings(prof: Profile, families: list) -> list[str]:
     out = []
     named = {}
     seen_pairs = set()
+    index_of = {lp.label: lp.index for lp in prof.layers}
     for o in prof.band_offsets():
-        i = next(lp.index for lp in prof.layers if lp.label == o["left"])
+        i = index_of[o["left"]]
         pair = frozenset({families[i], families[i + 1]})
         share = o["conduction_share"]
         where = f"interface {o['left']} | {o['right']}"

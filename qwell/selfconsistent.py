@@ -76,10 +76,6 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.sparse as sp
-from scipy.optimize import brentq
-from scipy.sparse.linalg import spsolve
-from scipy.special import expit
 
 from .constants import E_C, HBAR_J_S, KB_EV_PER_K, M0_KG
 from .errors import ConvergenceError, ParameterError, ValidityWarning
@@ -325,6 +321,7 @@ class _ThomasFermiCharge:
         x = (ef - self.ec0 - u) / self.kt
         s = self.kt * np.logaddexp(0.0, x)
         n = self._C * self.m ** 1.5 * s ** 1.5
+        from scipy.special import expit  # heavy import (~120 ms): only doped stacks need it
         dn_def = 1.5 * self._C * self.m ** 1.5 * np.sqrt(s) * expit(x)
         return n, dn_def
 
@@ -347,6 +344,7 @@ def _thomas_fermi_guess(grid, doping, ec0, mass, T, a_mat, fermi_level_eV, bound
     if fermi_level_eV is None:
         lo, hi = float(np.min(ec0)) - 3.0, float(np.max(ec0)) + 3.0
         f = lambda e: tf.total(e, u0)  # noqa: E731
+        from scipy.optimize import brentq  # heavy import (~90 ms): only doped stacks need it
         ef0 = brentq(f, lo, hi, xtol=1e-9) if f(lo) > 0 > f(hi) else float(np.min(ec0))
     else:
         ef0 = float(fermi_level_eV)
@@ -375,6 +373,7 @@ def _neutral_fermi_level(charge: _Charge) -> float:
             "carriers of the dopants (widen or deepen the wells, or give a fermi_level)")
     # brentq to (near) machine precision in E_F: the relative charge error is then far
     # below the 1e-6 required (reported as charge_residual)
+    from scipy.optimize import brentq  # heavy import (~90 ms): only doped stacks need it
     ef = brentq(charge.total, lo, hi, xtol=1e-14, rtol=4 * np.finfo(float).eps, maxiter=400)
     return float(ef)
 
@@ -382,6 +381,7 @@ def _neutral_fermi_level(charge: _Charge) -> float:
 def _predictor_newton(charge: _Charge, a_mat, u0, ef0, *, fixed_fermi: bool, boundary: str,
                       tol_eV: float = 1e-10, max_steps: int = 60, max_step_eV: float = 0.1):
     """Solve the nonlinear (predictor) Poisson equation for U (and E_F) by Newton's method."""
+    import scipy.sparse as sp  # heavy import: only doped stacks need it
     grid = charge.grid
     n = grid.size
     c = POISSON_EV_NM2_PER_CM3 * grid.cell_nm
@@ -398,6 +398,7 @@ def _predictor_newton(charge: _Charge, a_mat, u0, ef0, *, fixed_fermi: bool, bou
             r[gauge_row] = u[0]
             jac[gauge_row, :] = 0.0
             jac[gauge_row, 0] = 1.0
+            from scipy.sparse.linalg import spsolve  # heavy import: only doped stacks need it
             du = spsolve(jac.tocsc(), -r)
             dfe = 0.0
         else:
@@ -405,6 +406,7 @@ def _predictor_newton(charge: _Charge, a_mat, u0, ef0, *, fixed_fermi: bool, bou
             row = sp.csr_matrix(([1.0], ([0], [0])), shape=(1, n))
             big = sp.bmat([[jac.tocsr(), sp.csr_matrix(col)], [row, None]], format="csc")
             rhs = -np.concatenate([r, [u[0]]])
+            from scipy.sparse.linalg import spsolve  # heavy import: only doped stacks need it
             sol = spsolve(big, rhs)
             du, dfe = sol[:n], float(sol[n])
         step = max(float(np.max(np.abs(du))), abs(dfe))
@@ -716,8 +718,9 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
 
     if not converged:
         text = (f"self-consistent loop did not converge in {max_iterations} iterations: residual "
-                f"{res * 1e3:.3g} meV > {tolerance_meV:.3g} meV (mixing {mixing!r}); try "
-                "mixing='linear', a coarser grid_step_nm or more max_iterations")
+                f"{res * 1e3:.3g} meV > {tolerance_meV:.3g} meV (mixing {mixing!r}); lower the "
+                "doping (the layers' doping keys), give a fermi_level, or leave out "
+                "self_consistent / --self-consistent for flat bands")
         if strict:
             raise ConvergenceError(text, tolerance_reached=res * 1e3, history=history)
         message = text

@@ -18,6 +18,8 @@ File format (every dimensional value carries its unit)::
     self_consistent: false         # default false
     fermi_level: 0.05 eV           # optional
     line: {transition: e1-e2, target: 8.5 um}   # optional design line (target optional)
+    library: ../params/lab.yaml    # optional material library (or a list; later ones win),
+                                   # relative to this file (see qwell.materials.library)
     materials:                     # optional user materials (keys of USER_KEYS)
       wall: {conduction_edge: 0.30 eV, electron_mass: 0.067}
     layers:
@@ -62,8 +64,12 @@ import yaml
 
 from . import materials as _materials
 from .errors import MaterialError, StackError, UnitError
-from .units import (expected_words, parse_quantity, spectral_to_eV, thickness_nm as _thickness_nm,
-                    to_float, ureg)
+from .materials.library import BUILTIN as _BUILTIN_SET, load_library, material_set as _material_set
+from .unit_table import plain_split
+from .units import (FIELD_RANGES, RANGES, expected_words, is_quantity, out_of_range,
+                    parse_quantity, spectral_to_eV, thickness_nm as _thickness_nm, to_float)
+from .yamlio import (MAX_ALIASES, MAX_YAML_NODES, decode_text, parse_marked_yaml,  # noqa: F401
+                     read_regular_file)
 
 __all__ = [
     "Grade",
@@ -93,17 +99,17 @@ MAX_TEMPERATURE_K = 1000.0
 MAX_FIELD_KV_PER_CM = 2000.0
 #: Largest total thickness [nm] (100 um).
 MAX_TOTAL_THICKNESS_NM = 100_000.0
+#: Thinnest layer accepted [nm] (far below a monolayer; thinner values are typing errors).
+MIN_THICKNESS_NM = RANGES["thickness"][0]
+#: Longest stack name accepted [characters] (it heads every report page).
+MAX_NAME_CHARS = 200
 #: Deepest nesting of repeat blocks (a repeat inside a repeat is fine).
 MAX_REPEAT_DEPTH = 2
-#: Most YAML aliases (``*name``) in one document.
-MAX_ALIASES = 100
-#: Most YAML nodes in one document, as written and after alias expansion.
-MAX_YAML_NODES = 1_000_000
 
 _DEFAULT_TEMPERATURE_K = 300.0
 
 _TOP_KEYS = ("name", "temperature", "substrate", "field", "nonparabolicity",
-             "self_consistent", "fermi_level", "line", "materials", "layers")
+             "self_consistent", "fermi_level", "line", "library", "materials", "layers")
 _LINE_KEYS = ("transition", "target")
 _LINE_NAME_RE = re.compile(r"^(e|hh|lh)([1-9]\d*)-(e|hh|lh)([1-9]\d*)$")
 _UNIFORM_KEYS = ("material", "thickness", "name", "doping")
@@ -307,7 +313,14 @@ class Stack:
     repeats : tuple of RepeatBlock
     raw : Mapping
         The parsed YAML (plain Python) for writing modified stacks; change a
-        copy and load it with :func:`stack_from_mapping`.
+        copy and load it with :func:`stack_from_mapping`.  Libraries given
+        per call (``libraries=``) are appended to its ``library`` list as
+        absolute paths, so a stack rebuilt from ``raw`` uses them too (every
+        ``library`` entry is stored resolved to an absolute path).
+    material_set : MaterialSet
+        Built-in tables with the stack's material libraries applied
+        (:mod:`qwell.materials.library`); every material look-up of the
+        stack goes through it.
     declared_line : DeclaredLine or None
         The design line named by the stack's ``line:`` block.
     """
@@ -326,6 +339,12 @@ class Stack:
     repeats: tuple
     raw: Mapping = field(repr=False, compare=False)
     declared_line: DeclaredLine | None = None
+    material_set: Any = field(default=_BUILTIN_SET, repr=False, compare=False, hash=False)
+
+    @property
+    def libraries(self) -> tuple:
+        """The material libraries in the order they apply (later ones win)."""
+        return self.material_set.libraries
 
     @property
     def total_thickness_nm(self) -> float:
@@ -381,16 +400,12 @@ class Stack:
                              "expected a uniform layer", file=self.path, line=layer.line,
                              key=f"layers[{layer.index}]")
         return _resolved_material(layer.material, self.temperature_K, self.user_materials,
-                                  layer.overrides)
+                                  layer.overrides, self.material_set)
 
 
 # -- material look-ups (cached) -------------------------------------------------
-@lru_cache(maxsize=4096)
-def _is_builtin_name(name: str) -> bool:
-    return bool(_materials.is_known_material(name))
-
-
-def _lookup_material(name: str, temperature_K: float, user_materials: Mapping):
+def _lookup_material(name: str, temperature_K: float, user_materials: Mapping,
+                     material_set=_BUILTIN_SET):
     if user_materials and name in user_materials:
         return user_materials[name]
     # Built-in names are looked up without the user materials, so that a bad
@@ -398,7 +413,7 @@ def _lookup_material(name: str, temperature_K: float, user_materials: Mapping):
     # user-material names as suggestions.  get_material caches by (name,
     # temperature) and repeats its validity warnings on every call.
     try:
-        return _materials.get_material(name, temperature_K)
+        return material_set.get_material(name, temperature_K)
     except MaterialError as exc:
         text = _one_line(exc)
         if user_materials and text.startswith("unknown material"):
@@ -416,8 +431,10 @@ def _apply_overrides(mat, overrides: Mapping):
     return mat.with_overrides(**dict(overrides))
 
 
-def _resolved_material(name, temperature_K, user_materials, overrides):
-    return _apply_overrides(_lookup_material(name, temperature_K, user_materials), overrides)
+def _resolved_material(name, temperature_K, user_materials, overrides,
+                       material_set=_BUILTIN_SET):
+    return _apply_overrides(_lookup_material(name, temperature_K, user_materials, material_set),
+                            overrides)
 
 
 # -- quantity parsing (cached) ----------------------------------------------------
@@ -454,6 +471,9 @@ def _is_monolayers(value) -> bool:
 
 
 def _is_monolayers_any(value) -> bool:
+    split = plain_split(value)
+    if split is not None:   # a plain form: its unit says it, without the registry
+        return split[1] == "ML"
     try:
         q = parse_quantity(value)
     except UnitError:
@@ -461,175 +481,10 @@ def _is_monolayers_any(value) -> bool:
     return bool(q.check("[monolayer]"))
 
 
-# -- the YAML loader with line marks -----------------------------------------------
-class _Refused(Exception):
-    """Internal: the YAML document is refused (with a reason and a line)."""
-
-    def __init__(self, message: str, line: int | None = None):
-        self.message = message
-        self.line = line
-        super().__init__(message)
-
-
-_MERGE_TAG = "tag:yaml.org,2002:merge"
-
-
-class _MarkedLoader(yaml.SafeLoader):
-    """SafeLoader that records the line of every key and item, with alias limits."""
-
-    def __init__(self, stream):
-        super().__init__(stream)
-        self.qwell_marks: dict = {}  # id(container) -> (line, {key: line} | [line, ...])
-        self.keep: list = []  # keeps the marked containers alive (stable ids)
-        self.alias_count = 0
-        self.node_count = 0
-
-    def compose_node(self, parent, index):
-        if self.check_event(yaml.AliasEvent):
-            self.alias_count += 1
-            if self.alias_count > MAX_ALIASES:
-                event = self.peek_event()
-                raise _Refused(f"more than {MAX_ALIASES} YAML aliases; expected a plain stack "
-                               "file (write repeated layers with 'repeat:')",
-                               event.start_mark.line + 1)
-        else:
-            self.node_count += 1
-            if self.node_count > MAX_YAML_NODES:
-                event = self.peek_event()
-                raise _Refused(f"more than {MAX_YAML_NODES} YAML nodes; expected a smaller "
-                               "stack file", event.start_mark.line + 1)
-        return super().compose_node(parent, index)
-
-    def construct_marked_map(self, node):
-        data: dict = {}
-        yield data
-        own = set()
-        for key_node, _ in node.value:
-            if key_node.tag == _MERGE_TAG:
-                continue
-            key = self.construct_object(key_node, deep=True)
-            try:
-                hash(key)
-            except TypeError:
-                raise _Refused("a mapping key must be a plain value; expected 'key: value'",
-                               key_node.start_mark.line + 1) from None
-            if key in own:
-                raise _Refused(f"duplicate key {key!r}; expected each key once per mapping",
-                               key_node.start_mark.line + 1)
-            own.add(key)
-        self.flatten_mapping(node)
-        lines = {}
-        for key_node, value_node in node.value:
-            key = self.construct_object(key_node, deep=True)
-            try:
-                hash(key)
-            except TypeError:
-                raise _Refused("a mapping key must be a plain value; expected 'key: value'",
-                               key_node.start_mark.line + 1) from None
-            data[key] = self.construct_object(value_node, deep=False)
-            lines[key] = key_node.start_mark.line + 1
-        self.qwell_marks[id(data)] = (node.start_mark.line + 1, lines)
-        self.keep.append(data)
-
-    def construct_marked_seq(self, node):
-        data: list = []
-        yield data
-        data.extend(self.construct_object(child, deep=False) for child in node.value)
-        self.qwell_marks[id(data)] = (node.start_mark.line + 1,
-                                [child.start_mark.line + 1 for child in node.value])
-        self.keep.append(data)
-
-
-_MarkedLoader.add_constructor("tag:yaml.org,2002:map", _MarkedLoader.construct_marked_map)
-_MarkedLoader.add_constructor("tag:yaml.org,2002:seq", _MarkedLoader.construct_marked_seq)
-
-
-def _expanded_size(root) -> int:
-    """Node count of the document with every alias expanded (refuses cycles)."""
-    memo: dict = {}
-    active: set = set()
-    # iterative post-order walk: deep documents must not exhaust the C stack
-    stack = [(root, False)]
-    while stack:
-        node, done = stack.pop()
-        nid = id(node)
-        if done:
-            active.discard(nid)
-            if isinstance(node, yaml.MappingNode):
-                kids = [n for pair in node.value for n in pair]
-            elif isinstance(node, yaml.SequenceNode):
-                kids = node.value
-            else:
-                kids = ()
-            total = 1 + sum(memo[id(k)] for k in kids)
-            if total > MAX_YAML_NODES:
-                raise _Refused(f"the YAML aliases expand to more than {MAX_YAML_NODES} nodes; "
-                               "expected a plain stack file", node.start_mark.line + 1)
-            memo[nid] = total
-            continue
-        if nid in memo:
-            continue
-        if nid in active:
-            raise _Refused("a YAML alias refers to its own parent (recursive document); "
-                           "expected a plain stack file", node.start_mark.line + 1)
-        active.add(nid)
-        stack.append((node, True))
-        if isinstance(node, yaml.MappingNode):
-            kids = [n for pair in node.value for n in pair]
-        elif isinstance(node, yaml.SequenceNode):
-            kids = node.value
-        else:
-            kids = ()
-        for k in kids:
-            kid = id(k)
-            if kid in active:
-                raise _Refused("a YAML alias refers to its own parent (recursive document); "
-                               "expected a plain stack file", k.start_mark.line + 1)
-            if kid not in memo:
-                stack.append((k, False))
-    return memo[id(root)]
-
-
-def _reader_line(text: str, exc) -> int | None:
-    pos = getattr(exc, "position", None)
-    if isinstance(pos, int) and 0 <= pos <= len(text):
-        return text.count("\n", 0, pos) + 1
-    return None
-
-
+# -- the YAML reader ---------------------------------------------------------------
 def _parse_yaml(text: str, file: str | None):
     """Parse YAML text into (data, marks); StackError on anything refused."""
-    try:
-        loader = _MarkedLoader(text)
-    except yaml.YAMLError as exc:  # the reader refuses control characters at once
-        raise StackError(f"not valid YAML text ({_one_line(str(exc))}); expected a YAML text "
-                         "file", file=file, line=_reader_line(text, exc)) from None
-    try:
-        try:
-            node = loader.get_single_node()
-            if node is None:
-                return None, {}
-            _expanded_size(node)
-            data = loader.construct_document(node)
-            loader.qwell_marks["root"] = node.start_mark.line + 1
-            loader.qwell_marks["keep"] = loader.keep  # marked ids stay valid while marks live
-        except _Refused as exc:
-            raise StackError(exc.message, file=file, line=exc.line) from None
-        except yaml.MarkedYAMLError as exc:
-            mark = exc.problem_mark or exc.context_mark
-            line = mark.line + 1 if mark is not None else None
-            what = _one_line(exc.problem or exc.context or "syntax error")
-            raise StackError(f"not valid YAML ({what}); expected a YAML mapping of stack keys",
-                             file=file, line=line) from None
-        except yaml.YAMLError as exc:
-            raise StackError(f"not valid YAML ({_one_line(str(exc))}); expected a YAML text "
-                             "file", file=file, line=_reader_line(text, exc)) from None
-        except RecursionError:
-            raise StackError("YAML nested too deeply; expected a plain stack file",
-                             file=file) from None
-    finally:
-        loader.dispose()
-    return data, loader.qwell_marks
+    return parse_marked_yaml(text, file)
 
 
 # -- helpers -------------------------------------------------------------------
@@ -670,10 +525,12 @@ def _type_word(value) -> str:
 class _Builder:
     """Checks one parsed stack document and builds the :class:`Stack`."""
 
-    def __init__(self, data, marks: Mapping, file: str | None):
+    def __init__(self, data, marks: Mapping, file: str | None, libraries=()):
         self.data = data
         self.marks = marks
         self.file = file
+        self.call_libraries = tuple(os.fspath(p) for p in libraries)
+        self.material_set = _BUILTIN_SET
         self.temperature_K = _DEFAULT_TEMPERATURE_K
         self.user_materials: dict = {}
         self.user_keys: Mapping = {}
@@ -765,7 +622,8 @@ class _Builder:
         if mat is not None:
             return mat
         try:
-            mat = _lookup_material(name, self.temperature_K, self.user_materials)
+            mat = _lookup_material(name, self.temperature_K, self.user_materials,
+                                   self.material_set)
         except MaterialError as exc:
             raise self.error(_expecting(exc, "a material such as GaAs or Al0.30Ga0.70As, or a "
                                         "name under 'materials'"), mapping, key, path) from None
@@ -784,7 +642,18 @@ class _Builder:
             else:
                 out[fld] = self.finite(self.quantity(mapping, key, unit, kpath), mapping, key,
                                        kpath, expected_words(unit))
+            kind = FIELD_RANGES.get(fld)
+            if kind is not None:
+                self.in_range(kind, out[fld], mapping, key, kpath)
         return out
+
+    def in_range(self, kind, value, mapping, key, path):
+        """Refuse ``value`` outside ``units.RANGES[kind]`` (the README's limits table)."""
+        why = out_of_range(kind, value)
+        if why is not None:
+            shown = _short(mapping[key]) if key in mapping else f"{value:g}"
+            raise self.error(f"{shown} {why}", mapping, key, path)
+        return value
 
     def build_user_materials(self, top):
         spec = top["materials"]
@@ -799,7 +668,7 @@ class _Builder:
             if not isinstance(name, str) or not _NAME_RE.match(name):
                 raise self.error(f"bad material name {name!r}; expected letters, digits, _ or - "
                                  "starting with a letter", spec, name, path)
-            if _is_builtin_name(name):
+            if self.material_set.is_builtin_name(name):
                 raise self.error(f"{name!r} is a built-in material; expected a new name (adjust "
                                  "a built-in material with per-layer overrides)", spec, name,
                                  path)
@@ -913,8 +782,8 @@ class _Builder:
     def check_grade_overrides(self, grade, overrides, entry, path):
         """Overrides of a graded layer must apply at both of its ends."""
         try:
-            along = _materials.grade_function(grade.start, grade.end, self.temperature_K,
-                                                    dict(self.user_materials) or None)
+            along = self.material_set.grade_function(grade.start, grade.end, self.temperature_K,
+                                                     dict(self.user_materials) or None)
             for f in (0.0, 1.0):
                 _apply_overrides(along(f), overrides)
         except (MaterialError, TypeError, ValueError) as exc:
@@ -948,6 +817,10 @@ class _Builder:
             raise self.error(f"thickness {_short(value)} exceeds the {MAX_TOTAL_THICKNESS_NM:g} nm "
                              "(100 um) limit of a stack; expected a thinner layer", entry,
                              "thickness", tpath)
+        if t < MIN_THICKNESS_NM:
+            raise self.error(f"thickness {_short(value)} is below {MIN_THICKNESS_NM:g} nm "
+                             "(far below one monolayer); expected a layer thickness of at least "
+                             f"{MIN_THICKNESS_NM:g} nm", entry, "thickness", tpath)
         return t
 
     def parse_grade(self, entry, path) -> Grade:
@@ -984,8 +857,8 @@ class _Builder:
         if (start, end) in self.seen_grades:
             return Grade(start=start, end=end, shape=shape, vertex=vertex)
         try:
-            _materials.grade_function(start, end, self.temperature_K,
-                                            dict(self.user_materials) or None)
+            self.material_set.grade_function(start, end, self.temperature_K,
+                                             dict(self.user_materials) or None)
         except MaterialError as exc:
             raise self.error(_expecting(exc, "two materials that share band parameters"),
                              entry, "grade", gpath) from None
@@ -1009,6 +882,8 @@ class _Builder:
                 if not math.isfinite(v) or v < 0:
                     raise self.error(f"negative density {_short(spec[key])}; expected a density "
                                      f">= 0 in {unit}", spec, key, f"{dpath}.{key}")
+                self.in_range("volume_density" if unit == "cm^-3" else "sheet_density", v,
+                              spec, key, f"{dpath}.{key}")
                 vals[fld] = v
         for key, fld in (("from", "from_nm"), ("to", "to_nm"), ("at", "at_nm")):
             if key in spec:
@@ -1028,6 +903,7 @@ class _Builder:
                 raise self.error(f"donor level {_short(spec['donor_level'])} is negative; "
                                  "expected an energy >= 0 below the conduction edge "
                                  "(e.g. '6 meV')", spec, "donor_level", kpath)
+            self.in_range("donor_level", v, spec, "donor_level", kpath)
             vals["donor_level_eV"] = v
         has_volume = "donors" in spec or "acceptors" in spec
         has_sheet = "sheet" in spec or "sheet_acceptors" in spec
@@ -1132,10 +1008,18 @@ class _Builder:
                 raise self.error(f"got {_type_word(v)}; expected a free-text stack name", top,
                                  "name", "name")
             name = _one_line(str(v))
+            if len(name) > MAX_NAME_CHARS:
+                raise self.error(f"the name is {len(name)} characters long; expected a stack "
+                                 f"name of at most {MAX_NAME_CHARS} characters", top, "name",
+                                 "name")
 
         if "temperature" in top:
             t = self.quantity(top, "temperature", "K", "temperature")
-            if not math.isfinite(t) or t <= 0:
+            if not math.isfinite(t):
+                raise self.error(f"temperature {_short(top['temperature'])} is not finite; "
+                                 "expected a temperature > 0 K (e.g. '77 K')", top,
+                                 "temperature", "temperature")
+            if t <= 0:
                 raise self.error(f"temperature {_short(top['temperature'])} is not above 0 K; "
                                  "expected a temperature > 0 K (e.g. '77 K')", top,
                                  "temperature", "temperature")
@@ -1146,6 +1030,7 @@ class _Builder:
                                  top, "temperature", "temperature")
             self.temperature_K = t
 
+        self.build_material_set(top)
         if "materials" in top:
             self.build_user_materials(top)
 
@@ -1171,6 +1056,7 @@ class _Builder:
         if "fermi_level" in top and top["fermi_level"] is not None:
             fermi = self.finite(self.quantity(top, "fermi_level", "eV", "fermi_level"), top,
                                 "fermi_level", "fermi_level", expected_words("eV"))
+            self.in_range("fermi_level", fermi, top, "fermi_level", "fermi_level")
 
         declared = self.declared_line(top) if "line" in top and top["line"] is not None \
             else None
@@ -1192,7 +1078,7 @@ class _Builder:
                      self_consistent=selfc, fermi_level_eV=fermi,
                      user_materials=MappingProxyType(dict(self.user_materials)),
                      layers=tuple(layers), repeats=tuple(repeats), raw=top,
-                     declared_line=declared)
+                     declared_line=declared, material_set=self.material_set)
 
     def declared_line(self, top) -> DeclaredLine:
         """The ``line:`` block: a transition name and an optional spectral target."""
@@ -1236,6 +1122,34 @@ class _Builder:
         return DeclaredLine(transition=name.strip(), target_eV=target_eV,
                             target_text=target_text, line=self.line(top, "line"))
 
+    def build_material_set(self, top):
+        """Read the stack's ``library`` files (relative to the stack) and the per-call ones."""
+        libs = []
+        if "library" in top and top["library"] is not None:
+            spec = top["library"]
+            items = spec if isinstance(spec, list) else [spec]
+            base = Path(self.file).parent if self.file else Path(".")
+            for i, item in enumerate(items):
+                container, key = (spec, i) if isinstance(spec, list) else (top, "library")
+                kpath = f"library[{i}]" if isinstance(spec, list) else "library"
+                if not isinstance(item, str) or not item.strip():
+                    raise self.error(f"got {_type_word(item)}; expected the path of a material "
+                                     "library file (relative to the stack file) or a list of "
+                                     "them", container, key, kpath)
+                p = Path(item.strip()).expanduser()
+                path = p if p.is_absolute() else base / p
+                line = self.line(container, key)
+                libs.append(load_library(path, referenced_by=(self.file, line, kpath)))
+        for item in self.call_libraries:
+            resolved = str(Path(item).expanduser().resolve())
+            if any(lib.resolved == resolved for lib in libs):
+                continue  # already named by the stack (e.g. a stack rebuilt from its raw)
+            libs.append(load_library(item, referenced_by=(None, None, "libraries")))
+        if libs:
+            # absolute paths: a stack rebuilt from raw, or written elsewhere, finds them
+            top["library"] = [lib.resolved for lib in libs]
+            self.material_set = _material_set(libs)
+
 
 def _spec_text(value) -> str:
     if isinstance(value, str):
@@ -1268,8 +1182,8 @@ def _plain_copy(value, _depth: int = 0):
 def layer_fields(stack: Stack, entry: Mapping, path: str = "layer") -> dict:
     """Check one written (non-repeat) layer entry as the loader does and build its fields.
 
-    The entry is validated in the context of ``stack`` (its temperature and
-    user materials) by the same code that loads a file, so a caller that
+    The entry is validated in the context of ``stack`` (its temperature,
+    user materials and material libraries) by the same code that loads a file, so a caller that
     changes one layer of :attr:`Stack.raw` can rebuild only that layer.
 
     Parameters
@@ -1294,11 +1208,12 @@ def layer_fields(stack: Stack, entry: Mapping, path: str = "layer") -> dict:
     builder = _Builder(entry, {}, stack.path)
     builder.temperature_K = stack.temperature_K
     builder.user_materials = dict(stack.user_materials)
+    builder.material_set = getattr(stack, "material_set", None) or _BUILTIN_SET
     builder.user_keys = dict(_materials.USER_KEYS)
     return builder.parse_layer(entry, path, {})
 
 
-def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
+def stack_from_mapping(data: Mapping, file: str | None = None, libraries=()) -> Stack:
     """Build a :class:`Stack` from an already parsed mapping (no line numbers).
 
     Parameters
@@ -1308,39 +1223,41 @@ def stack_from_mapping(data: Mapping, file: str | None = None) -> Stack:
         values are strings like ``'5 nm'`` or pint Quantities.  It is copied,
         so later changes to ``data`` do not affect the stack.
     file : str, optional
-        Name used in error messages and as the default stack name.
+        Name used in error messages and as the default stack name; a
+        relative ``library`` path is read relative to it.
+    libraries : iterable of path, optional
+        Material libraries applied after the stack's own (later ones win).
 
     Raises
     ------
     StackError
+
+    Examples
+    --------
+    >>> from qwell import stack_from_mapping
+    >>> stack = stack_from_mapping({"name": "test well", "layers": [
+    ...     {"material": "Al0.3Ga0.7As", "thickness": "20 nm"},
+    ...     {"material": "GaAs", "thickness": "8 nm", "name": "well"},
+    ...     {"material": "Al0.3Ga0.7As", "thickness": "20 nm"}]})
+    >>> stack.layers[1].thickness_nm
+    8.0
     """
     raw = _plain_copy(data)
-    builder = _Builder(raw, {}, None if file is None else str(file))
+    builder = _Builder(raw, {}, None if file is None else str(file), libraries)
     return builder.build(None if file is None else str(file), None, _stem(file))
 
 
 def _decode(data: bytes, file: str | None) -> str:
-    if len(data) > MAX_FILE_BYTES:
-        raise StackError(f"file is {len(data) / 1e6:.3g} MB, over the {MAX_FILE_BYTES / 1e6:.3g} "
-                         "MB limit; expected a stack file of a few kB", file=file)
-    if b"\x00" in data:
-        raise StackError("binary file (contains NUL bytes); expected a YAML text file",
-                         file=file)
-    try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = data[: exc.start].count(b"\n") + 1
-        raise StackError(f"not UTF-8 text (byte 0x{data[exc.start]:02x} at offset {exc.start}); "
-                         "expected a UTF-8 YAML text file", file=file, line=line) from None
+    return decode_text(data, file, MAX_FILE_BYTES)
 
 
-def _from_text(text: str, file: str | None, sha: str) -> Stack:
+def _from_text(text: str, file: str | None, sha: str, libraries=()) -> Stack:
     data, marks = _parse_yaml(text, file)
-    builder = _Builder(data, marks, file)
+    builder = _Builder(data, marks, file, libraries)
     return builder.build(file, sha, _stem(file))
 
 
-def stack_from_text(text: str, file: str | None = None) -> Stack:
+def stack_from_text(text: str, file: str | None = None, libraries=()) -> Stack:
     """Read a stack from YAML text.
 
     Parameters
@@ -1349,6 +1266,8 @@ def stack_from_text(text: str, file: str | None = None) -> Stack:
         The YAML document.
     file : str, optional
         File name for messages (and the default stack name).
+    libraries : iterable of path, optional
+        Material libraries applied after the stack's own (later ones win).
 
     Raises
     ------
@@ -1367,15 +1286,18 @@ def stack_from_text(text: str, file: str | None = None) -> Stack:
                          f"{MAX_FILE_BYTES / 1e6:.3g} MB limit; expected a stack of a few kB",
                          file=file)
     return _from_text(text, None if file is None else str(file),
-                      hashlib.sha256(encoded).hexdigest())
+                      hashlib.sha256(encoded).hexdigest(), libraries)
 
 
-def load_stack(path) -> Stack:
+def load_stack(path, libraries=()) -> Stack:
     """Read and check a stack file.
 
     Parameters
     ----------
     path : str or os.PathLike
+    libraries : iterable of path, optional
+        Material libraries applied after the stack's own ``library`` files
+        (later ones win), e.g. from ``--library`` on the command line.
 
     Returns
     -------
@@ -1386,26 +1308,20 @@ def load_stack(path) -> Stack:
     StackError
         Missing or unreadable file, oversized or binary file, invalid YAML or
         an invalid stack (see the module docstring).
+
+    Examples
+    --------
+    >>> from qwell import load_stack
+    >>> stack = load_stack("layers/lwir-detector.yaml")
+    >>> [layer.name for layer in stack.layers]
+    ['bottom_barrier', 'well', 'top_barrier']
+    >>> round(stack.layers[1].thickness_nm, 4)       # 19 ML of GaAs
+    5.3624
     """
     file = os.fspath(path)
-    p = Path(file)
-    if not p.exists():
-        raise StackError("file does not exist; expected the path of a YAML stack file",
-                         file=file)
-    if p.is_dir():
-        raise StackError("is a directory; expected a YAML stack file", file=file)
-    try:
-        size = p.stat().st_size
-        if size > MAX_FILE_BYTES:
-            raise StackError(f"file is {size / 1e6:.3g} MB, over the {MAX_FILE_BYTES / 1e6:.3g} "
-                             "MB limit; expected a stack file of a few kB", file=file)
-        with open(p, "rb") as fh:
-            data = fh.read(MAX_FILE_BYTES + 1)
-    except OSError as exc:
-        raise StackError(f"cannot read the file ({_one_line(exc.strerror or exc)}); expected a "
-                         "readable YAML stack file", file=file) from None
+    data = read_regular_file(file, MAX_FILE_BYTES)
     text = _decode(data, file)
-    return _from_text(text, file, hashlib.sha256(data).hexdigest())
+    return _from_text(text, file, hashlib.sha256(data).hexdigest(), libraries)
 
 
 # -- writing --------------------------------------------------------------------------
@@ -1434,7 +1350,14 @@ _StackDumper.add_multi_representer(np.integer, _represent_np_int)
 _StackDumper.add_representer(MappingProxyType, _represent_mapping_proxy)
 
 
-_StackDumper.add_multi_representer(ureg.Quantity, _represent_quantity)
+def _represent_any(dumper, data):
+    # pint Quantities (only present if pint was imported) as '5.3 nm' strings
+    if is_quantity(data):
+        return _represent_quantity(dumper, data)
+    return dumper.represent_undefined(data)
+
+
+_StackDumper.add_multi_representer(object, _represent_any)
 
 
 def _no_aliases(self, data):  # write every layer out in full

@@ -171,8 +171,8 @@ def _monolayer_of(stack: Stack, layer) -> float | None:
         if layer.grade is None:
             mat = stack.material_of(layer)
         else:
-            mat = materials.get_material(layer.grade.start, stack.temperature_K,
-                                         dict(stack.user_materials) or None)
+            mat = stack.material_set.get_material(layer.grade.start, stack.temperature_K,
+                                                  dict(stack.user_materials) or None)
     except QwellError:
         return None
     return mat.monolayer_nm

@@ -37,10 +37,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from scipy.optimize import brentq
 
 from .errors import MaterialError
 from .materials import Material
+from .rootfind import brentq
 
 __all__ = ["Strain", "strain", "critical_thickness_nm", "LATTICE_MATCH_TOLERANCE"]
 

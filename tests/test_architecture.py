@@ -19,19 +19,21 @@ ROOT = Path(__file__).resolve().parents[1] / "qwell"
 #: below.  Sub-packages (materials/, solvers/, and design/, report/, cli/ when they are
 #: packages) count as one entry: their modules share the layer.
 LAYERS = (
-    ("constants", "errors"),
-    ("units",),
-    ("fileio", "parallel"),
+    ("constants", "errors", "rootfind"),
+    ("unit_table",),
+    ("units", "spectral"),
+    ("fileio", "parallel", "yamlio"),
     ("materials",),
     ("strain", "formula"),
-    ("stack", "stack_edit"),
-    ("bands", "profile"),
+    ("stack", "stack_edit", "stack_text"),
+    ("bands", "profile", "reference"),
     ("solvers",),
-    ("optics", "poisson", "lifetimes", "absorption", "gain", "excitons"),
+    ("optics", "poisson", "lifetimes", "carriers", "excitons"),
     ("selfconsistent",),
     ("levels",),
+    ("absorption", "gain"),     # stack-level spectra: they solve a stack through levels
     ("design",),
-    ("plots", "diagram"),
+    ("plots", "diagram", "spectra_plots"),
     ("report",),
     ("cli",),
     ("qwell",),                 # the package itself: the public API imports everything

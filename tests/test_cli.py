@@ -292,7 +292,8 @@ def test_parser_has_the_commands_the_readme_lists():
     from qwell.cli import build_parser
     readme = (ROOT / "README.md").read_text()
     listed = set(re.findall(r"^\| `qwell (\w+)", readme, flags=re.M))
-    assert listed == {"materials", "profile", "levels", "size", "sweep", "tolerance", "report"}
+    assert listed == {"materials", "profile", "levels", "size", "sweep", "tolerance", "report",
+                      "absorption", "gain"}
     for _ in range(2):
         sub = next(a for a in build_parser()._actions if a.dest == "command")
         assert set(sub.choices) == listed

@@ -31,6 +31,7 @@ from qwell.levels import solve_stack
 from qwell.materials import parse_formula
 from qwell.stack import load_stack, stack_from_mapping, stack_from_text
 from qwell.units import thickness_nm
+from qwell.cli.json_out import sweep_json
 
 ROOT = Path(__file__).resolve().parents[1]
 LWIR = ROOT / "layers" / "lwir-detector.yaml"
@@ -335,7 +336,7 @@ def test_sweep_unbound_states_are_null():
     # e2 being bound just above ~4.8 nm); states absent at a point are null, not dropped.
     stack = load_stack(LWIR)
     res = design.sweep(stack, "well.thickness", [6.0, 4.0, 3.0], ["e1-e2"])
-    j = res.to_json()
+    j = sweep_json(res)
     assert j["parameter"] == "well.thickness" and j["unit"] == "nm"
     assert j["states"]["e2"][0] is not None and j["states"]["e2"][2] is None
     assert j["transitions"]["e1-e2"]["wavelength_um"][2] is None
@@ -389,7 +390,7 @@ def test_sweep_bad_inputs():
     stack = load_stack(LWIR)
     with pytest.raises(ParameterError, match="well.thickness = -1 nm is invalid"):
         design.sweep(stack, "well.thickness", np.linspace(2.0, -1.0, 3))
-    with pytest.raises(ParameterError, match="'e1-e3' does not exist at the start point"):
+    with pytest.raises(ParameterError, match="'e1-e3' does not exist anywhere in the sweep"):
         design.sweep(stack, "well.thickness", [5.0, 6.0], ["e1-e3"])
     with pytest.raises(ParameterError, match="valid parameters"):
         design.sweep(stack, "barrier.x", [0.1, 0.2])
@@ -403,7 +404,7 @@ def test_sweep_two_dimensional_map(tmp_path):
     # the map point equals the single design at those two values (same code path)
     pt = design.design_point(stack, {"well.thickness": 5.5, "top_barrier.x": 0.26})
     assert res.wavelength_um["e1-e2"][1, 2] == pt.wavelength("e1-e2")
-    j = res.to_json()
+    j = sweep_json(res)
     assert j["parameter"] == ["well.thickness", "top_barrier.x"]
     assert set(j["transitions"]["e1-e2"]["sensitivity_nm_per_unit"]) == {"well.thickness",
                                                                          "top_barrier.x"}

@@ -31,6 +31,7 @@ from qwell.optics import (
     strength,
 )
 from qwell.solvers.results import Levels, State
+from qwell.cli.json_out import transition_json
 
 # ħ²/(2 m0) in eV nm², CODATA via scipy.constants.
 HB2 = sc.hbar ** 2 / (2 * sc.m_e) / sc.e * 1e18
@@ -355,9 +356,10 @@ def test_select_and_json_contract():
     with pytest.raises(ParameterError) as err:
         select_transitions(ts, ["e1-e4"])
     assert "e1-e2" in str(err.value) and "e2-e3" in str(err.value)
-    d = ts[0].to_json()
+    d = transition_json(ts[0])
     assert set(d) == {"from", "to", "kind", "energy_eV", "wavelength_um", "wavenumber_cm1",
-                      "frequency_THz", "dipole_nm", "oscillator_strength", "overlap", "te",
+                      "frequency_THz", "wavelength_nm", "energy_meV", "dipole_nm",
+                      "oscillator_strength", "overlap", "te",
                       "tm", "strongest"}
     assert d["from"] == "e1" and d["to"] == "e2" and d["overlap"] is None
     text = json.dumps(d)

@@ -9,6 +9,7 @@ from qwell.materials import get_material
 from qwell.profile import FIELD_EV_PER_NM_PER_KV_CM, band_profile
 from qwell.stack import stack_from_text
 from qwell.strain import strain
+from qwell.cli.json_out import profile_json
 
 
 def _stack(text):
@@ -111,7 +112,7 @@ layers:
     assert lay.strain_shift_conduction_eV == pytest.approx(s.delta_conduction_eV)
     assert lay.strain_shift_heavy_hole_eV == pytest.approx(s.delta_heavy_hole_eV)
     assert lay.strain_shift_light_hole_eV == pytest.approx(s.delta_light_hole_eV)
-    assert prof.to_json()["layers"][1]["strain_shift_conduction_eV"] == pytest.approx(
+    assert profile_json(prof)["layers"][1]["strain_shift_conduction_eV"] == pytest.approx(
         s.delta_conduction_eV)
     cb = prof.bands["conduction"]
     assert cb.potential([23.0])[0] == pytest.approx(mat.conduction_edge_eV + s.delta_conduction_eV)
@@ -163,7 +164,7 @@ layers:
   - {material: Al0.30Ga0.70As, thickness: 10 nm, name: right}
 """)
     prof = band_profile(st)
-    js = prof.to_json()
+    js = profile_json(prof)
     for key in ("z_nm", "conduction_edge_eV", "heavy_hole_edge_eV", "light_hole_edge_eV",
                 "electron_mass", "layers"):
         assert key in js

@@ -40,9 +40,8 @@ from qwell.diagram import (
     DIAGRAM_SIZE_IN,
     band_diagram_figure,
     spread_positions,
-    wavefunction_amplitude_eV,
 )
-from qwell.errors import ParameterError, QwellError
+from qwell.errors import ParameterError, QwellError, ValidityWarning
 from qwell.stack import load_stack
 
 pypdf = pytest.importorskip("pypdf")
@@ -150,7 +149,10 @@ def laser_report(tmp_path_factory):
     src = d / "laser.yaml"
     src.write_text(LASER_YAML)
     stack = load_stack(src)
-    res = rp.build_report(stack, out_dir=d)
+    # the shallow InGaAs/GaAs conduction well: at the gain page's densities the quasi-Fermi
+    # levels reach the GaAs edge, a caution the report lists (continuum carriers not counted)
+    with pytest.warns(ValidityWarning, match="validity warning"):
+        res = rp.build_report(stack, out_dir=d)
     return {"src": src, "res": res, "stack": stack, "pages": _pdf_pages(res.pdf_path)}
 
 
@@ -230,7 +232,9 @@ def test_thickness_sensitivity_against_finite_well_equations(well_report, gaas):
         rr = rows[(side, "thickness")]
         assert abs(rr.plus_nm) <= tol and abs(rr.minus_nm) <= tol
     text = _norm("\n".join(well_report["pages"]))
-    assert f"{r.plus_nm:+.2f}" in text and f"{r.minus_nm:+.2f}" in text
+    # a 9 µm line: the report gives its shifts in µm (the unit of its spectral region)
+    assert "Δλ for −step (µm)" in text
+    assert f"{r.plus_nm / 1e3:+.5f}" in text and f"{r.minus_nm / 1e3:+.5f}" in text
 
 
 def test_pdf_cites_sources_and_prints_cautions(well_report, gaas):
@@ -503,13 +507,6 @@ def test_spread_positions_stays_in_range():
     assert np.allclose(np.sort(out), [0.0, 1.0, 2.0])
 
 
-def test_wavefunction_amplitude_below_level_spacing():
-    e = np.array([0.1, 0.15, 0.3])
-    amp = wavefunction_amplitude_eV(e, span_eV=1.0)
-    assert amp < 0.05                        # below the smallest spacing
-    assert amp >= 0.035                      # but visible (floor: 3.5 % of the span)
-
-
 def test_render_is_readable_pdf_in_memory(well_report):
     data_bytes, n = rp.render_pdf(well_report["data"])
     reader = pypdf.PdfReader(io.BytesIO(data_bytes))
@@ -577,7 +574,7 @@ def test_composition_next_to_the_end_of_its_range_is_one_sided(tmp_path):
     by = {(r.layer, r.parameter): r for r in rows}
     r = by[("well", "x (AlGaAs)")]
     assert r.minus_nm is None and r.plus_nm is not None
-    assert r.per_unit_nm == r.plus_nm and r.note == "one-sided (+ step only)"
+    assert r.per_unit_nm == r.plus_nm and "one-sided (+ step only)" in r.note
     # more Al in the well raises e1 and e2 unequally; the line must move
     assert r.plus_nm != 0.0
     both = by[("lower", "x (AlGaAs)")]
@@ -586,18 +583,18 @@ def test_composition_next_to_the_end_of_its_range_is_one_sided(tmp_path):
 
 def test_a_design_the_engine_refuses_becomes_a_note(well_report, monkeypatch):
     # the engine refusing one design (here: forced) must not lose the others
-    from qwell import design
+    from qwell.design import evaluate
 
     data = well_report["data"]
-    real = design.evaluate_many
+    real = evaluate._solve_design
     thinner = data.stack.layers[1].thickness_nm - 1e-6
 
-    def refusing(stack, value_sets, **kw):
-        if any(v.get("well.thickness", 1e9) < thinner for v in value_sets):
+    def refusing(stack, *args, **kw):
+        if stack.layers[1].thickness_nm < thinner:
             raise ParameterError("well.thickness: refused for this test")
-        return real(stack, value_sets, **kw)
+        return real(stack, *args, **kw)
 
-    monkeypatch.setattr(design, "evaluate_many", refusing)
+    monkeypatch.setattr(evaluate, "_solve_design", refusing)
     rows, notes = rp.sensitivity_rows(data.stack, data.chosen, jobs=1)
     by = {(r.layer, r.parameter): r for r in rows}
     ref = {(r.layer, r.parameter): r for r in data.sensitivity}

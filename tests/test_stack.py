@@ -784,9 +784,10 @@ def test_unknown_substrate():
 
 
 def test_override_out_of_range():
-    with pytest.raises(StackError, match=r"cannot apply the overrides.*band_gap_eV") as info:
+    # refused by the range check (README limits table) before any material is built
+    with pytest.raises(StackError, match=r"expected a band gap from 0 to 20 eV") as info:
         stack_from_text("layers:\n  - {material: GaAs, thickness: 2 nm, band_gap: -1 eV}\n")
-    assert info.value.line == 2
+    assert info.value.line == 2 and info.value.key == "layers[0].band_gap"
 
 
 def test_validity_warning_passes_through_each_load():
@@ -806,6 +807,7 @@ def test_grade_overrides_kept_and_checked():
     assert dict(stack.layers[0].overrides) == {_user_field("electron_mass"): 0.07}
     bad = ("layers:\n  - grade: {from: Al0.30Ga0.70As, to: GaAs}\n    thickness: 10 nm\n"
            "    electron_mass: -0.07\n")
-    with pytest.raises(StackError, match=r"cannot apply the overrides along the grade") as info:
+    # the range check names the override's own line and key
+    with pytest.raises(StackError, match=r"must be positive") as info:
         stack_from_text(bad)
-    assert info.value.line == 2
+    assert info.value.line == 4 and info.value.key == "layers[0].electron_mass"

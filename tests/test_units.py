@@ -1,10 +1,12 @@
 """Unit handling at the edges (qwell.units)."""
 
+import time
+
 import pytest
 from scipy import constants as sc
 
 from qwell.errors import UnitError
-from qwell.units import HC_EV_UM, eV_to_um, spectral_to_eV, thickness_nm, to_float
+from qwell.units import HC_EV_UM, eV_to_um, out_of_range, spectral_to_eV, thickness_nm, to_float
 
 
 def test_hc_from_codata():
@@ -63,3 +65,30 @@ def test_spectral_other_forms():
     assert eV_to_um(1.0) == pytest.approx(HC_EV_UM)
     with pytest.raises(UnitError, match="not a wavelength, energy, wavenumber or frequency"):
         spectral_to_eV("3 kg")
+
+
+@pytest.mark.parametrize("text", ["9**9**9 nm", "10**400 nm", "5 nm + 3 nm", "2*3 nm", "(5) nm",
+                                  "5 nm**9**9", "__import__('os') nm", "1e400 nm", "inf nm",
+                                  "nan eV", "5 nm^-99"])
+def test_no_arithmetic_and_no_overflow(text):
+    # only a number and a unit expression reach pint; nothing is evaluated, and a number
+    # or a unit power that overflows a float is refused (common practice, no source)
+    t0 = time.perf_counter()
+    with pytest.raises(UnitError):
+        to_float(text, "nm")
+    assert time.perf_counter() - t0 < 1.0
+
+
+@pytest.mark.parametrize("text, unit, value", [
+    ("1e18 cm^-3", "cm^-3", 1e18), ("1100 cm**-1", "1/cm", 1100.0), ("12 kV / cm", "kV/cm", 12.0),
+    ("1 1/um", "1/um", 1.0), ("2.5E-3 eV", "eV", 2.5e-3), ("+5 nm", "nm", 5.0),
+])
+def test_unit_expressions_still_read(text, unit, value):
+    assert to_float(text, unit) == pytest.approx(value, rel=1e-12)
+
+
+def test_ranges_refuse_outside_and_non_finite():
+    assert out_of_range("mass", 0.067) is None
+    assert "from 0.001 to 100 m0" in out_of_range("mass", 1e6)
+    assert "must be positive" in out_of_range("mass", -0.1)
+    assert "not finite" in out_of_range("temperature", float("inf"))

@@ -7,8 +7,8 @@ is half-written.
 
 One module per command group adds its sub-commands with ``register``:
 :mod:`~qwell.cli.materials`, :mod:`~qwell.cli.profile`,
-:mod:`~qwell.cli.levels`, :mod:`~qwell.cli.design` (size, sweep, tolerance)
-and :mod:`~qwell.cli.report`; :mod:`~qwell.cli.common` holds what they share.
+:mod:`~qwell.cli.levels`, :mod:`~qwell.cli.design` (size, sweep, tolerance),
+:mod:`~qwell.cli.report` and :mod:`~qwell.cli.spectra` (absorption, gain); :mod:`~qwell.cli.common` holds what they share.
 """
 
 from __future__ import annotations
@@ -16,13 +16,14 @@ from __future__ import annotations
 import argparse
 import os
 import re
+import signal
 import sys
 import warnings
 
 from .. import __version__
-from ..errors import QwellError, QwellWarning
-from . import design, levels, materials, profile, report
-from .common import EXIT_USAGE
+from ..errors import QwellError, QwellWarning, one_line
+from . import design, levels, materials, profile, report, spectra
+from .common import EXIT_USAGE, locate_error
 
 __all__ = ["main", "build_parser", "EXIT_USAGE"]
 
@@ -43,6 +44,7 @@ def build_parser() -> argparse.ArgumentParser:
     levels.register(sub)
     design.register(sub)
     report.register(sub)
+    spectra.register(sub)
     return p
 
 
@@ -68,7 +70,28 @@ def _error_line(exc: QwellError) -> str:
     if hist and "history" not in msg:
         shown = ", ".join(f"{h:.3g}" for h in list(hist)[-12:])
         msg += f" (residual history, meV: {shown})"
-    return f"qwell: error: {msg}"
+    return f"qwell: error: {one_line(msg)}"
+
+
+def _terminate(signum, frame):
+    raise KeyboardInterrupt
+
+
+def _stop_on_sigterm():
+    """SIGTERM ends a run like Ctrl-C (one line, exit 130, no partial output); returns the
+    previous handler, or None when not in the main thread (no handler installed)."""
+    try:
+        return signal.signal(signal.SIGTERM, _terminate)
+    except (ValueError, OSError, AttributeError):  # not the main thread, or no SIGTERM
+        return None
+
+
+def _restore_sigterm(previous) -> None:
+    if previous is not None:
+        try:
+            signal.signal(signal.SIGTERM, previous)
+        except (ValueError, OSError):
+            pass
 
 
 def main(argv=None) -> int:
@@ -79,24 +102,31 @@ def main(argv=None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_USAGE
+    previous = _stop_on_sigterm()
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", QwellWarning)
         try:
             rc = args.func(args)
         except QwellError as exc:
-            print(_error_line(exc), file=sys.stderr)
+            print(_error_line(locate_error(exc, getattr(args, "stack", None))), file=sys.stderr)
             return EXIT_USAGE
         except KeyboardInterrupt:
             print("qwell: interrupted", file=sys.stderr)
             return 130
         except BrokenPipeError:
             return 0
+        except MemoryError:
+            print("qwell: error: out of memory; expected a smaller stack or run (see the limits "
+                  "table in the README)", file=sys.stderr)
+            return EXIT_USAGE
         except Exception as exc:  # a bug: one line, details on request
             if os.environ.get("QWELL_DEBUG"):
                 raise
-            print(f"qwell: internal error: {type(exc).__name__}: {exc} "
-                  "(set QWELL_DEBUG=1 for details; please report it)", file=sys.stderr)
+            print(one_line(f"qwell: internal error: {type(exc).__name__}: {exc} "
+                           "(set QWELL_DEBUG=1 for details; please report it)"), file=sys.stderr)
             return 1
+        finally:
+            _restore_sigterm(previous)
     seen = set()
     for w in caught:
         if issubclass(w.category, QwellWarning):

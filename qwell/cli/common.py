@@ -6,20 +6,29 @@ passed in as arguments.
 
 from __future__ import annotations
 
+import argparse
 import json
 import math
 import sys
+import warnings
 from dataclasses import replace
 
 import numpy as np
 
+from ..constants import HBAR2_2M0_EV_NM2
+from ..errors import ConvergenceError, QwellError, StackError, ValidityWarning
 from ..levels import prepare_profile
+from ..materials import load_library
 from ..profile import band_profile
+from ..spectral import UNITS, parse_unit
 from ..stack import load_stack
+from ..units import format_exponent
 
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
            "print_warnings", "print_stack_warnings",
-           "table", "fmt", "unit_text", "add_self_consistent_option"]
+           "table", "fmt", "unit_text", "add_self_consistent_option", "add_library_option",
+           "add_unit_option", "check_work", "estimate_bound_states", "MAX_BOUND_STATES_PER_BAND",
+           "MAX_SOLVED_LAYERS", "locate_error"]
 
 #: Exit status of every user error (bad input, bad option).
 EXIT_USAGE = 2
@@ -32,10 +41,88 @@ def add_self_consistent_option(parser) -> None:
                              "(also set by 'self_consistent: true' in the stack)")
 
 
-def load(path, self_consistent: bool = False):
+#: Most bound states one band of an accepted stack may hold (a semiclassical count made
+#: before any solve): beyond it the states, envelopes and transitions would need more than
+#: ~1 GB and minutes.  A 1000-period superlattice with one miniband stays below it.
+MAX_BOUND_STATES_PER_BAND = 1500
+#: Most expanded layers a command solves (the loader alone accepts more): the solve time
+#: grows with the layer count, and 2,500 layers stay within ~30 s for ``levels``.
+MAX_SOLVED_LAYERS = 2500
+
+
+def estimate_bound_states(band) -> float:
+    """Semiclassical count of the bound states of a band (no solve).
+
+    N ≈ (1/π) ∫ sqrt(2 m(z) (E_lim - V(z))) / ħ dz over the stack, with E_lim the lower
+    cladding edge, evaluated at the middle of every piece (common practice, no source:
+    the Bohr-Sommerfeld phase integral).
+    """
+    starts = np.array([p.z_start_nm for p in band.pieces])
+    ends = np.array([p.z_end_nm for p in band.pieces])
+    if starts.size == 0:
+        return 0.0
+    mid = 0.5 * (starts + ends)
+    depth = np.maximum(band.confinement_limit_eV - band.potential(mid), 0.0)
+    k = np.sqrt(np.abs(band.edge_mass(mid)) * depth / HBAR2_2M0_EV_NM2)
+    return float(np.sum(k * (ends - starts)) / math.pi)
+
+
+def check_work(stack) -> None:
+    """Refuse a stack whose bound-state count (estimated on the flat-band profile) exceeds
+    :data:`MAX_BOUND_STATES_PER_BAND` in any band, before any solve or allocation.
+
+    Raises
+    ------
+    StackError
+        Naming the file, the band, the estimate and the limit.
+    """
+    if len(stack.layers) > MAX_SOLVED_LAYERS:
+        raise StackError(f"{len(stack.layers):,} layers after expanding the repeats, above the "
+                         f"limit of {MAX_SOLVED_LAYERS:,} for a solve (about 10 s per 1,000 "
+                         "layers); expected fewer periods", file=stack.path, key="layers")
+    prof = band_profile(stack)
+    for name, band in prof.bands.items():
+        n = estimate_bound_states(band)
+        if n > MAX_BOUND_STATES_PER_BAND:
+            raise StackError(f"the {name.replace('_', ' ')} band would hold about {n:,.0f} bound "
+                             f"states, above the limit of {MAX_BOUND_STATES_PER_BAND:,} (time "
+                             "and memory); expected thinner wells, fewer periods or lighter "
+                             "masses", file=stack.path, key="layers")
+
+
+def add_library_option(parser) -> None:
+    """Add ``--library FILE`` (repeatable) to a command that loads a stack."""
+    parser.add_argument("--library", action="append", default=[], metavar="FILE",
+                        help="material library (YAML, see 'qwell materials --check'); "
+                             "repeatable, applied after the stack's own 'library:' files, later "
+                             "ones win")
+
+
+def _unit_choice(text: str) -> str:
+    try:
+        return parse_unit(text)
+    except ValueError as exc:  # argparse turns this into one line and exit 2
+        raise argparse.ArgumentTypeError(str(exc).split(": ", 1)[1]) from None
+
+
+def add_unit_option(parser) -> None:
+    """Add ``--unit`` (photon unit of printed lines) to a command that prints lines."""
+    parser.add_argument("--unit", type=_unit_choice, default=None, metavar="|".join(UNITS),
+                        help="photon unit of printed lines and spreads (default: by spectral "
+                             "region: nm below 2 µm, µm to 30 µm, THz with meV beyond)")
+
+
+def load(path, self_consistent: bool = False, libraries=()):
     """Load a stack; ``self_consistent`` (the ``--self-consistent`` flag) switches on the
-    charged path as if the stack said ``self_consistent: true``."""
-    stack = load_stack(path)
+    charged path as if the stack said ``self_consistent: true``; ``libraries`` (``--library``)
+    are applied after the stack's own.  A library's check warnings (Kane-mass disagreement)
+    are issued as :class:`~qwell.errors.ValidityWarning`."""
+    for lib in libraries or ():
+        load_library(lib)  # a bad --library file is named first (file:line:key), not via the stack
+    stack = load_stack(path, libraries=tuple(libraries or ()))
+    for issue in stack.material_set.warnings:
+        warnings.warn(f"material library {issue}", ValidityWarning, stacklevel=2)
+    check_work(stack)
     if self_consistent and not stack.self_consistent:
         stack = replace(stack, self_consistent=True,
                         raw={**dict(stack.raw), "self_consistent": True})
@@ -63,7 +150,8 @@ def print_self_consistent(sc, blank: bool = True) -> None:
           + ("not defined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV"))
     occ = {k: v for k, v in sc.sheet_densities_cm2.items() if v > 0}
     if occ:
-        print("sheet densities: " + ", ".join(f"{k} {v:.4g} cm⁻²" for k, v in occ.items()))
+        print("sheet densities: " + ", ".join(f"{k} {format_exponent(v)} cm⁻²"
+                                              for k, v in occ.items()))
     if blank:
         print()
 
@@ -127,3 +215,22 @@ def fmt(v, spec=".6g", none="—") -> str:
 def unit_text(unit) -> str:
     """' nm' for a unit, '' for a plain fraction."""
     return "" if unit == "fraction" else f" {unit}"
+
+
+def locate_error(exc, stack_path):
+    """A self-consistent failure (no neutral Fermi level, no convergence) as a StackError that
+    points at the stack file and its first doped layer; other errors unchanged."""
+    if not isinstance(exc, ConvergenceError) or not stack_path:
+        return exc
+    line, key = None, "self_consistent"
+    try:
+        stack = load_stack(stack_path)
+        doped = next((lay for lay in stack.layers if lay.doping is not None), None)
+        if doped is not None:
+            where = f"layers[{doped.index}]" if not stack.repeats else doped.label
+            line, key = doped.line, f"{where}.doping"
+    except QwellError:
+        pass
+    located = StackError(str(exc), file=str(stack_path), line=line, key=key)
+    located.history = list(getattr(exc, "history", []) or [])
+    return located

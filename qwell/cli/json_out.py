@@ -13,11 +13,15 @@ import math
 import numpy as np
 
 from ..levels import compare_methods, depolarised_lines
+from ..materials import material_provenance, provenance_json
+from ..spectral import line_unit, measures, spread_measures
 
-__all__ = ["material_list_json", "material_json", "layer_profile_json", "profile_json",
+__all__ = ["material_list_json", "material_json", "library_json", "library_check_json", "layer_profile_json", "profile_json",
            "self_consistent_json", "self_consistent_profile_json", "state_json",
            "miniband_json", "transition_json", "solution_json", "comparison_json", "levels_json",
-           "spectrum_json", "size_json", "sweep_json", "monte_carlo_json", "tolerance_json"]
+           "spectrum_json", "design_line_json", "size_json", "sweep_json", "monte_carlo_json", "tolerance_json",
+           "phonon_json", "rate_table_json", "radiative_json", "emitter_figure_json",
+           "lifetimes_json", "emitter_pairs_json"]
 
 
 def _finite(v):
@@ -38,11 +42,34 @@ def material_list_json(names) -> dict:
     return {"materials": names}
 
 
-def material_json(material, temperature_K: float) -> dict:
-    """One material at a temperature: composition, parameters and their sources."""
+def material_json(material, temperature_K: float, material_set=None) -> dict:
+    """One material at a temperature: composition, parameters, their sources, and the
+    provenance of each value (built-in with its citation and from-memory mark, library file
+    with path, SHA-256, line and the group's source text, or stack file; what a library value
+    replaced), plus the libraries applied in order."""
+    libs = material_set.libraries if material_set is not None else ()
     return {"name": material.name, "family": material.family,
             "composition": dict(material.composition), "temperature_K": temperature_K,
-            "parameters": material.parameters(), "sources": material.parameter_sources()}
+            "parameters": material.parameters(), "sources": material.parameter_sources(),
+            "provenance": provenance_json(material_provenance(material, material_set)),
+            "libraries": [library_json(lib) for lib in libs]}
+
+
+def library_json(library) -> dict:
+    """One applied material library: path, absolute path, SHA-256, name, values defined."""
+    return {"path": library.path, "resolved": library.resolved, "sha256": library.sha256,
+            "name": library.name, "values": len(library.entries)}
+
+
+def _issue_json(issue) -> dict:
+    return {"file": issue.file, "line": issue.line, "key": issue.key, "message": issue.message}
+
+
+def library_check_json(check) -> dict:
+    """Result of ``qwell materials --check FILE``."""
+    return {"path": check.path, "sha256": check.sha256, "usable": check.ok,
+            "values": check.defines, "errors": [_issue_json(i) for i in check.errors],
+            "warnings": [_issue_json(i) for i in check.warnings]}
 
 
 # ---------------------------------------------------------------------------
@@ -151,6 +178,8 @@ def transition_json(transition) -> dict:
     return {"from": t.initial, "to": t.final, "kind": t.kind,
             "energy_eV": float(t.energy_eV), "wavelength_um": float(t.wavelength_um),
             "wavenumber_cm1": float(t.wavenumber_cm1), "frequency_THz": float(t.frequency_THz),
+            "wavelength_nm": measures(t.energy_eV)["wavelength_nm"],
+            "energy_meV": measures(t.energy_eV)["energy_meV"],
             "dipole_nm": _optional(t.dipole_nm),
             "oscillator_strength": _optional(t.oscillator_strength),
             "overlap": _optional(t.overlap), "te": _optional(t.te), "tm": _optional(t.tm),
@@ -188,13 +217,13 @@ def comparison_json(stack, solutions: dict, transitions: dict) -> dict:
 
 
 def levels_json(stack, solutions: dict, transitions: dict, *, spectrum=None,
-                wavefunctions: bool = False) -> dict:
+                wavefunctions: bool = False, lifetimes=None) -> dict:
     """The ``qwell levels --json`` document.
 
     One method: its solution with ``transitions[method]``, the depolarisation-
-    shifted lines of a doped stack, each state's envelope (``wavefunctions``)
-    and the plotted ``spectrum`` when given.  Two methods:
-    :func:`comparison_json`.
+    shifted lines of a doped stack, each state's envelope (``wavefunctions``),
+    the plotted ``spectrum`` and the ``lifetimes`` (:func:`lifetimes_json`) when
+    given.  Two methods: :func:`comparison_json`.
     """
     if len(solutions) > 1:
         return comparison_json(stack, solutions, transitions)
@@ -204,7 +233,80 @@ def levels_json(stack, solutions: dict, transitions: dict, *, spectrum=None,
         out["depolarisation"] = depolarised_lines(sol)
     if spectrum is not None:
         out["spectrum"] = spectrum_json(spectrum)
+    if lifetimes is not None:
+        out["lifetimes"] = lifetimes_json(lifetimes)
     return out
+
+
+# ---------------------------------------------------------------------------
+# lifetimes
+# ---------------------------------------------------------------------------
+def phonon_json(ph) -> dict:
+    """A :class:`~qwell.lifetimes.LOPhonon`: energy [meV], permittivities, host."""
+    return {"energy_meV": 1e3 * ph.energy_eV, "eps_infinity": ph.eps_infinity,
+            "eps_static": ph.eps_static, "material": ph.material, "layer": ph.layer,
+            "note": ph.note}
+
+
+def _time_ps(rate_per_s):
+    return 1e12 / float(rate_per_s) if rate_per_s > 0 else None
+
+
+def rate_table_json(r) -> dict:
+    """A :class:`~qwell.lifetimes.RateTable`: per state the lifetime [ps] and in-plane mass
+    [m0]; per ordered pair the emission and absorption rates [1/s] and the time [ps]
+    (null when the rate is zero)."""
+    n = len(r.labels)
+    return {"band": r.band, "temperature_K": r.temperature_K, "thermal_average": r.thermal,
+            "phonon": phonon_json(r.phonon),
+            "states": [{"label": lab, "in_plane_mass_m0": float(m),
+                        "total_rate_per_s": float(w), "lifetime_ps": _time_ps(w)}
+                       for lab, m, w in zip(r.labels, r.in_plane_mass_m0, r.total_per_s)],
+            "pairs": [{"from": r.labels[i], "to": r.labels[f],
+                       "emission_per_s": float(r.emission_per_s[i, f]),
+                       "absorption_per_s": float(r.absorption_per_s[i, f]),
+                       "time_ps": _time_ps(r.rate_per_s[i, f])}
+                      for i in range(n) for f in range(n) if i != f]}
+
+
+def radiative_json(x) -> dict:
+    """A :class:`~qwell.lifetimes.RadiativeLine`: spontaneous emission of one line."""
+    return {"upper": x.upper, "lower": x.lower, "energy_eV": x.energy_eV,
+            "wavelength_um": x.wavelength_um, "oscillator_strength": x.oscillator_strength,
+            "rate_per_s": x.rate_per_s, "lifetime_ns": _finite(x.lifetime_ns),
+            "phonon_time_ps": _finite(x.phonon_time_ps), "refractive_index": x.refractive_index}
+
+
+def emitter_figure_json(f) -> dict:
+    """An :class:`~qwell.lifetimes.EmitterFigure` (non-finite values are null)."""
+    return {"upper": f.upper, "lower": f.lower, "energy_eV": _finite(f.energy_eV),
+            "wavelength_um": _finite(f.wavelength_um), "dipole_nm": _finite(f.dipole_nm),
+            "tau_upper_ps": _finite(f.tau_upper_ps), "tau_lower_ps": _finite(f.tau_lower_ps),
+            "tau_upper_lower_ps": _finite(f.tau_upper_lower_ps),
+            "inversion_factor_ps": _finite(f.inversion_factor_ps),
+            "figure_of_merit_nm2_ps": _finite(f.figure_of_merit_nm2_ps),
+            "inversion_possible": bool(f.inversion_possible),
+            "linewidth_meV": f.linewidth_meV, "refractive_index": f.refractive_index,
+            "period_nm": f.period_nm, "cross_section_cm2": _finite(f.cross_section_cm2),
+            "gain_per_current_cm_per_kA": _finite(f.gain_per_current_cm_per_kA),
+            "radiative_lifetime_ns": _finite(f.radiative_lifetime_ns), "notes": list(f.notes)}
+
+
+def lifetimes_json(lt) -> dict:
+    """A :class:`~qwell.lifetimes.Lifetimes`: rate table, radiative lines, the emitter line
+    and every line's figure of merit."""
+    return {"rates": rate_table_json(lt.rates),
+            "radiative": [radiative_json(x) for x in lt.radiative],
+            "emitter": None if lt.figure is None else emitter_figure_json(lt.figure),
+            "lines": [emitter_figure_json(f) for f in lt.figures],
+            "notes": list(lt.notes)}
+
+
+def emitter_pairs_json(pairs):
+    """The ``emitter`` pairs of a design point (line name and EMITTER_KEYS values), or None."""
+    if not pairs:
+        return None
+    return {k: (v if k == "line" else _finite(v)) for k, v in pairs}
 
 
 def spectrum_json(spec) -> dict:
@@ -217,20 +319,46 @@ def spectrum_json(spec) -> dict:
 # ---------------------------------------------------------------------------
 # design workflows
 # ---------------------------------------------------------------------------
-def size_json(res) -> dict:
-    """A :class:`~qwell.design.SizeResult`: the sized value and what it gives."""
+def design_line_json(line) -> dict:
+    """A :class:`~qwell.design.line.DesignLine`: the followed line, where it comes from, its
+    target and whether it is the depolarisation-shifted one."""
+    return {"transition": line.transition, "source": line.source, "reason": line.reason,
+            "target_eV": line.target_eV, "target": line.target_text,
+            "depolarised": line.depolarised}
+
+
+def size_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.SizeResult`: the sized value and what it gives.
+
+    Every line carries all its measures (``wavelength_nm``, ``wavelength_um``,
+    ``wavenumber_cm1``, ``frequency_THz``, ``energy_meV``); ``photon_unit`` is
+    the unit the table shows (``unit``, else the target's spectral region).
+    """
     return {
         "parameter": res.parameter, "unit": res.unit, "value": res.value,
         "wavelength_um": _finite(res.wavelength_um), "energy_eV": _finite(res.energy_eV),
+        **{k: v for k, v in measures(res.energy_eV).items() if k != "wavelength_um"},
         "monolayer_options": [{"monolayers": o.monolayers, "thickness_nm": o.thickness_nm,
-                               "wavelength_um": _finite(o.wavelength_um)}
+                               "wavelength_um": _finite(o.wavelength_um),
+                               "energy_eV": _finite(o.energy_eV),
+                               **{k: v for k, v in measures(o.energy_eV).items()
+                                  if k != "wavelength_um"},
+                               **({"emitter": emitter_pairs_json(o.emitter)}
+                                  if res.emitter else {})}
                               for o in res.monolayer_options],
         "transition": res.transition, "target_energy_eV": res.target_energy_eV,
         "target_wavelength_um": res.target_wavelength_um,
+        **{k: v for k, v in measures(res.target_energy_eV, "target_").items()
+           if k != "target_wavelength_um"},
+        "photon_unit": line_unit(res.target_energy_eV, unit),
         "relative_error": _finite(res.relative_error), "bracket": list(res.bracket),
-        "evaluations": res.evaluations, "notes": list(res.notes),
+        "evaluations": res.evaluations,
         "depolarised": res.depolarised, "bare_energy_eV": _finite(res.bare_energy_eV),
         "bare_wavelength_um": _finite(res.bare_wavelength_um),
+        **({"emitter": emitter_pairs_json(res.emitter),
+            "lifetimes_ps": {lab: _finite(t) for lab, t in res.lifetimes_ps}}
+           if res.emitter else {}),
+        "notes": list(res.notes),
     }
 
 
@@ -248,16 +376,30 @@ def _nulls(o):
     return o
 
 
-def sweep_json(res) -> dict:
-    """A :class:`~qwell.design.SweepResult` (1-D: scalars per key; 2-D: lists/maps)."""
+def sweep_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.SweepResult` (1-D: scalars per key; 2-D: lists/maps).
+
+    Each line carries every measure (``wavelength_nm``, ``wavenumber_cm1``,
+    ``frequency_THz``, ``energy_meV`` beside ``wavelength_um``) and its
+    sensitivity in every spread unit (``sensitivity_per_unit``: nm, um, cm1,
+    GHz, meV per engineering step); ``photon_unit`` is the unit of the table.
+    """
     one = len(res.parameters) == 1
     first = res.parameters[0]
     trans = {}
+    spread_keys = {"nm": "nm", "um": "um", "cm-1": "cm1", "THz": "GHz", "meV": "meV"}
     for t in res.transitions:
         sens = {p: _grid(res.sensitivity[t][p]) for p in res.parameters}
+        per = {p: {k: _grid(res.sensitivity_in(t, p, u)) for u, k in spread_keys.items()}
+               for p in res.parameters}
         trans[t] = {"energy_eV": _grid(res.energy_eV[t]),
                     "wavelength_um": _grid(res.wavelength_um[t]),
+                    "wavelength_nm": _grid(res.line_in(t, "nm")),
+                    "wavenumber_cm1": _grid(res.line_in(t, "cm-1")),
+                    "frequency_THz": _grid(res.line_in(t, "THz")),
+                    "energy_meV": _grid(res.line_in(t, "meV")),
                     "sensitivity_nm_per_unit": sens[first] if one else sens,
+                    "sensitivity_per_unit": per[first] if one else per,
                     "depolarised": t in res.bare_energy_eV}
         if t in res.bare_energy_eV:
             trans[t]["bare_energy_eV"] = _grid(res.bare_energy_eV[t])
@@ -266,32 +408,70 @@ def sweep_json(res) -> dict:
         "parameter": first if one else list(res.parameters),
         "unit": res.units[0] if one else list(res.units),
         "values": _grid(res.values[0]) if one else [_grid(v) for v in res.values],
+        "photon_unit": res.photon_unit(unit),
         "states": {lab: _grid(res.state_energy_eV[lab]) for lab in res.state_labels},
         "bound": {lab: np.asarray(res.state_bound[lab]).tolist() for lab in res.state_labels},
+        **({"reference": {"layer": res.reference,
+                          "edge_eV": {b: _grid(e) for b, e in res.reference_edge_eV.items()},
+                          "states_from_reference_eV": {lab: _grid(res.state_energy_shown(lab))
+                                                       for lab in res.state_labels}}}
+           if res.reference else {}),
         "transitions": trans,
         "sensitivity_unit": (res.sensitivity_units[first] if one
                              else dict(res.sensitivity_units)),
         "sensitivity_method": res.sensitivity_method,
+        **({"emitter": {"line": res.emitter_line,
+                        **{k: _grid(v) for k, v in res.emitter.items()},
+                        "lifetime_ps": {lab: _grid(v) for lab, v in res.lifetime_ps.items()}}}
+           if res.emitter_line is not None else {}),
+        "anticrossings": [{"lower": a.lower, "upper": a.upper, "parameter": a.parameter,
+                           "unit": a.unit, "value": a.value, "gap_eV": a.gap_eV,
+                           "gap_meV": a.gap_meV, "grid_gap_eV": a.grid_gap_eV}
+                          for a in res.anticrossings],
         "notes": list(res.notes),
     }
 
 
-def monte_carlo_json(mc) -> dict:
-    """A :class:`~qwell.design.MonteCarloSummary`: wavelength statistics."""
+def monte_carlo_json(mc, energy_eV: float | None = None) -> dict:
+    """A :class:`~qwell.design.MonteCarloSummary`: wavelength statistics (the standard
+    deviation also as ``std_um``, ``std_cm1``, ``std_GHz``, ``std_meV`` at the nominal line
+    ``energy_eV``)."""
+    std = spread_measures(_finite(mc.std_nm), energy_eV, "std_") if energy_eV else {}
+    std.pop("std_nm", None)
     return {"samples": mc.samples, "valid": mc.valid, "distribution": mc.distribution,
             "sigma": ("tolerance = 1 sigma" if mc.distribution == "normal"
                       else "uniform on ±tolerance"),
             "seed": mc.seed, "mean_um": _finite(mc.mean_um), "std_nm": _finite(mc.std_nm),
+            **std,
             "percentiles_um": {str(k): _finite(v) for k, v in mc.percentiles_um.items()},
-            "clipped": mc.clipped}
+            "clipped": mc.clipped, "lost": mc.lost,
+            "lost_fraction": (mc.lost / mc.samples) if mc.samples else None,
+            "lost_reasons": [{"what": w, "designs": n} for w, n in mc.lost_reasons],
+            "percentile_range_um": {str(k): [_finite(lo), _finite(hi)]
+                                    for k, (lo, hi) in mc.percentile_range_um.items()},
+            "percentiles_over": "all samples; the lost ones ranked at either end give the range",
+            "model": "correlated: one draw per composition group and per growth-rate group"}
 
 
-def tolerance_json(res) -> dict:
-    """A :class:`~qwell.design.ToleranceResult`: contributions, worst case, RSS, Monte Carlo."""
+def tolerance_json(res, unit: str | None = None) -> dict:
+    """A :class:`~qwell.design.ToleranceResult`: contributions, worst case, RSS, Monte Carlo.
+
+    Spreads carry every spread unit (``contribution_nm``, ``contribution_um``,
+    ``contribution_cm1``, ``contribution_GHz``, ``contribution_meV``; the same for
+    ``sum_*`` and ``rss_*``), linear at the nominal line; ``photon_unit`` is the unit the
+    table shows.
+    """
+    e0 = _finite(res.nominal_energy_eV)
+
+    def spreads(delta_nm, prefix):
+        out = spread_measures(_finite(delta_nm), e0, prefix)
+        out.pop(f"{prefix}nm")
+        return out
     return {
         "transition": res.transition,
-        "nominal": {"energy_eV": _finite(res.nominal_energy_eV),
-                    "wavelength_um": _finite(res.nominal_wavelength_um),
+        "photon_unit": line_unit(e0, unit),
+        "nominal": {"energy_eV": e0, "wavelength_um": _finite(res.nominal_wavelength_um),
+                    **{k: v for k, v in measures(e0).items() if k != "wavelength_um"},
                     "bare_energy_eV": _finite(res.bare_energy_eV),
                     "bare_wavelength_um": _finite(res.bare_wavelength_um),
                     "depolarised": res.depolarised},
@@ -299,12 +479,26 @@ def tolerance_json(res) -> dict:
                            "delta": c.delta, "spec": c.spec,
                            "wavelength_plus_um": _finite(c.wavelength_plus_um),
                            "wavelength_minus_um": _finite(c.wavelength_minus_um),
-                           "contribution_nm": _finite(c.contribution_nm)}
+                           "contribution_nm": _finite(c.contribution_nm),
+                           **spreads(c.contribution_nm, "contribution_")}
                           for c in res.contributions],
-        "worst_case": {"sum_nm": _finite(res.worst_case_nm),
+        "groups": [{"name": g.name, "kind": g.kind, "members": list(g.members), "spec": g.spec,
+                    "wavelength_plus_um": _finite(g.wavelength_plus_um),
+                    "wavelength_minus_um": _finite(g.wavelength_minus_um),
+                    "contribution_nm": _finite(g.contribution_nm),
+                    **spreads(g.contribution_nm, "contribution_"),
+                    "members_sum_nm": _finite(g.members_sum_nm)} for g in res.groups],
+        "growth_rate": res.growth_rate,
+        "worst_case": {"sum_nm": _finite(res.worst_case_nm), **spreads(res.worst_case_nm, "sum_"),
+                       "view": "correlated",
                        "corner_min_um": _finite(res.corner_min_um),
                        "corner_max_um": _finite(res.corner_max_um)},
-        "rss_nm": _finite(res.rss_nm),
-        "monte_carlo": None if res.monte_carlo is None else monte_carlo_json(res.monte_carlo),
+        "rss_nm": _finite(res.rss_nm), **spreads(res.rss_nm, "rss_"),
+        "independent": {"worst_case_nm": _finite(res.independent_worst_case_nm),
+                        **spreads(res.independent_worst_case_nm, "worst_case_"),
+                        "rss_nm": _finite(res.independent_rss_nm),
+                        **spreads(res.independent_rss_nm, "rss_")},
+        "monte_carlo": (None if res.monte_carlo is None
+                        else monte_carlo_json(res.monte_carlo, e0)),
         "notes": list(res.notes),
     }

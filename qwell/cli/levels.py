@@ -6,12 +6,17 @@ from dataclasses import dataclass, replace
 
 from ..design.line import ALLOWED_OVERLAP, design_line
 from ..errors import QwellError
+from ..fileio import OutputGroup, check_figure_target
 from ..levels import compare_methods, depolarised_lines, shifted_transitions, solve_profile
 from ..optics import plot_spectrum, select_transitions, spectrum, strength
-from .common import (add_self_consistent_option, load, print_json, print_self_consistent,
-                     print_warnings,
-                     profile_and_charge, table)
-from .json_out import levels_json
+from ..reference import reference_edges_eV
+from ..solvers.results import UNCOUPLED_WIDTH_EV
+from ..spectral import column, format_line
+from ..units import format_exponent
+from .common import (add_library_option, add_self_consistent_option, add_unit_option, load,
+                     print_json, print_self_consistent, print_warnings, profile_and_charge, table)
+from .json_out import design_line_json, levels_json
+from .lifetimes import add_lifetime_options, check_band, lifetimes_of, print_lifetimes
 
 __all__ = ["register", "cmd_levels", "LevelsOptions"]
 
@@ -27,17 +32,24 @@ def register(subparsers) -> None:
     lv.add_argument("--json", action="store_true")
     lv.add_argument("--wavefunctions", action="store_true",
                     help="with --json: include each state's z grid, envelope (nm^-1/2) and "
-                         "probability per layer")
+                         "probability per layer (the tables do not change; a note says so)")
+    lv.add_argument("--reference", metavar="LAYER",
+                    help="also give each state's energy from its band edge at this layer's "
+                         "centre (meV; in JSON: reference)")
+    add_unit_option(lv)
     lv.add_argument("--hole-intersubband", action="store_true",
                     help="also list heavy- and light-hole intersubband pairs (hh1-hh2, lh1-lh2, ...)")
     lv.add_argument("--png", metavar="FILE", help="write the absorption spectrum plot")
     lv.add_argument("--linewidth", type=float, default=10.0, metavar="MEV",
-                    help="spectrum line FWHM in meV (default 10)")
+                    help="spectrum line FWHM in meV, also the gain linewidth of --lifetimes "
+                         "(default 10)")
     lv.add_argument("--lineshape", default="lorentzian", choices=["lorentzian", "gaussian"])
     lv.add_argument("--axis", default="wavelength", choices=["wavelength", "energy"])
     lv.add_argument("--spectrum", choices=["intersubband", "interband"],
                     help="which lines the --png spectrum shows (default: intersubband if any)")
+    add_lifetime_options(lv)
     add_self_consistent_option(lv)
+    add_library_option(lv)
     lv.set_defaults(func=cmd_levels)
 
 
@@ -62,6 +74,20 @@ class LevelsOptions:
     lineshape, axis : str
     spectrum_kind : str or None
         'intersubband', 'interband' or None (intersubband if any).
+    libraries : tuple of str
+        Material library files (``--library``), applied after the stack's own.
+    lifetimes : bool
+        LO-phonon lifetimes and the emitter figure of merit (``--lifetimes``).
+    emitter : str or None
+        Emitter line of ``--lifetimes`` (None: the best inverting line).
+    thermal : bool
+        Thermally averaged rates.
+    period_nm : float or None
+        Stage length of the gain per current density [nm].
+    reference : str or None
+        Layer whose centre's band edges the states are also referenced to.
+    unit : str or None
+        Photon unit of the transition tables (None: every measure, as before).
     """
 
     stack_path: str
@@ -77,6 +103,13 @@ class LevelsOptions:
     lineshape: str = "lorentzian"
     axis: str = "wavelength"
     spectrum_kind: str | None = None
+    libraries: tuple = ()
+    lifetimes: bool = False
+    emitter: str | None = None
+    thermal: bool = False
+    period_nm: float | None = None
+    reference: str | None = None
+    unit: str | None = None
 
     @classmethod
     def from_args(cls, args) -> LevelsOptions:
@@ -85,6 +118,11 @@ class LevelsOptions:
             raise QwellError(f"--transition needs the conduction band: transitions start from "
                              f"electron states, but --band {args.band} solves only that band; "
                              "use --band all")
+        if (args.emitter or args.thermal or args.period is not None) and not args.lifetimes:
+            raise QwellError("--emitter, --thermal and --period go with --lifetimes")
+        if args.lifetimes:
+            if args.method == "semiclassical":
+                raise QwellError("--lifetimes needs wavefunctions: use --method exact (or both)")
         return cls(stack_path=args.stack, band=args.band,
                    methods=(("exact", "semiclassical") if args.method == "both"
                             else (args.method,)),
@@ -92,14 +130,24 @@ class LevelsOptions:
                    wavefunctions=args.wavefunctions, hole_intersubband=args.hole_intersubband,
                    self_consistent=args.self_consistent, png=args.png,
                    linewidth_meV=args.linewidth, lineshape=args.lineshape, axis=args.axis,
-                   spectrum_kind=args.spectrum)
+                   spectrum_kind=args.spectrum, libraries=tuple(args.library),
+                   lifetimes=args.lifetimes, emitter=args.emitter, thermal=args.thermal,
+                   period_nm=args.period, reference=args.reference, unit=args.unit)
 
 
 def cmd_levels(args) -> int:
     """Run ``qwell levels``; returns the exit status."""
     opts = LevelsOptions.from_args(args)
-    stack = load(opts.stack_path, opts.self_consistent)
+    stack = load(opts.stack_path, opts.self_consistent, opts.libraries)
+    if opts.png:
+        OutputGroup([opts.png], protect=[opts.stack_path])  # checks the target before the work
+        check_figure_target(opts.png)
     prof, sc = profile_and_charge(stack, quiet=True)
+    if opts.lifetimes:
+        check_band(lambda: [s.label for s in solve_profile(prof, bands="conduction",
+                                                            transitions=False).states],
+                   opts.band)
+    edges = reference_edges_eV(prof, opts.reference) if opts.reference else None
     sols = {m: solve_profile(prof, bands=opts.band, method=m, transitions=(m == "exact"),
                              hole_intersubband=opts.hole_intersubband) for m in opts.methods}
     if sc is not None:
@@ -108,12 +156,24 @@ def cmd_levels(args) -> int:
     chosen = {m: (select_transitions(s.transitions, list(opts.transitions)) if opts.transitions
                   else s.transitions) for m, s in sols.items()}
     spec = write_spectrum(stack, sols, chosen, opts) if opts.png else None
+    lt = None
+    if opts.lifetimes:
+        lt = lifetimes_of(sols["exact"], emitter=opts.emitter, thermal=opts.thermal,
+                          linewidth_meV=opts.linewidth_meV, period_nm=opts.period_nm)
     if opts.json:
-        doc = levels_json(stack, sols, chosen, spectrum=spec, wavefunctions=opts.wavefunctions)
-        doc["design_line"] = line.to_json()
+        doc = levels_json(stack, sols, chosen, spectrum=spec, wavefunctions=opts.wavefunctions,
+                          lifetimes=lt)
+        doc["design_line"] = design_line_json(line)
+        if edges is not None:
+            doc["reference"] = reference_json(opts.reference, edges, sols)
         print_json(doc)
     else:
-        print_levels(stack, sols, chosen, opts, line)
+        print_levels(stack, sols, chosen, opts, line, edges)
+        if lt is not None:
+            print_lifetimes(lt)
+        if opts.wavefunctions:
+            print("note: --wavefunctions only affects --json output (each state's envelope is "
+                  "listed there); the tables above are unchanged")
     return 0
 
 
@@ -176,7 +236,8 @@ def write_spectrum(stack, sols: dict, chosen: dict, opts: LevelsOptions):
 # ---------------------------------------------------------------------------
 # text
 # ---------------------------------------------------------------------------
-def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions, line) -> None:
+def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions, line,
+                 edges=None) -> None:
     """Design line, header, charge, states (or the method comparison), notes, transitions,
     depolarisation, warnings."""
     print(line.headline())
@@ -189,13 +250,14 @@ def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions, line) -> 
         print_self_consistent(sc, blank=False)
     if len(sols) == 1:
         (m, sol), = sols.items()
-        print_states(m, sol)
+        print_states(m, sol, edges, opts.reference)
     else:
         print_comparison(sols["exact"], sols["semiclassical"])
     for m, sol in sols.items():
         print_notes(m, sol)
     trans = chosen.get("exact", ())
-    print_transitions(trans, show_all=bool(opts.transitions), line=line.transition)
+    print_transitions(trans, show_all=bool(opts.transitions), line=line.transition,
+                      unit=opts.unit)
     if "exact" in sols:
         print_depolarisation(sols["exact"], trans, line=line.transition)
     print_warnings(next(iter(sols.values())).profile.warnings)
@@ -203,26 +265,40 @@ def print_levels(stack, sols: dict, chosen: dict, opts: LevelsOptions, line) -> 
         print(f"wrote {opts.png}")
 
 
-def _state_rows(sol):
+def _state_rows(sol, edges=None):
     rows = []
     for s in sol.states:
         band = sol.profile.bands[s.band]
         edge = band.profile_energy(band.potential_min_eV)
         conf = 1e3 * abs(s.energy_eV - edge)
-        life = "" if s.lifetime_s is None else f"{s.lifetime_s:.3g} s"
+        life = "" if s.lifetime_s is None else f"{1e12 * s.lifetime_s:.3g} ps"
         flag = "bound" if s.bound else "quasi-bound"
         if not s.converged:
             flag += f" (NOT converged, ±{s.tolerance_eV * 1e6:.2g} µeV)"
-        rows.append([s.band, s.label, f"{s.energy_eV:.6f}", f"{conf:.3f}", flag, life])
+        ref = [] if edges is None else [f"{1e3 * (s.energy_eV - edges[s.band]):+.3f}"]
+        rows.append([s.band, s.label, f"{s.energy_eV:.6f}", f"{conf:.3f}"] + ref + [flag, life])
     return rows
 
 
-def print_states(method: str, sol) -> None:
-    """States of one method: energy, confinement above the band's lowest edge, status."""
+def print_states(method: str, sol, edges=None, reference: str | None = None) -> None:
+    """States of one method: energy, confinement above the band's lowest edge, status; with
+    ``edges`` (band -> edge at the reference layer's centre [eV]) also the energy from it."""
     print(f"\nStates ({method}; energies on the band-diagram scale, confinement from the band's "
-          "lowest edge)")
-    print(table(_state_rows(sol), ["band", "state", "energy eV", "conf. meV", "status", "lifetime"],
-                ["<", "<", ">", ">", "<", ">"]))
+          "lowest edge" + (f", 'from {reference}': from the band edge at the centre of "
+                           f"{reference}" if edges is not None else "") + ")")
+    ref_head = [] if edges is None else [f"from {reference} meV"]
+    print(table(_state_rows(sol, edges),
+                ["band", "state", "energy eV", "conf. meV"] + ref_head + ["status", "lifetime"],
+                ["<", "<", ">", ">"] + [">"] * len(ref_head) + ["<", ">"]))
+
+
+def reference_json(layer: str, edges: dict, sols: dict) -> dict:
+    """The ``reference`` block of ``levels --json --reference``: the layer, the band edges at
+    its centre [eV] and each state's energy from its band's edge [eV]."""
+    sol = sols.get("exact") or next(iter(sols.values()))
+    return {"layer": layer, "edge_eV": dict(edges),
+            "states_from_reference_eV": {s.label: float(s.energy_eV - edges[s.band])
+                                         for s in sol.states}}
 
 
 def print_comparison(exact, semi) -> None:
@@ -245,8 +321,13 @@ def print_notes(method: str, sol) -> None:
         for n in lev.notes:
             print(f"note ({method}, {lev.band}): {n}")
         for mb in lev.minibands:
-            print(f"miniband {lev.band} {mb.index}: {mb.bottom_eV:.6f} .. {mb.top_eV:.6f} eV "
-                  f"(width {1e3 * mb.width_eV:.3f} meV, period {mb.period_nm:.3f} nm)")
+            if mb.coupled:
+                print(f"miniband {lev.band} {mb.index}: {mb.bottom_eV:.6f} .. {mb.top_eV:.6f} eV "
+                      f"(width {1e3 * mb.width_eV:.3f} meV, period {mb.period_nm:.3f} nm)")
+            else:
+                print(f"no miniband {lev.band} {mb.index}: the periods are uncoupled (width "
+                      f"{1e6 * mb.width_eV:.2g} µeV < {1e6 * UNCOUPLED_WIDTH_EV:g} µeV); one level "
+                      f"at {mb.bottom_eV:.6f} eV repeated in each period ({mb.period_nm:.3f} nm)")
     for n in sol.notes:
         print(f"note: {n}")
 
@@ -278,9 +359,18 @@ def emission_order(band) -> list:
     return [first] + [t for t in band if t is not first]
 
 
-def print_transitions(trans, show_all: bool = False, line: str | None = None) -> None:
+def _line_cells(t, unit):
+    return [format_line(t.energy_eV, unit, with_unit=False)]
+
+
+def print_transitions(trans, show_all: bool = False, line: str | None = None,
+                      unit: str | None = None) -> None:
     """Intersubband table (strongest first) and interband table (emission line first);
-    weak lines counted, long tables capped with a count; the design line marked."""
+    weak lines counted, long tables capped with a count; the design line marked.
+
+    With ``unit`` each table gives the line in that unit only (beside its energy in eV);
+    without, intersubband lines in µm, cm⁻¹ and THz, interband lines in nm.
+    """
     inter = sorted((t for t in trans if t.kind == "intersubband"), key=lambda t: -strength(t))
     band = emission_order([t for t in trans if t.kind == "interband"])
     if inter:
@@ -289,13 +379,19 @@ def print_transitions(trans, show_all: bool = False, line: str | None = None) ->
         capped_i = 0 if show_all else max(0, len(shown_i) - MAX_TABLE_LINES)
         hidden_i = len(inter) - len(shown_i)
         shown_i = shown_i if show_all else shown_i[:MAX_TABLE_LINES]
-        rows = [[t.name, f"{t.energy_eV:.6f}", f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}",
-                 f"{t.frequency_THz:.3f}", f"{t.dipole_nm:.4f}", f"{t.oscillator_strength:.4f}",
-                 "design line" if t.name == line else ""]
-                for t in shown_i]
+        mark = {t.name: "design line" if t.name == line else "" for t in shown_i}
+        if unit:
+            rows = [[t.name, f"{t.energy_eV:.6f}"] + _line_cells(t, unit)
+                    + [f"{t.dipole_nm:.4f}", f"{t.oscillator_strength:.4f}", mark[t.name]]
+                    for t in shown_i]
+            heads = ["transition", "energy eV", column(unit), "|z| nm", "f", ""]
+        else:
+            rows = [[t.name, f"{t.energy_eV:.6f}", f"{t.wavelength_um:.5f}",
+                     f"{t.wavenumber_cm1:.2f}", f"{t.frequency_THz:.3f}", f"{t.dipole_nm:.4f}",
+                     f"{t.oscillator_strength:.4f}", mark[t.name]] for t in shown_i]
+            heads = ["transition", "energy eV", "λ µm", "cm⁻¹", "THz", "|z| nm", "f", ""]
         print("\nIntersubband transitions (absorption from the lower state, strongest first)")
-        print(table(rows, ["transition", "energy eV", "λ µm", "cm⁻¹", "THz", "|z| nm", "f", ""],
-                    ["<", ">", ">", ">", ">", ">", ">", "<"]))
+        print(table(rows, heads, ["<"] + [">"] * (len(heads) - 2) + ["<"]))
         _hidden_note(hidden_i, "intersubband", "f < 0.001", capped_i)
     if band:
         shown = band if show_all else [t for t in band if (t.overlap or 0.0) >= ALLOWED_OVERLAP
@@ -304,15 +400,17 @@ def print_transitions(trans, show_all: bool = False, line: str | None = None) ->
         hidden = len(band) - len(shown)
         shown = shown if show_all else shown[:MAX_TABLE_LINES]
         emission = band[0] if (band[0].overlap or 0.0) >= ALLOWED_OVERLAP else None
-        rows = [[t.name, f"{t.energy_eV:.6f}", f"{1e3 * t.wavelength_um:.2f}",
-                 f"{t.overlap:.4f}", f"{t.te:.4f}", f"{t.tm:.4f}",
-                 ", ".join(x for x in ("emission line" if t is emission else "",
-                                       "Δn=0" if t.strongest else "",
-                                       "design line" if t.name == line else "") if x)]
+        rows = [[t.name, f"{t.energy_eV:.6f}"]
+                + (_line_cells(t, unit) if unit else [f"{1e3 * t.wavelength_um:.2f}"])
+                + [f"{t.overlap:.4f}", f"{t.te:.4f}", f"{t.tm:.4f}",
+                   ", ".join(x for x in ("emission line" if t is emission else "",
+                                         "Δn=0" if t.strongest else "",
+                                         "design line" if t.name == line else "") if x)]
                 for t in shown]
         print("\nInterband transitions (emission line first, then strongest; excitonic binding "
               "not included)")
-        print(table(rows, ["transition", "energy eV", "λ nm", "|<e|h>|²", "TE", "TM", ""],
+        print(table(rows, ["transition", "energy eV", column(unit) if unit else "λ nm",
+                           "|<e|h>|²", "TE", "TM", ""],
                     ["<", ">", ">", ">", ">", ">", "<"]))
         _hidden_note(hidden, "interband", "|<e|h>|² < 0.001", capped)
 
@@ -322,7 +420,7 @@ def print_depolarisation(sol, trans, line: str | None = None) -> None:
     if sol.self_consistent is None:
         return
     names = {t.name for t in trans}
-    rows = [[d["transition"], f"{d['sheet_density_cm2']:.4g}", f"{d['energy_eV']:.6f}",
+    rows = [[d["transition"], format_exponent(d["sheet_density_cm2"]), f"{d['energy_eV']:.6f}",
              f"{1e3 * d['shift_eV']:.3f}", f"{d['shifted_energy_eV']:.6f}",
              f"{d['shifted_wavelength_um']:.5f}",
              "design line" if d["transition"] == line else ""]

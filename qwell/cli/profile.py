@@ -7,8 +7,8 @@ import math
 import numpy as np
 
 from ..plots import plot_profile
-from .common import (add_self_consistent_option, load, print_json, print_warnings,
-                     profile_and_charge, table)
+from .common import (add_library_option, add_self_consistent_option, load, print_json,
+                     print_warnings, profile_and_charge, table)
 from .json_out import profile_json
 
 __all__ = ["register", "cmd_profile"]
@@ -21,12 +21,13 @@ def register(subparsers) -> None:
     pr.add_argument("--json", action="store_true")
     pr.add_argument("--png", metavar="FILE", help="write a band-edge plot")
     add_self_consistent_option(pr)
+    add_library_option(pr)
     pr.set_defaults(func=cmd_profile)
 
 
 def cmd_profile(args) -> int:
     """Run ``qwell profile``; returns the exit status."""
-    stack = load(args.stack, args.self_consistent)
+    stack = load(args.stack, args.self_consistent, args.library)
     prof, sc = profile_and_charge(stack, quiet=args.json)
     if args.png:
         path = plot_profile(prof, args.png, protect=[args.stack], charge=sc)

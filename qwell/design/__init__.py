@@ -11,8 +11,11 @@ One topic per module:
   :func:`evaluate_many`, the one evaluation engine (locally or on Dask);
 * :mod:`.sizing`: :func:`size` (a parameter value for a target wavelength);
 * :mod:`.sweeps`: :func:`sweep` (1-D and 2-D grids);
+* :mod:`.crossings`: :func:`find_anticrossings` (minimum gaps of neighbouring states);
 * :mod:`.tolerances`: :func:`tolerance` (worst case, corners, RSS, Monte
-  Carlo) and :func:`sensitivities` (± shifts of several transitions).
+  Carlo) and :func:`sensitivities` (± shifts of several transitions);
+* :mod:`.growth`: correlated growth errors (composition and growth-rate
+  groups); :mod:`.histogram`: the Monte Carlo histogram.
 
 Wavelength sensitivities are given in engineering units: nm of wavelength
 per monolayer (thickness; per nm when the layer has no lattice constant), per
@@ -23,10 +26,13 @@ from __future__ import annotations
 
 from ..formula import format_formula
 from ..stack_edit import KINDS, Parameter, apply_parameters, get_parameter, parameters
+from .crossings import Anticrossing, find_anticrossings
 from .evaluate import DesignPoint, bands_for_transitions, design_point, evaluate_many
 from .sizing import MonolayerOption, SizeResult, size
 from .sweeps import SweepResult, sweep
-from .tolerances import (Contribution, MonteCarloSummary, Sensitivity, SensitivityResult,
+from .growth import CorrelatedGroup, parse_growth_rate
+from .histogram import plot_monte_carlo
+from .tolerances import (Contribution, GroupContribution, MonteCarloSummary, Sensitivity, SensitivityResult,
                         ToleranceResult, parse_parameter_value, sensitivities, tolerance)
 
 __all__ = [
@@ -35,7 +41,11 @@ __all__ = [
     "SizeResult",
     "MonolayerOption",
     "SweepResult",
+    "Anticrossing",
+    "find_anticrossings",
     "Contribution",
+    "GroupContribution",
+    "CorrelatedGroup",
     "MonteCarloSummary",
     "ToleranceResult",
     "Sensitivity",
@@ -52,5 +62,7 @@ __all__ = [
     "tolerance",
     "sensitivities",
     "parse_parameter_value",
+    "parse_growth_rate",
+    "plot_monte_carlo",
     "KINDS",
 ]

@@ -26,10 +26,17 @@ from .. import parallel
 from ..bands import BAND_NAMES
 from ..errors import ParameterError, QwellError, QwellWarning
 from ..levels import depolarised_lines, prepare_profile, solve_profile
+from ..lifetimes import solution_lifetimes
 from ..stack import stack_from_mapping
 from ..stack_edit import Parameter, apply_parameters
 
-__all__ = ["DesignPoint", "design_point", "evaluate_many", "bands_for_transitions"]
+__all__ = ["DesignPoint", "design_point", "evaluate_many", "bands_for_transitions",
+           "EMITTER_KEYS"]
+
+#: Emitter-line quantities a design point carries when asked for an emitter line (units in
+#: the names; see :class:`qwell.lifetimes.EmitterFigure`).
+EMITTER_KEYS = ("tau_upper_ps", "tau_lower_ps", "tau_upper_lower_ps", "inversion_factor_ps",
+                "figure_of_merit_nm2_ps", "gain_per_current_cm_per_kA")
 
 #: Exact-solver energy tolerance of a design evaluation [eV] (that of levels.solve_profile).
 DEFAULT_TOLERANCE_EV = 1e-7
@@ -64,6 +71,13 @@ class DesignPoint:
     bare_transitions : tuple of (name, energy_eV, wavelength_um)
         The depolarisation-shifted lines before the shift (empty when no line
         is shifted).
+    emitter : tuple of (key, value)
+        With an emitter line: its name (``'line'``, e.g. ``'e3->e2'``) and the
+        :data:`EMITTER_KEYS` quantities of the LO-phonon lifetimes model; empty
+        otherwise or when the line does not exist in this design.
+    lifetimes_ps : tuple of (label, tau_ps)
+        With an emitter line: the LO-phonon lifetime of every bound conduction
+        state [ps] (inf when nothing leaves it).
     """
 
     values: tuple
@@ -73,6 +87,8 @@ class DesignPoint:
     warning_categories: tuple = field(default=(), repr=False)
     error: str | None = None
     bare_transitions: tuple = ()
+    emitter: tuple = ()
+    lifetimes_ps: tuple = ()
 
     def bare_energy(self, name: str) -> float:
         """Energy of a line before the depolarisation shift [eV] (the line's energy when it
@@ -93,6 +109,20 @@ class DesignPoint:
     def shifted(self) -> bool:
         """Whether some intersubband line carries the depolarisation shift."""
         return bool(self.bare_transitions)
+
+    def emitter_value(self, key: str) -> float:
+        """An :data:`EMITTER_KEYS` quantity of the emitter line, NaN if absent."""
+        for k, v in self.emitter:
+            if k == key:
+                return float(v)
+        return math.nan
+
+    def lifetime_ps(self, label: str) -> float:
+        """LO-phonon lifetime of a state [ps], NaN if absent."""
+        for lab, t in self.lifetimes_ps:
+            if lab == label:
+                return float(t)
+        return math.nan
 
     def state_energy(self, label: str) -> float:
         """Energy of a state [eV], NaN if the design has no such state."""
@@ -143,7 +173,19 @@ def bands_for_transitions(transitions, extra=()) -> tuple:
     return tuple(b for b in BAND_NAMES if b in need)
 
 
-def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV):
+def _emitter_of(sol, line):
+    """(emitter pairs, lifetimes pairs) of one solved design; empty when the line is absent."""
+    try:
+        lt = solution_lifetimes(sol, line=line)
+    except ParameterError:
+        return (), ()
+    f = lt.figure
+    pairs = (("line", f.line),) + tuple((k, float(getattr(f, k))) for k in EMITTER_KEYS)
+    lives = tuple((lab, float(t)) for lab, t in zip(lt.rates.labels, lt.rates.lifetime_ps))
+    return pairs, lives
+
+
+def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV, emitter=None):
     """Solve one design; with ``needed`` state labels, skip the resonance search when
     every needed state is truly bound (quasi-bound states lie above all bound ones,
     so the bound labels do not change) and fall back to the full solve otherwise.
@@ -175,13 +217,19 @@ def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV):
             trans = tuple((n, float(shifted[n]["shifted_energy_eV"]),
                            float(shifted[n]["shifted_wavelength_um"])) if n in shifted
                           else (n, e, lam) for n, e, lam in trans)
-    return states, trans, bare
+    if emitter is None:
+        return states, trans, bare, (), ()
+    # the lifetimes use bound conduction states only: one bound-only solve with envelopes
+    # (bound labels are the same with or without the resonance search)
+    bound = solve_profile(prof, bands=("conduction",), method="exact", transitions=True,
+                          wavefunctions=True, quasi_bound=False, tolerance_eV=tolerance_eV)
+    return (states, trans, bare) + _emitter_of(bound, emitter)
 
 
 def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("conduction",),
                  wavefunctions: bool = False, needed=None,
                  tolerance_eV: float = DEFAULT_TOLERANCE_EV,
-                 record_errors: bool = False) -> DesignPoint:
+                 record_errors: bool = False, emitter: str | None = None) -> DesignPoint:
     """Solve one design: ``stack`` with ``values`` applied (see :func:`apply_parameters`).
 
     This is the single evaluation used by every workflow here.  The stack is
@@ -207,6 +255,10 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
     record_errors : bool
         Return a point with :attr:`DesignPoint.error` set instead of raising
         when the design cannot be built or solved (a :class:`QwellError`).
+    emitter : str, optional
+        An intersubband line (``'e2-e3'``, either order): the point also carries
+        its LO-phonon lifetimes and figure of merit (:mod:`qwell.lifetimes`),
+        from one more solve of the bound conduction states with envelopes.
 
     Examples
     --------
@@ -220,13 +272,14 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
         warnings.simplefilter("always")
         try:
             s = apply_parameters(stack, values)
-            states, trans, bare = _solve_design(s, tuple(bands), wavefunctions,
-                                                tuple(needed) if needed else None, tolerance_eV)
+            states, trans, bare, emit, lives = _solve_design(
+                s, tuple(bands), wavefunctions, tuple(needed) if needed else None,
+                tolerance_eV, emitter)
             error = None
         except QwellError as exc:
             if not record_errors:
                 raise
-            states, trans, bare, error = (), (), (), str(exc)
+            states, trans, bare, error, emit, lives = (), (), (), str(exc), (), ()
     notes, cats = [], []
     for w in caught:
         msg = str(w.message)
@@ -235,7 +288,7 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
             cats.append(w.category if issubclass(w.category, QwellWarning) else None)
     return DesignPoint(values=tuple(values.items()), states=states, transitions=trans,
                        notes=tuple(notes), warning_categories=tuple(cats), error=error,
-                       bare_transitions=bare)
+                       bare_transitions=bare, emitter=emit, lifetimes_ps=lives)
 
 
 _BASE_CACHE: dict = {}
@@ -270,14 +323,14 @@ def evaluate_many(stack, value_sets, *, bands=("conduction",), wavefunctions: bo
                   jobs=None, dask=None, dask_timeout_s: float | None = None,
                   progress: bool | None = None, label: str = "", needed=None,
                   tolerance_eV: float = DEFAULT_TOLERANCE_EV,
-                  record_errors: bool = False) -> list:
+                  record_errors: bool = False, emitter: str | None = None) -> list:
     """:func:`design_point` for many parameter sets, in parallel where it pays.
 
     Parameters
     ----------
     value_sets : sequence of Mapping
         Parameter dicts (internal units).
-    bands, wavefunctions, needed, tolerance_eV, record_errors
+    bands, wavefunctions, needed, tolerance_eV, record_errors, emitter
         See :func:`design_point`.
     jobs, dask, dask_timeout_s, progress
         See :func:`qwell.parallel.map_chunked`.
@@ -292,7 +345,8 @@ def evaluate_many(stack, value_sets, *, bands=("conduction",), wavefunctions: bo
     raw = copy.deepcopy(dict(stack.raw))
     options = (("bands", tuple(bands)), ("wavefunctions", bool(wavefunctions)),
                ("needed", tuple(needed) if needed else None),
-               ("tolerance_eV", float(tolerance_eV)), ("record_errors", bool(record_errors)))
+               ("tolerance_eV", float(tolerance_eV)), ("record_errors", bool(record_errors)),
+               ("emitter", None if emitter is None else str(emitter)))
     fn = partial(_eval_chunk, (raw, stack.path, options))
     kw = {}
     if dask_timeout_s is not None:
@@ -314,6 +368,16 @@ def check_transitions(point: DesignPoint, names, where: str):
             states = ", ".join(lab for lab, _, _ in point.states) or "none"
             raise ParameterError(f"transition {n!r} does not exist at {where}; states there: "
                                  f"{states}; transitions there: " + (", ".join(have) or "none"))
+
+
+def check_emitter(point: DesignPoint, line: str, where: str):
+    """Raise ParameterError naming the conduction states if the emitter line is missing."""
+    if point.emitter:
+        return
+    labels = [lab for lab, _, bound in point.states if lab.startswith("e") and bound]
+    raise ParameterError(f"emitter line {line!r} does not exist at {where}: it needs two bound "
+                         "conduction states; bound conduction states there: "
+                         + (", ".join(labels) or "none"))
 
 
 def jump_notes(p: Parameter, values, state_energy, transition_energy,

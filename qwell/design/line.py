@@ -76,11 +76,6 @@ class DesignLine:
             text += "; doped stack: the depolarisation-shifted absorption line"
         return text
 
-    def to_json(self) -> dict:
-        return {"transition": self.transition, "source": self.source, "reason": self.reason,
-                "target_eV": self.target_eV, "target": self.target_text,
-                "depolarised": self.depolarised}
-
 
 def default_line(solution) -> tuple[str, str]:
     """``(transition, reason)`` of the physics default of a solved stack.

@@ -6,12 +6,13 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from pint import Quantity
 
 from ..constants import HC_EV_UM
 from ..errors import ConvergenceError, ParameterError
+from ..optics import canonical_transition
+from ..spectral import auto_unit, energy_text, format_line, from_eV, unit_label
 from ..stack_edit import Parameter, apply_parameters, get_parameter
-from ..units import spectral_to_eV
+from ..units import is_quantity, spectral_to_eV
 from .evaluate import (bands_for_transitions, check_transitions, design_point, emit_warnings,
                        evaluate_many, jump_notes)
 
@@ -34,12 +35,16 @@ class MonolayerOption:
     thickness_nm : float
     wavelength_um, energy_eV : float
         Of the sized transition; NaN if it does not exist there.
+    emitter : tuple of (key, value)
+        With an emitter line: its lifetimes and figure of merit at this thickness
+        (see :class:`~qwell.design.evaluate.DesignPoint`).
     """
 
     monolayers: int
     thickness_nm: float
     wavelength_um: float
     energy_eV: float
+    emitter: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -70,6 +75,11 @@ class SizeResult:
         as ``energy_eV``, ``wavelength_um``).
     depolarised : bool
         The sized line is the depolarisation-shifted one.
+    emitter : tuple of (key, value)
+        With an emitter line: its name, LO-phonon lifetimes and figure of merit at the sized
+        value (keys ``line`` and :data:`~qwell.design.evaluate.EMITTER_KEYS`).
+    lifetimes_ps : tuple of (label, tau_ps)
+        With an emitter line: LO-phonon lifetime of each bound conduction state [ps].
     """
 
     parameter: str
@@ -88,28 +98,13 @@ class SizeResult:
     bare_energy_eV: float = math.nan
     bare_wavelength_um: float = math.nan
     depolarised: bool = False
+    emitter: tuple = ()
+    lifetimes_ps: tuple = ()
 
     @property
     def relative_error(self) -> float:
         """(E - E_target) / E_target."""
         return (self.energy_eV - self.target_energy_eV) / self.target_energy_eV
-
-    def to_json(self) -> dict:
-        def f(v):
-            return None if v is None or not math.isfinite(v) else float(v)
-        return {
-            "parameter": self.parameter, "unit": self.unit, "value": self.value,
-            "wavelength_um": f(self.wavelength_um), "energy_eV": f(self.energy_eV),
-            "monolayer_options": [{"monolayers": o.monolayers, "thickness_nm": o.thickness_nm,
-                                   "wavelength_um": f(o.wavelength_um)}
-                                  for o in self.monolayer_options],
-            "transition": self.transition, "target_energy_eV": self.target_energy_eV,
-            "target_wavelength_um": self.target_wavelength_um,
-            "relative_error": f(self.relative_error), "bracket": list(self.bracket),
-            "evaluations": self.evaluations, "notes": list(self.notes),
-            "bare_energy_eV": f(self.bare_energy_eV),
-            "bare_wavelength_um": f(self.bare_wavelength_um), "depolarised": self.depolarised,
-        }
 
 
 def _default_bounds(p: Parameter) -> tuple[float, float]:
@@ -125,7 +120,7 @@ def _default_bounds(p: Parameter) -> tuple[float, float]:
 
 
 def _target_eV(target) -> float:
-    if isinstance(target, (str, Quantity)):
+    if isinstance(target, str) or is_quantity(target):
         return spectral_to_eV(target)
     t = float(target)
     if not (math.isfinite(t) and t > 0):
@@ -169,7 +164,7 @@ def _why_missing(name, point):
 
 def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=None,
          bands=None, scan_points: int = 25, jobs=1, dask=None, dask_timeout_s=None,
-         progress=None) -> SizeResult:
+         progress=None, emitter: str | None = None) -> SizeResult:
     """Find the parameter value that puts ``transition`` at the target photon energy.
 
     The transition energy is scanned over ``bounds`` (default: a wide range
@@ -191,6 +186,9 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
         E.g. ``'e1-e2'`` or ``'e1-hh1'``.
     bounds : (float, float), optional
         Search range in the parameter's unit.
+    emitter : str, optional
+        An intersubband line (``'e2-e3'``): its LO-phonon lifetimes and figure of merit are
+        reported at the sized value and at the whole-monolayer options.
 
     Raises
     ------
@@ -198,11 +196,20 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
         Unknown parameter, a transition missing at the start point, invalid
         bounds, or a target out of reach (the message gives the reachable
         range and why it ends).
+
+    Examples
+    --------
+    >>> from qwell import load_stack, size
+    >>> res = size(load_stack("layers/lwir-detector.yaml"), "well.thickness", "9 um",
+    ...            transition="e1-e2")
+    >>> round(res.value, 3)                 # nm
+    6.211
     """
     from scipy.optimize import brentq  # heavy; only sizing needs it
 
     p = get_parameter(stack, parameter)
     e_target = _target_eV(target_eV)
+    transition = canonical_transition(transition)
     bands = bands_for_transitions([transition], bands)
     start = design_point(stack, {p.path: p.value}, bands=bands)
     check_transitions(start, [transition], _where(p))
@@ -253,10 +260,12 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
         else:
             reasons.append(f"{transition} has its {'largest' if e_target > emax else 'smallest'} "
                            f"energy near {p.describe(grid[k_ext])}, inside the range")
+        u = auto_unit(e_target)
+        ends = sorted((float(from_eV(emin, u)), float(from_eV(emax, u))))
         raise ParameterError(
-            f"target {lam_t:.5g} um ({e_target:.5g} eV) is out of reach by varying {p.path} "
-            f"over {_fmt_range(lo, hi, p.unit)}: {transition} spans "
-            f"{HC_EV_UM / emax:.5g}..{HC_EV_UM / emin:.5g} um ({emin:.5g}..{emax:.5g} eV)"
+            f"target {format_line(e_target, u)} ({energy_text(e_target, u, 5)}) is out of reach by varying "
+            f"{p.path} over {_fmt_range(lo, hi, p.unit)}: {transition} spans "
+            f"{ends[0]:.5g}..{ends[1]:.5g} {unit_label(u)} ({emin:.5g}..{emax:.5g} eV)"
             + ("; " + "; ".join(reasons) if reasons else ""))
     k0 = min(brackets, key=lambda b: abs(0.5 * (grid[b[0]] + grid[b[1]]) - p.value))
     a, b = float(grid[k0[0]]), float(grid[k0[1]])
@@ -282,15 +291,18 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
         root = brentq(fun, a, b, xtol=1e-12 * (hi - lo), rtol=8.9e-16, maxiter=200)
     value = float(f"{root:.10g}")
     value = min(max(value, a), b)
-    final = design_point(stack, {p.path: value}, bands=bands)
+    final = design_point(stack, {p.path: value}, bands=bands, emitter=emitter)
     evals[0] += 1
+    if emitter is not None and not final.emitter:
+        notes.append(f"emitter line {emitter!r} does not exist at the sized value "
+                     "(it needs two bound conduction states)")
     emit_warnings([final], stacklevel=2)
     e = final.transition_energy(transition)
     if not abs(e - e_target) <= max(1e-6 * abs(e_target), 1e-7):
         # brentq closed in on a discontinuity, not a root: the label changed state there
         raise ParameterError(
-            f"target {lam_t:.5g} um falls on a jump of the {transition} curve near "
-            f"{p.describe(value)} ({HC_EV_UM / e:.5g} um there): the label passes to another "
+            f"target {format_line(e_target, auto_unit(e_target))} falls on a jump of the {transition} curve near "
+            f"{p.describe(value)} ({format_line(e, auto_unit(e_target))} there): the label passes to another "
             "state at that point (a resonance appears or leaves), so no design in "
             f"{_fmt_range(a, b, p.unit)} hits the target; see 'qwell sweep' over {p.path}")
     notes += jump_notes(p, grid, {}, {transition: energies})
@@ -302,11 +314,12 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
             if nml < 1:
                 continue
             t = nml * p.monolayer_nm
-            pt = design_point(stack, {p.path: t}, bands=bands)
+            pt = design_point(stack, {p.path: t}, bands=bands, emitter=emitter)
             evals[0] += 1
             options.append(MonolayerOption(monolayers=nml, thickness_nm=t,
                                            wavelength_um=pt.wavelength(transition),
-                                           energy_eV=pt.transition_energy(transition)))
+                                           energy_eV=pt.transition_energy(transition),
+                                           emitter=pt.emitter))
     return SizeResult(parameter=p.path, unit=p.unit, value=value, transition=transition,
                       target_energy_eV=e_target, target_wavelength_um=lam_t, energy_eV=e,
                       wavelength_um=final.wavelength(transition),
@@ -314,4 +327,5 @@ def size(stack, parameter: str, target_eV, transition: str = "e1-e2", *, bounds=
                       stack=apply_parameters(stack, {p.path: value}), notes=tuple(notes),
                       bare_energy_eV=final.bare_energy(transition),
                       bare_wavelength_um=final.bare_wavelength(transition),
-                      depolarised=transition in {n for n, _, _ in final.bare_transitions})
+                      depolarised=transition in {n for n, _, _ in final.bare_transitions},
+                      emitter=final.emitter, lifetimes_ps=final.lifetimes_ps)

@@ -21,12 +21,15 @@ from typing import Mapping
 import numpy as np
 
 from ..errors import ParameterError, UnitError
+from ..optics import canonical_transition
 from ..stack_edit import Parameter, get_parameter, parameters
 from ..units import parse_quantity, thickness_nm, to_float
 from .evaluate import (DEFAULT_TOLERANCE_EV, DesignPoint, bands_for_transitions,
                        check_transitions, design_point, emit_warnings, evaluate_many)
+from .growth import check_group, composition_groups, growth_rate_groups, parse_growth_rate
+from .histogram import plot_monte_carlo
 
-__all__ = ["Contribution", "MonteCarloSummary", "ToleranceResult", "Sensitivity",
+__all__ = ["Contribution", "GroupContribution", "MonteCarloSummary", "ToleranceResult", "Sensitivity",
            "SensitivityResult", "parse_parameter_value", "tolerance", "sensitivities"]
 
 
@@ -61,25 +64,76 @@ class Contribution:
 
 
 @dataclass(frozen=True)
+class GroupContribution:
+    """One correlated growth error's share of the wavelength spread (its members together).
+
+    Attributes
+    ----------
+    name : str
+        E.g. ``'composition Al0.25Ga0.75As (x)'``, ``'growth rate GaAs'``.
+    kind : {'composition', 'growth rate'}
+    members : tuple of str
+        Parameter paths moved together.
+    spec : str
+        The tolerance as given (``'0.01'``, ``'2%'``).
+    wavelength_plus_um, wavelength_minus_um : float
+        Wavelength with every member at value + delta (value - delta) [um].
+    contribution_nm : float
+        ``(λ+ - λ-)/2`` of the group design [nm] (signed).
+    members_sum_nm : float
+        Sum of the members' one-at-a-time signed contributions [nm]: the
+        linear prediction of ``contribution_nm`` (equal in the linear regime).
+    """
+
+    name: str
+    kind: str
+    members: tuple
+    spec: str
+    wavelength_plus_um: float
+    wavelength_minus_um: float
+    contribution_nm: float
+    members_sum_nm: float
+
+
+@dataclass(frozen=True)
 class MonteCarloSummary:
-    """Statistics of the wavelength over random designs.
+    """Statistics of the wavelength over random designs (correlated growth errors).
+
+    Each composition group and each growth-rate group draws one random number
+    for all its members; layer thicknesses and further parameters draw one
+    each.
 
     Attributes
     ----------
     samples : int
         Designs drawn.
     valid : int
-        Designs in which the transition exists (the statistics use these).
+        Designs in which the transition exists.
     distribution : {'normal', 'uniform'}
-        'normal': each parameter Gaussian with the tolerance as 1 sigma;
+        'normal': each error Gaussian with the tolerance as 1 sigma;
         'uniform': uniform on [-tolerance, +tolerance].
     seed : int or None
     mean_um, std_nm : float
-        Mean wavelength [um] and its standard deviation (ddof=1) [nm].
+        Mean wavelength [um] and its standard deviation (ddof=1) [nm] over the
+        ``valid`` designs.
     percentiles_um : Mapping[int, float]
-        5th, 50th and 95th percentiles [um].
+        5th, 50th and 95th percentiles over all ``samples`` designs [um]; NaN
+        where lost designs make it undefined (see ``percentile_range_um``).
     clipped : int
         Samples where a value was clipped to its valid range.
+    lost : int
+        Designs in which the transition does not exist (``samples - valid``).
+    lost_reasons : tuple of (str, int)
+        What happened in the lost designs, with counts (e.g.
+        ``('e2 not found (left the well)', 12)``).
+    percentile_range_um : Mapping[int, tuple]
+        Percentile over all samples with the lost designs ranked at the short
+        end (low value) and at the long end (high value) [um]: where the
+        percentile lies whatever wavelength the lost designs stood for; NaN
+        where it falls among the lost ones.  Both equal ``percentiles_um``
+        when none is lost.
+    wavelengths_um : tuple of float
+        The valid designs' wavelengths in sample order [um] (the histogram).
     """
 
     samples: int
@@ -90,24 +144,44 @@ class MonteCarloSummary:
     std_nm: float
     percentiles_um: Mapping
     clipped: int = 0
+    lost: int = 0
+    lost_reasons: tuple = ()
+    percentile_range_um: Mapping = field(default_factory=dict)
+    wavelengths_um: tuple = field(default=(), repr=False)
 
 
 @dataclass(frozen=True)
 class ToleranceResult:
     """Result of :func:`tolerance`.
 
+    Two views of the same tolerances:
+
+    * **independent**: every parameter moved alone (``contributions``), summed
+      as if each layer's error were its own (``independent_worst_case_nm``,
+      ``independent_rss_nm``);
+    * **correlated**, as growth errs: a composition error moves every layer of
+      that composition together, a growth-rate error every layer of a
+      material; each such group is one error source (``groups``), never split
+      into root-sum-squared members.  ``worst_case_nm``, ``rss_nm`` and the
+      corner designs are of this view.
+
     Attributes
     ----------
     transition : str
     nominal_energy_eV, nominal_wavelength_um : float
     contributions : tuple of Contribution
+        One-at-a-time, per parameter (growth-rate rows per layer with
+        ``spec`` ending in ``'rate'``).
     worst_case_nm : float
-        Sum of |contribution| [nm] (linear worst case).
+        Correlated linear worst case: sum of |contribution| over the error
+        sources (layer thicknesses one by one, each group once, further
+        parameters) [nm].
     corner_min_um, corner_max_um : float
-        Wavelengths of the actual corner designs: every parameter at the end
+        Wavelengths of the correlated corner designs: every source at the end
         of its range that lowers (raises) the wavelength [um].
     rss_nm : float
-        Root-sum-square of the contributions [nm].
+        Root-sum-square over the independent error sources, each correlated
+        group one term [nm].
     monte_carlo : MonteCarloSummary or None
     notes : tuple of str
     bare_energy_eV, bare_wavelength_um : float
@@ -115,6 +189,12 @@ class ToleranceResult:
         the nominal line itself).
     depolarised : bool
         The line is the depolarisation-shifted one.
+    groups : tuple of GroupContribution
+    independent_worst_case_nm, independent_rss_nm : float
+        Sum of |contribution| and root-sum-square over ``contributions`` [nm]
+        (every parameter treated as independent).
+    growth_rate : float
+        Relative growth-rate error (0 when not given).
     """
 
     transition: str
@@ -130,38 +210,14 @@ class ToleranceResult:
     bare_energy_eV: float = math.nan
     bare_wavelength_um: float = math.nan
     depolarised: bool = False
+    groups: tuple = ()
+    independent_worst_case_nm: float = math.nan
+    independent_rss_nm: float = math.nan
+    growth_rate: float = 0.0
 
-    def to_json(self) -> dict:
-        def f(v):
-            return None if v is None or not math.isfinite(v) else float(v)
-        mc = None
-        if self.monte_carlo is not None:
-            m = self.monte_carlo
-            mc = {"samples": m.samples, "valid": m.valid, "distribution": m.distribution,
-                  "sigma": ("tolerance = 1 sigma" if m.distribution == "normal"
-                            else "uniform on ±tolerance"),
-                  "seed": m.seed, "mean_um": f(m.mean_um), "std_nm": f(m.std_nm),
-                  "percentiles_um": {str(k): f(v) for k, v in m.percentiles_um.items()},
-                  "clipped": m.clipped}
-        return {
-            "transition": self.transition,
-            "nominal": {"energy_eV": f(self.nominal_energy_eV),
-                        "wavelength_um": f(self.nominal_wavelength_um),
-                        "bare_energy_eV": f(self.bare_energy_eV),
-                        "bare_wavelength_um": f(self.bare_wavelength_um),
-                        "depolarised": self.depolarised},
-            "contributions": [{"parameter": c.parameter, "unit": c.unit, "value": c.value,
-                               "delta": c.delta, "spec": c.spec,
-                               "wavelength_plus_um": f(c.wavelength_plus_um),
-                               "wavelength_minus_um": f(c.wavelength_minus_um),
-                               "contribution_nm": f(c.contribution_nm)}
-                              for c in self.contributions],
-            "worst_case": {"sum_nm": f(self.worst_case_nm), "corner_min_um": f(self.corner_min_um),
-                           "corner_max_um": f(self.corner_max_um)},
-            "rss_nm": f(self.rss_nm),
-            "monte_carlo": mc,
-            "notes": list(self.notes),
-        }
+    def plot(self, path, *, protect=(), title: str | None = None, unit: str | None = None):
+        """Histogram PNG of the Monte Carlo (see :func:`qwell.design.histogram.plot_monte_carlo`)."""
+        return plot_monte_carlo(self, path, protect=protect, title=title, unit=unit)
 
 
 def parse_parameter_value(p: Parameter, value, *, delta: bool = False) -> float:
@@ -277,20 +333,29 @@ def _clip_to_valid(p: Parameter, v: float) -> float:
 
 
 def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_tol=0.01,
-              extra=None, *, monte_carlo: int = 0, seed=None, distribution: str = "normal",
-              bands=None, jobs=None, dask=None, dask_timeout_s=None,
-              progress=None) -> ToleranceResult:
-    """Wavelength spread of ``transition`` from growth tolerances.
+              extra=None, *, growth_rate=None, monte_carlo: int = 0, seed=None,
+              distribution: str = "normal", bands=None, jobs=None, dask=None,
+              dask_timeout_s=None, progress=None) -> ToleranceResult:
+    """Wavelength spread of ``transition`` from growth tolerances, independent and correlated.
 
     Each parameter is moved by ±tolerance one at a time (signed contribution
-    ``(λ+ - λ-)/2``); all together give the linear worst case (sum of
-    |contributions|), the two actual corner designs, and the root-sum-square.
-    A repeated layer is varied in all its periods together (a systematic
-    growth error).  With ``monte_carlo=N`` every parameter is drawn
-    independently (Gaussian with the tolerance as 1 sigma, or uniform on
-    ±tolerance) and the wavelength statistics are reported; values crossing
-    their valid range (thickness <= 0, composition outside [0, 1]) are
-    clipped and counted.
+    ``(λ+ - λ-)/2``).  Growth errors are shared, so the correlated view moves
+    every layer of one composition together (one cell setting) and, with
+    ``growth_rate``, every layer of one material by the same percentage; each
+    group is solved as one design and counted as one error source.  The
+    worst case (sum of |contributions| over the sources), the corner designs
+    and the root-sum-square (over independent sources only: a correlated
+    group is one term, never split) are of the correlated view; the
+    independent sums over every parameter are given beside them.  A repeated
+    layer is varied in all its periods together.
+
+    With ``monte_carlo=N`` the errors are drawn as growth makes them: one
+    random number per composition group and per growth-rate group, one per
+    layer thickness and further parameter (Gaussian with the tolerance as 1
+    sigma, or uniform on ±tolerance).  Values crossing their valid range are
+    clipped and counted; designs in which the transition no longer exists are
+    counted with what happened, and the percentiles are over all samples
+    with the lost ones stated (:class:`MonteCarloSummary`).
 
     Parameters
     ----------
@@ -305,6 +370,9 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
         layer -> tolerance.  Layers without a composition are skipped.
     extra : Mapping, optional
         Further parameters: path -> tolerance (e.g. ``{'field': '2 kV/cm'}``).
+    growth_rate : str or float, optional
+        Relative growth-rate error of every material, ``'2%'`` or 0.02
+        (None or 0: none).
     monte_carlo : int
         Number of random designs (0: none).
     seed : int, optional
@@ -315,7 +383,16 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
     ------
     ParameterError
         Transition missing in the nominal design, unknown layers or paths,
-        a ±tolerance design outside the valid range (named).
+        a growth rate negative or >= 100 %, a ±tolerance design outside the
+        valid range (named).
+
+    Examples
+    --------
+    >>> from qwell import load_stack, tolerance
+    >>> res = tolerance(load_stack("layers/lwir-detector.yaml"), "e1-e2",
+    ...                 thickness_tol="1 ML", composition_tol=0.01)
+    >>> round(res.worst_case_nm)
+    344
     """
     if thickness_tol is None:
         thickness_tol = {"*": "1 ML"}
@@ -324,6 +401,9 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
     n_mc = int(monte_carlo or 0)
     if n_mc < 0:
         raise ParameterError(f"monte_carlo = {monte_carlo!r}: expected a count >= 0")
+    transition = canonical_transition(transition)
+    rate = 0.0 if growth_rate is None else parse_growth_rate(growth_rate)
+    rate_spec = "" if growth_rate is None else str(growth_rate).replace(" ", "")
     bands = bands_for_transitions([transition], bands)
     params = parameters(stack)
     nominal = design_point(stack, {}, bands=bands)
@@ -331,11 +411,16 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
     emit_warnings([nominal], stacklevel=2)
     items, notes = _tolerance_items(stack, params, thickness_tol, composition_tol, extra)
     lam0 = nominal.wavelength(transition)
+    comp_groups = composition_groups(items)
+    rate_groups = growth_rate_groups(stack, params, rate, rate_spec) if rate > 0 else []
+    # one-at-a-time rows: every item, then each growth-rate member alone
+    rows = list(items) + [(p, d, f"{rate_spec} rate") for g in rate_groups
+                          for p, d in zip(g.members, g.deltas)]
 
     sets = []
-    for p, d, _ in items:
-        for s in (+1, -1):
-            v = p.value + s * d
+    for p, d, _ in rows:
+        for sg in (+1, -1):
+            v = p.value + sg * d
             try:
                 p.check(v)
             except ParameterError as exc:
@@ -343,12 +428,18 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
                                      f"(nominal {p.value:.6g}) leaves the valid range: {exc}"
                                      ) from None
             sets.append({p.path: v})
+    # groups of several members need their own designs (one member: its row is the group)
+    multi = [g for g in comp_groups + rate_groups if len(g.members) > 1]
+    for g in multi:
+        for sg in (+1, -1):
+            check_group(g, sg)
+            sets.append(g.values(sg))
     needed = tuple(transition.split("-"))
     pm = evaluate_many(stack, sets, bands=bands, jobs=jobs, dask=dask,
                        dask_timeout_s=dask_timeout_s, progress=progress, label="tolerance",
                        needed=needed)
     contributions = []
-    for k, (p, d, spec) in enumerate(items):
+    for k, (p, d, spec) in enumerate(rows):
         lp, lm = pm[2 * k].wavelength(transition), pm[2 * k + 1].wavelength(transition)
         if not (math.isfinite(lp) and math.isfinite(lm)):
             notes.append(f"{p.path} ±{d:.4g}: {transition} does not exist at one end")
@@ -356,62 +447,175 @@ def tolerance(stack, transition: str = "e1-e2", thickness_tol=None, composition_
                                           spec=spec, wavelength_plus_um=lp,
                                           wavelength_minus_um=lm,
                                           contribution_nm=0.5 * (lp - lm) * 1e3))
-    c = np.array([x.contribution_nm for x in contributions])
-    worst = float(np.sum(np.abs(c))) if c.size else 0.0
-    rss = float(np.sqrt(np.sum(c ** 2))) if c.size else 0.0
+    n_items = len(items)
+    item_c = {(p.path, spec): c for (p, _, spec), c in zip(rows, contributions)}
+    group_results = []
+    base = 2 * len(rows)
+    for g in comp_groups + rate_groups:
+        specs = [f"{rate_spec} rate"] * len(g.members) if g.kind == "growth rate" else None
+        member_cs = []
+        for j, p in enumerate(g.members):
+            if specs is not None:
+                member_cs.append(item_c[(p.path, specs[j])])
+            else:
+                member_cs.append(next(c for (q, _, _), c in zip(items, contributions)
+                                      if q.path == p.path))
+        if len(g.members) > 1:
+            i = base + 2 * multi.index(g)
+            lp, lm = pm[i].wavelength(transition), pm[i + 1].wavelength(transition)
+            if not (math.isfinite(lp) and math.isfinite(lm)):
+                notes.append(f"{g.name} ±{g.spec}: {transition} does not exist at one end")
+        else:
+            lp, lm = member_cs[0].wavelength_plus_um, member_cs[0].wavelength_minus_um
+        group_results.append(GroupContribution(
+            name=g.name, kind=g.kind, members=g.paths, spec=g.spec, wavelength_plus_um=lp,
+            wavelength_minus_um=lm, contribution_nm=0.5 * (lp - lm) * 1e3,
+            members_sum_nm=float(sum(c.contribution_nm for c in member_cs))))
+
+    # independent view: every one-at-a-time row on its own
+    c_ind = np.array([x.contribution_nm for x in contributions])
+    worst_ind = float(np.sum(np.abs(c_ind))) if c_ind.size else 0.0
+    rss_ind = float(np.sqrt(np.sum(c_ind ** 2))) if c_ind.size else 0.0
+    # correlated view: thickness and further items alone, each group once
+    sources = [(dict([(p.path, (p, d))]), c.contribution_nm)
+               for (p, d, _), c in zip(items, contributions[:n_items]) if p.kind not in ("x", "y")]
+    for g, gr in zip(comp_groups + rate_groups, group_results):
+        sources.append(({p.path: (p, d) for p, d in zip(g.members, g.deltas)},
+                        gr.contribution_nm))
+    c_cor = np.array([c for _, c in sources])
+    worst = float(np.sum(np.abs(c_cor))) if c_cor.size else 0.0
+    rss = float(np.sqrt(np.sum(c_cor ** 2))) if c_cor.size else 0.0
     up, down = {}, {}
-    for (p, d, _), ci in zip(items, c):
-        s = 1.0 if not (ci < 0) else -1.0
+    for members, ci in sources:
         if ci == 0 or not math.isfinite(ci):
             continue
-        up[p.path] = p.value + s * d
-        down[p.path] = p.value - s * d
-    corners = evaluate_many(stack, [down, up], bands=bands, jobs=1, needed=needed)
+        sg = 1.0 if ci > 0 else -1.0
+        for path, (p, d) in members.items():
+            # thickness moved by its own tolerance and by a growth-rate group add up
+            up[path] = up.get(path, p.value) + sg * d
+            down[path] = down.get(path, p.value) - sg * d
+    for vals in (up, down):
+        for path, v in vals.items():
+            vals[path] = _clip_to_valid(params[path], v)
+    corners = evaluate_many(stack, [down, up], bands=bands, jobs=1, needed=needed,
+                            record_errors=True)
     corner_min, corner_max = corners[0].wavelength(transition), corners[1].wavelength(transition)
+    for name, pt in (("low", corners[0]), ("high", corners[1])):
+        if not math.isfinite(pt.wavelength(transition)):
+            notes.append(f"{name}-wavelength corner design: {_why_lost(pt, needed)}")
 
     mc = None
     if n_mc:
-        rng = np.random.default_rng(seed)
-        shape = (n_mc, len(items))
-        z = rng.standard_normal(shape) if distribution == "normal" else rng.uniform(-1, 1, shape)
-        clipped = 0
-        sample_sets = []
-        for i in range(n_mc):
-            d = {}
-            hit = False
-            for k, (p, dk, _) in enumerate(items):
-                v = p.value + dk * z[i, k]
-                cv = _clip_to_valid(p, v)
-                hit = hit or cv != v
-                d[p.path] = cv
-            clipped += hit
-            sample_sets.append(d)
-        pts = evaluate_many(stack, sample_sets, bands=bands, jobs=jobs, dask=dask,
-                            dask_timeout_s=dask_timeout_s, progress=progress,
-                            label="Monte Carlo", needed=needed)
-        lam = np.array([pt.wavelength(transition) for pt in pts])
-        ok = lam[np.isfinite(lam)]
-        if ok.size < lam.size:
-            notes.append(f"Monte Carlo: {transition} missing in {lam.size - ok.size} of "
-                         f"{lam.size} designs (left out of the statistics)")
-        if clipped:
-            notes.append(f"Monte Carlo: {clipped} of {n_mc} designs had a value clipped to its "
-                         "valid range")
-        pct = np.percentile(ok, [5, 50, 95]) if ok.size else [math.nan] * 3
-        mc = MonteCarloSummary(samples=n_mc, valid=int(ok.size), distribution=distribution,
-                               seed=seed, mean_um=float(np.mean(ok)) if ok.size else math.nan,
-                               std_nm=float(np.std(ok, ddof=1)) * 1e3 if ok.size > 1 else math.nan,
-                               percentiles_um={5: float(pct[0]), 50: float(pct[1]),
-                                               95: float(pct[2])},
-                               clipped=int(clipped))
+        mc = _monte_carlo(stack, items, rate_groups, transition, needed, n_mc, seed,
+                          distribution, bands, notes, jobs=jobs, dask=dask,
+                          dask_timeout_s=dask_timeout_s, progress=progress)
     return ToleranceResult(transition=transition,
                            nominal_energy_eV=nominal.transition_energy(transition),
                            nominal_wavelength_um=lam0, contributions=tuple(contributions),
                            worst_case_nm=worst, corner_min_um=corner_min, corner_max_um=corner_max,
-                           rss_nm=rss, monte_carlo=mc, notes=tuple(notes),
+                           rss_nm=rss, monte_carlo=mc, notes=tuple(dict.fromkeys(notes)),
+                           groups=tuple(group_results), independent_worst_case_nm=worst_ind,
+                           independent_rss_nm=rss_ind, growth_rate=rate,
                            bare_energy_eV=nominal.bare_energy(transition),
                            bare_wavelength_um=nominal.bare_wavelength(transition),
                            depolarised=transition in {n for n, _, _ in nominal.bare_transitions})
+
+
+def _why_lost(pt: DesignPoint, needed) -> str:
+    """What happened in a design without the transition."""
+    if pt.error is not None:
+        return f"solve failed ({pt.error.splitlines()[0][:120]})"
+    have = {lab for lab, _, _ in pt.states}
+    missing = [lab for lab in needed if lab not in have]
+    if missing:
+        return " and ".join(missing) + " not found (left the well)"
+    return "both states found but the line is not listed"
+
+
+def _percentile_at(sorted_vals: np.ndarray, pos: float) -> float:
+    """Linear-interpolated order statistic at fractional rank ``pos``; NaN outside."""
+    n = sorted_vals.size
+    if n == 0 or pos < -1e-9 or pos > n - 1 + 1e-9:
+        return math.nan
+    pos = min(max(pos, 0.0), n - 1.0)
+    lo = int(math.floor(pos))
+    hi = min(lo + 1, n - 1)
+    return float(sorted_vals[lo] + (pos - lo) * (sorted_vals[hi] - sorted_vals[lo]))
+
+
+def percentiles_over_all(kept_um, samples: int, qs=(5, 50, 95)) -> dict:
+    """Percentiles over all ``samples`` designs, the lost ones ranked at either end.
+
+    Returns q -> (value with the lost ranked at the short-wavelength end,
+    value with them at the long end) [um], low before high; NaN where the
+    percentile falls among the lost designs.  With none lost both equal
+    :func:`numpy.percentile` (linear interpolation).
+    """
+    s = np.sort(np.asarray(kept_um, dtype=float))
+    lost = samples - s.size
+    out = {}
+    for q in qs:
+        r = q / 100.0 * (samples - 1)
+        out[q] = (_percentile_at(s, r - lost), _percentile_at(s, r))
+    return out
+
+
+def _monte_carlo(stack, items, rate_groups, transition, needed, n_mc, seed, distribution,
+                 bands, notes, **par) -> MonteCarloSummary:
+    """Random designs with correlated growth errors; lost designs counted and explained."""
+    comp_groups = composition_groups(items)
+    # error sources: one column each
+    singles = [(p, d) for p, d, _ in items if p.kind not in ("x", "y")]
+    n_cols = len(singles) + len(comp_groups) + len(rate_groups)
+    rng = np.random.default_rng(seed)
+    shape = (n_mc, n_cols)
+    z = rng.standard_normal(shape) if distribution == "normal" else rng.uniform(-1, 1, shape)
+    params = {p.path: p for p, _ in singles}
+    for g in comp_groups + rate_groups:
+        params.update({p.path: p for p in g.members})
+    clipped = 0
+    sample_sets = []
+    for i in range(n_mc):
+        shift: dict = {}
+        col = 0
+        for p, d in singles:
+            shift[p.path] = shift.get(p.path, 0.0) + d * z[i, col]
+            col += 1
+        for g in comp_groups + rate_groups:
+            for p, d in zip(g.members, g.deltas):
+                shift[p.path] = shift.get(p.path, 0.0) + d * z[i, col]
+            col += 1
+        d_i = {}
+        hit = False
+        for path, dv in shift.items():
+            v = params[path].value + dv
+            cv = _clip_to_valid(params[path], v)
+            hit = hit or cv != v
+            d_i[path] = cv
+        clipped += hit
+        sample_sets.append(d_i)
+    pts = evaluate_many(stack, sample_sets, bands=bands, label="Monte Carlo", needed=needed,
+                        record_errors=True, **par)
+    lam = np.array([pt.wavelength(transition) for pt in pts])
+    good = np.isfinite(lam)
+    ok = lam[good]
+    reasons: dict = {}
+    for pt, g in zip(pts, good):
+        if not g:
+            why = _why_lost(pt, needed)
+            reasons[why] = reasons.get(why, 0) + 1
+    lost = int(lam.size - ok.size)
+    if clipped:
+        notes.append(f"Monte Carlo: {clipped} of {n_mc} designs had a value clipped to its "
+                     "valid range")
+    rng_pct = percentiles_over_all(ok, n_mc)
+    pct = {q: (a if a == b else math.nan) for q, (a, b) in rng_pct.items()}
+    return MonteCarloSummary(samples=n_mc, valid=int(ok.size), distribution=distribution,
+                             seed=seed, mean_um=float(np.mean(ok)) if ok.size else math.nan,
+                             std_nm=float(np.std(ok, ddof=1)) * 1e3 if ok.size > 1 else math.nan,
+                             percentiles_um=pct, clipped=int(clipped), lost=lost,
+                             lost_reasons=tuple(reasons.items()), percentile_range_um=rng_pct,
+                             wavelengths_um=tuple(float(v) for v in ok))
 
 
 # ---------------------------------------------------------------------------
@@ -562,6 +766,7 @@ def sensitivities(stack, transitions=("e1-e2",), thickness_tol="1 ML", compositi
     names = [transitions] if isinstance(transitions, str) else list(transitions or ())
     if not names:
         raise ParameterError("no transition given; expected names such as e1-e2 or e1-hh1")
+    names = [canonical_transition(n) for n in names]
     bands = bands_for_transitions(names, bands)
     needed = tuple(dict.fromkeys(lab for n in names for lab in n.split("-")))
     params = parameters(stack)

@@ -98,6 +98,8 @@ PARAM_FIELDS = (
     "dielectric_constant",
     "band_gap_X_eV",
     "band_gap_L_eV",
+    "lo_phonon_energy_eV",
+    "high_frequency_dielectric_constant",
 )
 
 #: YAML key (stack files, user materials, per-layer overrides) -> (Material field, unit or None).
@@ -118,6 +120,8 @@ USER_KEYS: dict[str, tuple[str, str | None]] = {
     "kane_energy": ("kane_energy_eV", "eV"),
     "kane_F": ("kane_F", None),
     "dielectric_constant": ("dielectric_constant", None),
+    "lo_phonon_energy": ("lo_phonon_energy_eV", "eV"),
+    "high_frequency_dielectric_constant": ("high_frequency_dielectric_constant", None),
     "ac": ("ac_eV", "eV"),
     "av": ("av_eV", "eV"),
     "b": ("b_eV", "eV"),
@@ -126,7 +130,8 @@ USER_KEYS: dict[str, tuple[str, str | None]] = {
 }
 
 _POSITIVE_FIELDS = ("lattice_constant_nm", "band_gap_eV", "electron_mass", "heavy_hole_mass",
-                    "light_hole_mass", "dielectric_constant", "c11_GPa", "c12_GPa")
+                    "light_hole_mass", "dielectric_constant", "c11_GPa", "c12_GPa",
+                    "lo_phonon_energy_eV", "high_frequency_dielectric_constant")
 
 # Relative tolerance for "consistent" user-given values.
 _CONSISTENCY_TOL = 1e-6
@@ -134,8 +139,10 @@ _CONSISTENCY_TOL = 1e-6
 
 # --------------------------------------------------------------------------- data
 def _load(name: str):
+    # the C loader when libyaml is there (same constructors, ~5x faster start-up)
+    loader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
     with open(_DATA / name, encoding="utf-8") as fh:
-        return yaml.safe_load(fh)
+        return yaml.load(fh, Loader=loader)
 
 
 SOURCES: Mapping[str, dict] = _load("sources.yaml")
@@ -164,25 +171,70 @@ def _binary_name(cation: str, anion: str) -> str:
     return cation + anion
 
 
-# Family lookup: (frozenset of cations, frozenset of anions) -> family name.
-_FAMILY_BY_ELEMENTS: dict[tuple[frozenset, frozenset], str] = {}
-for _fam, _d in _TERNARIES.items():
-    if _d["sublattice"] == "III":
-        _key = (frozenset(_d["elements"]), frozenset([_d["common"]]))
-    else:
-        _key = (frozenset([_d["common"]]), frozenset(_d["elements"]))
-    _FAMILY_BY_ELEMENTS[_key] = _fam
-for _fam, _d in _QUATERNARIES.items():
-    _FAMILY_BY_ELEMENTS[(frozenset(_d["III"]), frozenset(_d["V"]))] = _fam
-for _b in _BINARIES:
-    _m = re.fullmatch(r"(Al|Ga|In)(P|As|Sb)", _b)
-    _FAMILY_BY_ELEMENTS[(frozenset([_m.group(1)]), frozenset([_m.group(2)]))] = _b
+class _Tables:
+    """One set of parameter tables: binaries, ternary and quaternary families.
 
-# Bowing lookup for a mixed pair on a sublattice with a given shared element:
-# (frozenset(pair), shared element) -> ternary family record.
-_TERNARY_BY_PAIR: dict[tuple[frozenset, str], dict] = {
-    (frozenset(d["elements"]), d["common"]): d for d in _TERNARIES.values()
-}
+    The built-in set is :data:`_BUILTIN`; material libraries
+    (:mod:`qwell.materials.library`) build merged copies with the same
+    record structure.  Instances hash by identity, so the look-up caches
+    below keep one entry per table set.
+    """
+
+    def __init__(self, binaries: dict, ternaries: dict, quaternaries: dict):
+        self.binaries = binaries
+        self.ternaries = ternaries
+        self.quaternaries = quaternaries
+        # (frozenset of cations, frozenset of anions) -> family name
+        fam: dict[tuple[frozenset, frozenset], str] = {}
+        for name, d in ternaries.items():
+            if d["sublattice"] == "III":
+                key = (frozenset(d["elements"]), frozenset([d["common"]]))
+            else:
+                key = (frozenset([d["common"]]), frozenset(d["elements"]))
+            fam[key] = name
+        for name, d in quaternaries.items():
+            fam[(frozenset(d["III"]), frozenset(d["V"]))] = name
+        for b in binaries:
+            m = re.fullmatch(f"({'|'.join(GROUP_III)})({'|'.join(GROUP_V)})", b)
+            fam[(frozenset([m.group(1)]), frozenset([m.group(2)]))] = b
+        self.family_by_elements = fam
+        # bowing look-up for a mixed pair on a sublattice with a given shared
+        # element: (frozenset(pair), shared element) -> ternary family record
+        self.ternary_by_pair: dict[tuple[frozenset, str], dict] = {
+            (frozenset(d["elements"]), d["common"]): d for d in ternaries.values()
+        }
+
+
+_BUILTIN = _Tables(_BINARIES, _TERNARIES, _QUATERNARIES)
+
+# Source entries registered by material libraries (keys never collide with
+# data/sources.yaml: they start with "library:" and carry the file's hash).
+_LIBRARY_SOURCES: dict[str, dict] = {}
+
+
+def _register_sources(entries: Mapping[str, dict]) -> None:
+    """Make library source keys resolvable by :func:`citation` (content-addressed keys)."""
+    for k, e in entries.items():
+        if k in SOURCES:
+            raise MaterialError(f"internal: library source key {k!r} shadows a built-in key")
+        _LIBRARY_SOURCES.setdefault(k, dict(e))
+
+
+def source_entry(key: str) -> dict:
+    """The source record of one key (built-in or registered by a library).
+
+    Raises
+    ------
+    MaterialError
+        If the key is unknown.
+    """
+    if key in SOURCES:
+        return SOURCES[key]
+    if key in _LIBRARY_SOURCES:
+        return _LIBRARY_SOURCES[key]
+    close = difflib.get_close_matches(key, list(SOURCES), n=3)
+    hint = f"; did you mean {_or_list(close)}?" if close else ""
+    raise MaterialError(f"unknown source key {key!r}{hint}")
 
 
 # --------------------------------------------------------------------------- citations
@@ -196,11 +248,7 @@ def citation(key: str) -> str:
     """
     parts = []
     for k in str(key).split("+"):
-        if k not in SOURCES:
-            close = difflib.get_close_matches(k, list(SOURCES), n=3)
-            hint = f"; did you mean {_or_list(close)}?" if close else ""
-            raise MaterialError(f"unknown source key {k!r}{hint}")
-        e = SOURCES[k]
+        e = source_entry(k)
         text = []
         if e.get("author"):
             text.append(str(e["author"]))
@@ -286,6 +334,14 @@ class Material:
         Static relative permittivity.
     band_gap_X_eV, band_gap_L_eV : float or None
         X- and L-valley gaps [eV] at ``temperature_K``.
+    lo_phonon_energy_eV : float or None
+        Zone-centre LO-phonon energy [eV].  Alloys: the mode of the dominant
+        end member (largest weight in the Vegard sum); two-mode alloys such as
+        AlGaAs and InGaAs have a second, weaker branch that is ignored
+        (source key ``two_mode_alloy``).
+    high_frequency_dielectric_constant : float or None
+        Relative permittivity above the reststrahlen band, eps_inf
+        (``dielectric_constant`` is the static eps_s).
     sources : Mapping[str, str]
         Field name -> source key of ``data/sources.yaml`` (``'user'`` for
         user-given values; ``'a+b'`` when several sources combine).
@@ -316,6 +372,8 @@ class Material:
     dielectric_constant: float | None = None
     band_gap_X_eV: float | None = None
     band_gap_L_eV: float | None = None
+    lo_phonon_energy_eV: float | None = None
+    high_frequency_dielectric_constant: float | None = None
     sources: Mapping[str, str] = field(default_factory=dict)
 
     def __hash__(self):
@@ -531,13 +589,13 @@ def _gap(rec: dict, T: float) -> float:
 
 _SIMPLE = ("valence_edge_eV", "spin_orbit_eV", "electron_mass", "gamma1", "gamma2", "gamma3",
            "kane_energy_eV", "kane_F", "ac_eV", "av_eV", "b_eV", "c11_GPa", "c12_GPa",
-           "dielectric_constant")
+           "dielectric_constant", "lo_phonon_energy_eV", "high_frequency_dielectric_constant")
 
 
 @functools.lru_cache(maxsize=1024)
-def _binary_values(name: str, T: float) -> tuple[dict, dict]:
+def _binary_values(name: str, T: float, tables: _Tables = _BUILTIN) -> tuple[dict, dict]:
     """(values, sources) of a binary at temperature T, before derived fields."""
-    rec = _BINARIES[name]
+    rec = tables.binaries[name]
     vals, srcs = {}, {}
     a = rec["lattice_constant_A_300K"]
     da = rec["lattice_expansion_A_per_K"]
@@ -561,7 +619,8 @@ def _hole_masses(v: dict) -> tuple[float, float, float]:
 
 _INTERP = ("lattice_constant_nm", "band_gap_eV", "band_gap_X_eV", "band_gap_L_eV",
            "valence_edge_eV", "spin_orbit_eV", "electron_mass", "kane_energy_eV", "kane_F",
-           "ac_eV", "av_eV", "b_eV", "c11_GPa", "c12_GPa", "dielectric_constant")
+           "ac_eV", "av_eV", "b_eV", "c11_GPa", "c12_GPa", "dielectric_constant",
+           "high_frequency_dielectric_constant")
 
 
 def _bowing(rec: dict, fld: str, pair_fraction: float) -> tuple[float, str | None]:
@@ -572,21 +631,25 @@ def _bowing(rec: dict, fld: str, pair_fraction: float) -> tuple[float, str | Non
 
 
 @functools.lru_cache(maxsize=8192)
-def _alloy_values(cations: tuple, anions: tuple, T: float) -> tuple[dict, dict]:
+def _alloy_values(cations: tuple, anions: tuple, T: float,
+                  tables: _Tables = _BUILTIN) -> tuple[dict, dict]:
     """(values, sources) for element fractions ((el, frac), ...) on each sublattice."""
     cat = dict(cations)
     an = dict(anions)
     if len(cat) == 1 and len(an) == 1:
         name = _binary_name(next(iter(cat)), next(iter(an)))
-        v, s = _binary_values(name, T)
+        v, s = _binary_values(name, T, tables)
         return dict(v), dict(s)
     vals = {f: 0.0 for f in _INTERP}
     srcs: dict[str, set] = {f: set() for f in _INTERP}
     mh = [0.0, 0.0, 0.0]
+    dominant = (-1.0, None, None)   # (weight, LO energy, source) of the dominant end member
     for ci, xc in cat.items():
         for aj, xa in an.items():
             w = xc * xa
-            bv, bs = _binary_values(_binary_name(ci, aj), T)
+            bv, bs = _binary_values(_binary_name(ci, aj), T, tables)
+            if w > dominant[0]:
+                dominant = (w, bv["lo_phonon_energy_eV"], bs["lo_phonon_energy_eV"])
             for f in _INTERP:
                 vals[f] += w * bv[f]
                 srcs[f].add(bs[f])
@@ -600,7 +663,7 @@ def _alloy_values(cations: tuple, anions: tuple, T: float) -> tuple[dict, dict]:
                 e1, e2 = els[i], els[j]
                 x1, x2 = mixed[e1], mixed[e2]
                 for s_el, xs in shared.items():
-                    rec = _TERNARY_BY_PAIR.get((frozenset((e1, e2)), s_el))
+                    rec = tables.ternary_by_pair.get((frozenset((e1, e2)), s_el))
                     if rec is None:
                         raise MaterialError(
                             f"no bowing data for the {e1}-{e2} pair with {s_el}: the ternary "
@@ -616,10 +679,13 @@ def _alloy_values(cations: tuple, anions: tuple, T: float) -> tuple[dict, dict]:
     g2 = 0.25 * (1.0 / mh[1] - 1.0 / mh[0])
     g3 = 0.5 * (g1 - 1.0 / mh[2])
     vals.update(gamma1=g1, gamma2=g2, gamma3=g3)
+    vals["lo_phonon_energy_eV"] = dominant[1]
     out_src = {f: "+".join(sorted(s)) for f, s in srcs.items()}
+    out_src["lo_phonon_energy_eV"] = dominant[2] + "+two_mode_alloy"
     lut = "vurgaftman2001+common_practice"
     out_src.update(gamma1=lut, gamma2=lut, gamma3=lut)
-    out_src["dielectric_constant"] = out_src["dielectric_constant"] + "+common_practice"
+    for f in ("dielectric_constant", "high_frequency_dielectric_constant"):
+        out_src[f] = out_src[f] + "+common_practice"
     if (len(cat) > 1 and len(an) > 1) or len(cat) > 2 or len(an) > 2:
         for f in out_src:
             out_src[f] = out_src[f] + "+quaternary_scheme"
@@ -630,11 +696,11 @@ def _alloy_values(cations: tuple, anions: tuple, T: float) -> tuple[dict, dict]:
 _TOKEN = re.compile(r"([A-Z][a-z]?)(-?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?)?")
 
 
-def _family_patterns() -> dict[str, str]:
+def _family_patterns(tables: _Tables = _BUILTIN) -> dict[str, str]:
     out = {}
-    for fam, d in _TERNARIES.items():
+    for fam, d in tables.ternaries.items():
         out[fam] = d["pattern"]
-    for fam, d in _QUATERNARIES.items():
+    for fam, d in tables.quaternaries.items():
         out[fam] = d["pattern"]
     return out
 
@@ -647,16 +713,22 @@ def known_materials() -> list[str]:
     mixed sublattice; the order of elements in a formula does not matter
     (``Ga0.47In0.53As`` is ``In0.53Ga0.47As``).
     """
-    return list(_BINARIES) + [f"{fam}: {pat}" for fam, pat in _family_patterns().items()]
+    return _known_materials(_BUILTIN)
 
 
-def _candidates(extra=()) -> list[str]:
-    return list(_BINARIES) + list(_TERNARIES) + list(_QUATERNARIES) + list(extra)
+def _known_materials(tables: _Tables) -> list[str]:
+    return list(tables.binaries) + [f"{fam}: {pat}"
+                                    for fam, pat in _family_patterns(tables).items()]
 
 
-def _unknown(name: str, extra=(), why: str = "") -> MaterialError:
+def _candidates(extra=(), tables: _Tables = _BUILTIN) -> list[str]:
+    return (list(tables.binaries) + list(tables.ternaries) + list(tables.quaternaries)
+            + list(extra))
+
+
+def _unknown(name: str, extra=(), why: str = "", tables: _Tables = _BUILTIN) -> MaterialError:
     bare = re.sub(r"[\d.]+", "", name)
-    cands = _candidates(extra)
+    cands = _candidates(extra, tables)
     close = difflib.get_close_matches(name, cands, n=3, cutoff=0.6)
     if not close and bare != name:
         close = difflib.get_close_matches(bare, cands, n=3, cutoff=0.6)
@@ -666,7 +738,7 @@ def _unknown(name: str, extra=(), why: str = "") -> MaterialError:
     if close:
         msg += f"; did you mean {_or_list(close)}?"
     else:
-        msg += "; known: " + ", ".join(_candidates(extra))
+        msg += "; known: " + ", ".join(_candidates(extra, tables))
     exc = MaterialError(msg)
     exc.unknown_name = True
     exc.why = why
@@ -674,7 +746,7 @@ def _unknown(name: str, extra=(), why: str = "") -> MaterialError:
 
 
 @functools.lru_cache(maxsize=8192)
-def _parse_elements(name: str) -> tuple[tuple, tuple]:
+def _parse_elements(name: str, tables: _Tables = _BUILTIN) -> tuple[tuple, tuple]:
     """Element fractions ((el, frac), ...) per sublattice, zero fractions dropped.
 
     Raises MaterialError for anything that is not a valid III-V formula.
@@ -685,11 +757,11 @@ def _parse_elements(name: str) -> tuple[tuple, tuple]:
     while pos < len(text):
         m = _TOKEN.match(text, pos)
         if not m:
-            raise _unknown(name)
+            raise _unknown(name, tables=tables)
         tokens.append((m.group(1), m.group(2)))
         pos = m.end()
     if not tokens:
-        raise _unknown(name)
+        raise _unknown(name, tables=tables)
     seen = set()
     sub = {"III": [], "V": []}
     for el, num in tokens:
@@ -699,18 +771,18 @@ def _parse_elements(name: str) -> tuple[tuple, tuple]:
             lat = "V"
         else:
             raise _unknown(name, why=f"element {el!r} is not a group-III or group-V element "
-                                     f"({', '.join(GROUP_III + GROUP_V)})")
-        with_data = _elements_with_data()
+                                     f"({', '.join(GROUP_III + GROUP_V)})", tables=tables)
+        with_data = _elements_with_data(tables)
         if el not in with_data:
             raise _unknown(name, why=f"element {el!r} has no data in the database, which "
-                                     f"covers {', '.join(with_data)}")
+                                     f"covers {', '.join(with_data)}", tables=tables)
         if el in seen:
             raise MaterialError(f"{name!r}: element {el} appears twice")
         seen.add(el)
         sub[lat].append((el, num))
     for lat, label in (("III", "group-III"), ("V", "group-V")):
         if not sub[lat]:
-            raise _unknown(name, why=f"no {label} element")
+            raise _unknown(name, why=f"no {label} element", tables=tables)
     out = []
     for lat, label in (("III", "group-III"), ("V", "group-V")):
         items = sub[lat]
@@ -720,9 +792,10 @@ def _parse_elements(name: str) -> tuple[tuple, tuple]:
         else:
             missing = [el for el, num in items if num is None]
             if missing:
-                fam = _FAMILY_BY_ELEMENTS.get((frozenset(e for e, _ in sub["III"]),
-                                               frozenset(e for e, _ in sub["V"])))
-                hint = f" (pattern {_family_patterns()[fam]})" if fam in _family_patterns() else ""
+                fam = tables.family_by_elements.get((frozenset(e for e, _ in sub["III"]),
+                                                     frozenset(e for e, _ in sub["V"])))
+                pats = _family_patterns(tables)
+                hint = f" (pattern {pats[fam]})" if fam in pats else ""
                 raise MaterialError(
                     f"{name!r}: give the fraction of every element on the {label} sublattice; "
                     f"missing for {', '.join(missing)}{hint}")
@@ -742,23 +815,24 @@ def _parse_elements(name: str) -> tuple[tuple, tuple]:
         out.append(tuple((el, fr[el]) for el in order if el in fr))
     cations, anions = out
     key = (frozenset(e for e, _ in cations), frozenset(e for e, _ in anions))
-    if key not in _FAMILY_BY_ELEMENTS:
+    if key not in tables.family_by_elements:
         els = "".join(e for e, _ in cations) + "".join(e for e, _ in anions)
         if len(cations) == 1 and len(anions) == 1:
             why = f"the binary {els} is not in the database"
         else:
             why = f"the alloy family {els} is not in the database"
-        raise _unknown(name, why=why)
+        raise _unknown(name, why=why, tables=tables)
     return cations, anions
 
 
-def _family_and_composition(cations: tuple, anions: tuple) -> tuple[str, dict]:
+def _family_and_composition(cations: tuple, anions: tuple,
+                            tables: _Tables = _BUILTIN) -> tuple[str, dict]:
     cat, an = dict(cations), dict(anions)
-    fam = _FAMILY_BY_ELEMENTS[(frozenset(cat), frozenset(an))]
-    if fam in _BINARIES:
+    fam = tables.family_by_elements[(frozenset(cat), frozenset(an))]
+    if fam in tables.binaries:
         return fam, {}
-    if fam in _TERNARIES:
-        d = _TERNARIES[fam]
+    if fam in tables.ternaries:
+        d = tables.ternaries[fam]
         frac = cat if d["sublattice"] == "III" else an
         return fam, {"x": frac[d["elements"][0]]}
     if fam == "InGaAsP":
@@ -768,10 +842,10 @@ def _family_and_composition(cations: tuple, anions: tuple) -> tuple[str, dict]:
     raise MaterialError(f"internal: no composition rule for {fam}")  # pragma: no cover
 
 
-def _elements_with_data() -> tuple:
+def _elements_with_data(tables: _Tables = _BUILTIN) -> tuple:
     """Elements of the database's families, in the order of GROUP_III + GROUP_V."""
     found = set()
-    for cations, anions in _FAMILY_BY_ELEMENTS:
+    for cations, anions in tables.family_by_elements:
         found |= cations | anions
     return tuple(el for el in GROUP_III + GROUP_V if el in found)
 
@@ -807,9 +881,10 @@ def _check_temperature(temperature_K) -> float:
     return T
 
 
-def _make(name: str, cations: tuple, anions: tuple, T: float) -> tuple[Material, tuple]:
-    fam, comp = _family_and_composition(cations, anions)
-    vals, srcs = _alloy_values(cations, anions, T)
+def _make(name: str, cations: tuple, anions: tuple, T: float,
+          tables: _Tables = _BUILTIN) -> tuple[Material, tuple]:
+    fam, comp = _family_and_composition(cations, anions, tables)
+    vals, srcs = _alloy_values(cations, anions, T, tables)
     v = dict(vals)
     s = dict(srcs)
     v["conduction_edge_eV"] = v["valence_edge_eV"] + v["band_gap_eV"]
@@ -833,9 +908,9 @@ def _make(name: str, cations: tuple, anions: tuple, T: float) -> tuple[Material,
 
 
 @functools.lru_cache(maxsize=8192)
-def _cached_material(name: str, T: float) -> tuple[Material, tuple]:
-    cations, anions = _parse_elements(name)
-    return _make(name, cations, anions, T)
+def _cached_material(name: str, T: float, tables: _Tables = _BUILTIN) -> tuple[Material, tuple]:
+    cations, anions = _parse_elements(name, tables)
+    return _make(name, cations, anions, T, tables)
 
 
 def _emit(msgs, stacklevel: int = 3) -> None:
@@ -874,7 +949,14 @@ def get_material(name: str, temperature_K: float = 300.0,
     Notes
     -----
     Results are cached by (name, temperature); repeated calls are cheap.
+    Material libraries look materials up through
+    :meth:`qwell.materials.library.MaterialSet.get_material`.
     """
+    return _get_material(name, temperature_K, user_materials, _BUILTIN)
+
+
+def _get_material(name, temperature_K, user_materials, tables: _Tables) -> Material:
+    """:func:`get_material` on one table set."""
     if user_materials and name in user_materials:
         return user_materials[name]
     if not isinstance(name, str):
@@ -882,10 +964,10 @@ def get_material(name: str, temperature_K: float = 300.0,
     T = _check_temperature(temperature_K)
     key = name.strip()
     try:
-        mat, msgs = _cached_material(key, T)
+        mat, msgs = _cached_material(key, T, tables)
     except MaterialError as exc:
         if user_materials and getattr(exc, "unknown_name", False):
-            raise _unknown(key, extra=list(user_materials), why=exc.why) from None
+            raise _unknown(key, extra=list(user_materials), why=exc.why, tables=tables) from None
         raise exc from None
     _emit(msgs)
     return mat
@@ -893,12 +975,16 @@ def get_material(name: str, temperature_K: float = 300.0,
 
 def is_known_material(name: str, user_materials: Mapping[str, Material] | None = None) -> bool:
     """True when ``name`` resolves to a material (cached; cheap to call often)."""
+    return _is_known(name, user_materials, _BUILTIN)
+
+
+def _is_known(name, user_materials, tables: _Tables) -> bool:
     if user_materials and name in user_materials:
         return True
     if not isinstance(name, str):
         return False
     try:
-        _parse_elements(name.strip())
+        _parse_elements(name.strip(), tables)
     except MaterialError:
         return False
     return True
@@ -934,6 +1020,11 @@ def grade_function(start: str, end: str, temperature_K: float = 300.0,
     ParameterError
         (from the returned function) when f is outside [0, 1].
     """
+    return _grade_function(start, end, temperature_K, user_materials, _BUILTIN)
+
+
+def _grade_function(start, end, temperature_K, user_materials, tables: _Tables):
+    """:func:`grade_function` on one table set."""
     T = _check_temperature(temperature_K)
     users = user_materials or {}
 
@@ -943,10 +1034,10 @@ def grade_function(start: str, end: str, temperature_K: float = 300.0,
         if not isinstance(n, str):
             raise MaterialError(f"a material name must be a string, got {n!r}")
         try:
-            return _parse_elements(n.strip())
+            return _parse_elements(n.strip(), tables)
         except MaterialError as exc:
             if users and getattr(exc, "unknown_name", False):
-                raise _unknown(n.strip(), extra=list(users), why=exc.why) from None
+                raise _unknown(n.strip(), extra=list(users), why=exc.why, tables=tables) from None
             raise
 
     e0, e1 = resolve(start), resolve(end)
@@ -955,7 +1046,7 @@ def grade_function(start: str, end: str, temperature_K: float = 300.0,
         c1, a1 = dict(e1[0]), dict(e1[1])
         cat_els = [el for el in GROUP_III if el in c0 or el in c1]
         an_els = [el for el in GROUP_V if el in a0 or el in a1]
-        if (frozenset(cat_els), frozenset(an_els)) in _FAMILY_BY_ELEMENTS:
+        if (frozenset(cat_els), frozenset(an_els)) in tables.family_by_elements:
             def along(f: float) -> Material:
                 f = _check_fraction(f)
                 cat = {el: (1 - f) * c0.get(el, 0.0) + f * c1.get(el, 0.0) for el in cat_els}
@@ -968,13 +1059,13 @@ def grade_function(start: str, end: str, temperature_K: float = 300.0,
                     name = end.strip()
                 else:
                     name = _formula(cat, an)
-                mat, msgs = _cached_grade(name, tuple(cat.items()), tuple(an.items()), T)
+                mat, msgs = _cached_grade(name, tuple(cat.items()), tuple(an.items()), T, tables)
                 _emit(msgs, stacklevel=3)
                 return mat
             return along
 
-    m0 = get_material(start, T, users)
-    m1 = get_material(end, T, users)
+    m0 = _get_material(start, T, users, tables)
+    m1 = _get_material(end, T, users, tables)
     common = [f for f in PARAM_FIELDS
               if getattr(m0, f) is not None and getattr(m1, f) is not None]
     if not common:
@@ -997,8 +1088,8 @@ def grade_function(start: str, end: str, temperature_K: float = 300.0,
 
 
 @functools.lru_cache(maxsize=8192)
-def _cached_grade(name, cations, anions, T):
-    return _make(name, cations, anions, T)
+def _cached_grade(name, cations, anions, T, tables=_BUILTIN):
+    return _make(name, cations, anions, T, tables)
 
 
 def _check_fraction(f) -> float:

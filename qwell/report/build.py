@@ -13,14 +13,15 @@ import os
 import re
 import time
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 from ..diagram import band_diagram_png
-from ..errors import QwellError, ValidityWarning
-from ..fileio import atomic_write_bytes
+from ..errors import QwellError, ValidityWarning, one_line
+from ..fileio import OutputGroup, atomic_write_bytes, os_error_text
 from ..stack import load_stack
 from .data import collect_report_data
+from .layout import drawable
 from .pages import render_pdf
 
 __all__ = ["DEFAULT_OUT_DIR", "ReportResult", "build_report"]
@@ -74,15 +75,28 @@ def _output_dir(out_dir, create: bool | None) -> Path:
     if not create:
         raise QwellError(f"output folder {d} does not exist; create it or leave out -o to "
                          f"write to {DEFAULT_OUT_DIR}/")
-    try:
-        d.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise QwellError(f"cannot create output folder {d} ({exc.strerror or exc})") from None
     return d
 
 
+def _create_dir(d: Path) -> list:
+    """Create ``d`` (and missing parents); returns the folders created, deepest first."""
+    made = []
+    p = d
+    while not p.exists():
+        made.append(p)
+        if p.parent == p:
+            break
+        p = p.parent
+    try:
+        d.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise QwellError(f"cannot create output folder {one_line(str(d))} "
+                         f"({os_error_text(exc)})") from None
+    return made
+
+
 def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
-                 create_out_dir: bool | None = None) -> ReportResult:
+                 create_out_dir: bool | None = None, unit: str | None = None) -> ReportResult:
     """Write the design-review PDF and the band-diagram PNG of a stack.
 
     Parameters
@@ -97,6 +111,8 @@ def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
     create_out_dir : bool, optional
         Create a missing folder; default: only for the default folder (a
         user-given folder must exist).
+    unit : str, optional
+        Photon unit of lines and shifts; default: each line's spectral region.
 
     Returns
     -------
@@ -109,14 +125,25 @@ def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
 
     Validity warnings raised while solving are listed in the report and, in
     summary, re-issued as one :class:`~qwell.errors.ValidityWarning`.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from qwell import build_report, load_stack
+    >>> res = build_report(load_stack("layers/lwir-detector.yaml"),
+    ...                    out_dir=tempfile.mkdtemp())   # doctest: +SKIP
+    >>> res.pdf_path.name                                 # doctest: +SKIP
+    'lwir-detector.pdf'
     """
     t0 = time.perf_counter()
     if isinstance(stack, (str, os.PathLike)):
         stack = load_stack(stack)
     d = _output_dir(out_dir, create_out_dir)
-    if not os.access(d, os.W_OK | os.X_OK):
-        raise QwellError(f"output folder {d} is not writable")
-    data = collect_report_data(stack, transitions=transitions)
+    if d.exists() and not os.access(d, os.W_OK | os.X_OK):
+        raise QwellError(f"output folder {one_line(str(d))} is not writable")
+    # characters the page font lacks (an emoji) are drawn as '?' in every title
+    stack = replace(stack, name=drawable(stack.name))
+    data = collect_report_data(stack, transitions=transitions, unit=unit)
     pdf_bytes, pages = render_pdf(data)
     title = f"{stack.name}  (T = {stack.temperature_K:g} K)"
     png_bytes = band_diagram_png(data.profile, data.exact.levels, transitions=data.chosen,
@@ -124,23 +151,23 @@ def build_report(stack, *, transitions=None, out_dir=DEFAULT_OUT_DIR,
     stem = _stem(stack)
     pdf_path, png_path = d / f"{stem}.pdf", d / f"{stem}.png"
     protect = [stack.path] if stack.path else []
-    pdf_existed = pdf_path.exists()
+    # the default folder is created only now that both files are rendered, and removed
+    # again if writing fails; both files are committed together or not at all
+    made = _create_dir(d)
     try:
-        atomic_write_bytes(pdf_path, pdf_bytes, protect=protect)
-        try:
-            atomic_write_bytes(png_path, png_bytes, protect=protect)
-        except BaseException:
-            if not pdf_existed:
-                try:
-                    pdf_path.unlink()
-                except OSError:
-                    pass
-            raise
-    except QwellError:
+        with OutputGroup([pdf_path, png_path], protect=protect) as group:
+            atomic_write_bytes(group.path(pdf_path), pdf_bytes, protect=protect)
+            atomic_write_bytes(group.path(png_path), png_bytes, protect=protect)
+    except BaseException as exc:
+        for folder in made:
+            try:
+                folder.rmdir()
+            except OSError:
+                break
+        if isinstance(exc, OSError) and not isinstance(exc, QwellError):
+            raise QwellError(f"cannot write the report into {one_line(str(d))} "
+                             f"({os_error_text(exc)})") from None
         raise
-    except OSError as exc:
-        raise QwellError(f"cannot write the report into {d} "
-                         f"({exc.strerror or type(exc).__name__})") from None
     if data.warnings:
         warnings.warn(f"{len(data.warnings)} validity warning(s) while solving {stack.name!r}; "
                       f"they are listed on the cautions page of {pdf_path}", ValidityWarning,

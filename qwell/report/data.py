@@ -19,13 +19,17 @@ from dataclasses import dataclass, replace
 
 from .. import design
 from ..constants import HC_EV_UM
-from ..errors import ParameterError, QwellError, QwellWarning
 from ..design.line import DesignLine, design_line
+from ..diagram import miniband_groups
+from ..errors import ParameterError, QwellError, QwellWarning
 from ..levels import Solution, compare_methods, prepare_profile, shifted_transitions, solve_profile
+from ..lifetimes import Lifetimes, solution_lifetimes
 from ..optics import Transition, select_transitions
 from ..profile import Profile
 from ..selfconsistent import SelfConsistentResult
+from ..spectral import parse_unit
 from ..stack import Stack
+from .spectra import ReportSpectra, report_spectra
 
 __all__ = [
     "REPORT_TOLERANCE_EV",
@@ -33,6 +37,7 @@ __all__ = [
     "SensitivityRow",
     "collect_report_data",
     "default_transitions",
+    "report_lifetimes",
     "sensitivity_rows",
 ]
 
@@ -104,6 +109,17 @@ class ReportData:
         The design line (the first reviewed transition), as every command
         decides it (:func:`qwell.design.line.design_line`).  In a doped stack
         the reviewed intersubband lines are the depolarisation-shifted ones.
+    spectra : qwell.report.spectra.ReportSpectra or None
+        Absolute spectra: alpha and per-pass absorption when an intersubband line
+        is reviewed (a detector), else gain and transparency (a laser well).
+    lifetimes : qwell.lifetimes.Lifetimes or None
+        LO-phonon lifetimes and the emitter figure of merit when the reviewed transitions
+        include an intersubband line (see :func:`report_lifetimes`).
+    lifetimes_note : str
+        Why the lifetimes are missing although an intersubband line is reviewed ('' else).
+    photon_unit : str or None
+        Unit of lines and shifts chosen by the user (``--unit``); None: each line in the
+        unit of its spectral region (:mod:`qwell.spectral`).
     """
 
     stack: Stack
@@ -119,6 +135,10 @@ class ReportData:
     tolerance_eV: float = REPORT_TOLERANCE_EV
     charge: SelfConsistentResult | None = None
     line: DesignLine | None = None
+    spectra: ReportSpectra | None = None
+    lifetimes: Lifetimes | None = None
+    lifetimes_note: str = ""
+    photon_unit: str | None = None
 
     @property
     def fermi_level_eV(self) -> float | None:
@@ -134,10 +154,22 @@ def default_transitions(solution) -> tuple:
 
     The strongest intersubband line from the ground state (flagged
     ``strongest`` by :mod:`qwell.optics`) and the fundamental interband line
-    ``e1-hh1``, when they exist.
+    ``e1-hh1``, when they exist.  A line between two states of one
+    miniband of a long repeat block (wavelengths of mm) is never chosen: the
+    strongest line from the ground state out of its miniband is taken instead.
     """
     out = []
-    inter = [t for t in solution.transitions if t.kind == "intersubband" and t.strongest]
+    group = _miniband_of(solution)
+    inter = [t for t in solution.transitions if t.kind == "intersubband" and t.strongest
+             and not _intra_miniband(t, group)]
+    if not inter:
+        # the flagged line lies inside one miniband (a long repeat block): take the strongest
+        # line from the ground state to another miniband or state instead
+        cands = [t for t in solution.transitions if t.kind == "intersubband"
+                 and not _intra_miniband(t, group) and t.oscillator_strength is not None
+                 and t.initial in ("e1", "hh1")]
+        if cands:
+            inter = [max(cands, key=lambda t: abs(t.oscillator_strength))]
     if inter:
         out.append(inter[0])
     for name in ("e1-hh1",):
@@ -146,6 +178,24 @@ def default_transitions(solution) -> tuple:
                 out.append(t)
                 break
     return tuple(out)
+
+
+def _miniband_of(solution) -> dict:
+    """State label -> index of the grouped miniband holding it (states of long repeats)."""
+    out = {}
+    k = 0
+    for lev in solution.levels.values():
+        for mb, states in miniband_groups(lev):
+            if mb is not None:
+                out.update({s.label: k for s in states})
+                k += 1
+    return out
+
+
+def _intra_miniband(t, group: dict) -> bool:
+    """Whether both states of a transition lie in one miniband (not a line to review)."""
+    a, b = group.get(t.initial), group.get(t.final)
+    return a is not None and a == b
 
 
 # ---------------------------------------------------------------------------
@@ -229,16 +279,12 @@ def _wavelength_um(point, transition) -> float | None:
 def sensitivity_rows(stack, chosen, *, composition_step: float = 0.01, jobs=None):
     """Wavelength change of each chosen transition per layer thickness (±1 ML) and composition.
 
-    Every layer parameter of :func:`qwell.design.parameters` (the paths of
-    ``qwell tolerance``) is changed alone and the designs are solved by the
-    design engine, :func:`qwell.design.evaluate_many` (exact solver,
-    tolerance :data:`REPORT_TOLERANCE_EV`, in parallel where it pays).  A
-    named layer inside a repeat changes in every period.  Wavelengths come
-    from the state energies, ``λ = hc/|E_f - E_i|``.  Thickness steps are one
-    monolayer (a/2 of the layer's material); layers without a lattice
-    constant, and compositions of graded layers and user materials, are
-    skipped (with a note); a composition at the end of [0, 1] is changed on
-    one side only.
+    The rows come from the design engine's one-at-a-time sensitivities,
+    :func:`qwell.design.sensitivities` (the paths of ``qwell tolerance``, solved
+    by :func:`qwell.design.evaluate_many` at :data:`REPORT_TOLERANCE_EV`, in
+    parallel where it pays); this function only words them for the page.  A
+    named layer inside a repeat changes in every period.  Shifts below
+    5e-4 nm print as 0.00 and are stored as 0.
 
     Parameters
     ----------
@@ -257,61 +303,68 @@ def sensitivity_rows(stack, chosen, *, composition_step: float = 0.01, jobs=None
     chosen = tuple(chosen)
     if not chosen:
         return (), ("no transition chosen: no sensitivity computed",)
-    plan, notes = _sensitivity_plan(stack, composition_step)
-    names = [t.name for t in chosen]
-    bands = design.bands_for_transitions(names)
-    needed = tuple(dict.fromkeys(lab for t in chosen for lab in (t.initial, t.final)))
-    keys = [(j, sgn) for j, (*_, sides) in enumerate(plan) for sgn, _ in sides]
-    sets = [{}] + [values for *_, sides in plan for _, values in sides]
-    points = _evaluate(stack, sets, bands, needed, jobs)
-    base, results = points[0], dict(zip(keys, points[1:]))
-    for (j, sgn), r in results.items():
-        if isinstance(r, str):
-            label, pname, _step, text, _sides = plan[j]
-            notes.append(f"{label} {pname} {'+' if sgn > 0 else '−'}{text.lstrip('±')}: {r}")
+    res = design.sensitivities(stack, tuple(t.name for t in chosen), thickness_tol="1 ML",
+                               composition_tol=composition_step, jobs=jobs,
+                               tolerance_eV=REPORT_TOLERANCE_EV)
+    copies = {}
+    for L in stack.layers:
+        if L.name is not None:
+            copies[L.name] = copies.get(L.name, 0) + 1
+
+    def shown(v):
+        if not math.isfinite(v):
+            return None
+        return 0.0 if abs(v) < 5e-4 else float(v)
 
     rows = []
-    for t in chosen:
-        lam0 = None if isinstance(base, str) else _wavelength_um(base, t)
-        for j, (label, pname, step, text, _sides) in enumerate(plan):
-            shift = {}
-            note = ""
-            for sgn in (-1, 1):
-                r = results.get((j, sgn))
-                if r is None or isinstance(r, str):
-                    shift[sgn] = None
-                    continue
-                lam = _wavelength_um(r, t)
-                if lam is None or lam0 is None:
-                    shift[sgn] = None
-                    side = "+" if sgn > 0 else "−"
-                    note = (note + "; " if note else "") + f"{side}step: {t.name} not found " \
-                        "(a state left the well)"
-                else:
-                    d = 1e3 * (lam - lam0)
-                    shift[sgn] = 0.0 if abs(d) < 5e-4 else d
-            mi, pl = shift.get(-1), shift.get(1)
-            if mi is not None and pl is not None:
-                per = 0.5 * (pl - mi)
-            elif pl is not None:
-                per = pl
-                note = note or "one-sided (+ step only)"
-            elif mi is not None:
-                per = -mi
-                note = note or "one-sided (− step only)"
-            else:
-                per = None
-            rows.append(SensitivityRow(transition=t.name, layer=label, parameter=pname,
-                                       step=step, step_text=text, minus_nm=mi, plus_nm=pl,
-                                       per_unit_nm=per, note=note))
-    return tuple(rows), tuple(dict.fromkeys(notes))
+    for r in res.rows:
+        if r.kind not in ("thickness", "x", "y"):
+            continue
+        n = copies.get(r.layer, 1)
+        label = r.layer + (f" (×{n})" if n > 1 else "")
+        if r.kind == "thickness":
+            pname, text = "thickness", f"1 ML = {r.step:.4f} nm"
+        else:
+            pname, text = (f"{r.kind} ({r.family})" if r.family else r.kind), f"±{r.step:g}"
+        mi, pl = shown(r.minus_nm), shown(r.plus_nm)
+        if mi is not None and pl is not None:
+            per = 0.5 * (pl - mi)
+        elif pl is not None:
+            per = pl
+        elif mi is not None:
+            per = -mi
+        else:
+            per = None
+        rows.append(SensitivityRow(transition=r.transition, layer=label, parameter=pname,
+                                   step=r.step, step_text=text, minus_nm=mi, plus_nm=pl,
+                                   per_unit_nm=per, note=r.note))
+    return tuple(rows), tuple(dict.fromkeys(res.notes))
+
+
+def report_lifetimes(exact, chosen, named: bool) -> tuple:
+    """``(Lifetimes or None, note)`` for the reviewed transitions.
+
+    Only when an intersubband line of the conduction band is reviewed.  The emitter line is
+    that line when the user named the transitions, else the line that can invert with the
+    largest figure of merit (:func:`qwell.lifetimes.solution_lifetimes`).  A stack whose
+    host material has no LO-phonon data, or with fewer than two bound conduction states,
+    gets a note instead.
+    """
+    lines = [t for t in chosen if t.kind == "intersubband" and t.initial.startswith("e")]
+    if not lines:
+        return None, ""
+    try:
+        lt = solution_lifetimes(exact, line=lines[0].name if named else None)
+    except QwellError as exc:
+        return None, f"LO-phonon lifetimes not computed: {exc}"
+    return lt, ""
 
 
 # ---------------------------------------------------------------------------
 # everything the report shows
 # ---------------------------------------------------------------------------
 def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT_TOLERANCE_EV,
-                        sensitivity: bool = True) -> ReportData:
+                        sensitivity: bool = True, unit: str | None = None) -> ReportData:
     """Solve ``stack`` with both methods and gather what the report shows.
 
     Parameters
@@ -326,10 +379,13 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
         design engine's, :data:`REPORT_TOLERANCE_EV`).
     sensitivity : bool
         Compute the sensitivity page (the costly part).
+    unit : str, optional
+        Photon unit of lines and shifts (one of :data:`qwell.spectral.UNITS`).
 
     Warnings raised while solving are captured, listed in the report and
     returned in :attr:`ReportData.warnings` (not re-raised here).
     """
+    photon_unit = parse_unit(unit) if unit else None
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", QwellWarning)
         prof, sc = prepare_profile(stack)
@@ -352,6 +408,12 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
             chosen = select_transitions(exact.transitions, lead + rest)
         chosen = shifted_transitions(exact, chosen)
         comparison = compare_methods(exact, semi)
+        kinds = {t.kind for t in chosen}
+        # a reviewed intersubband line makes it a detector/emitter design (alpha, per pass);
+        # interband lines alone a laser well (gain, transparency)
+        spectra = report_spectra(stack, exact, charge=sc, detector="intersubband" in kinds,
+                                 laser=kinds == {"interband"})
+        lifetimes, lifetimes_note = report_lifetimes(exact, chosen, bool(transitions))
         if sensitivity:
             sens, sens_notes = sensitivity_rows(stack, chosen)
         else:
@@ -366,4 +428,5 @@ def collect_report_data(stack, *, transitions=None, tolerance_eV: float = REPORT
                       chosen=tuple(chosen), comparison=comparison, sensitivity=tuple(sens),
                       sensitivity_notes=tuple(sens_notes), warnings=tuple(dict.fromkeys(msgs)),
                       created_utc=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0),
-                      tolerance_eV=tolerance_eV, line=line)
+                      tolerance_eV=tolerance_eV, spectra=spectra, lifetimes=lifetimes,
+                      lifetimes_note=lifetimes_note, photon_unit=photon_unit, line=line)

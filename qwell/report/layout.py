@@ -69,6 +69,21 @@ def _font(bold: bool):
     return get_font(findfont(FontProperties(weight="bold" if bold else "normal")))
 
 
+@lru_cache(maxsize=4)
+def _charmap(bold: bool) -> frozenset:
+    return frozenset(_font(bold).get_charmap())
+
+
+def drawable(text: str, bold: bool = False) -> str:
+    """``text`` with every character the page font has no glyph for replaced by '?'
+    (an emoji in a stack name would otherwise stop the PDF writer)."""
+    text = str(text)
+    if text.isascii() and text.isprintable():
+        return text
+    have = _charmap(bold)
+    return "".join(c if (ord(c) in have and c.isprintable()) else "?" for c in text)
+
+
 @lru_cache(maxsize=4096)
 def _char_width(ch: str, bold: bool) -> float:
     """Unhinted advance width of one character at 10 pt [pt] (cached)."""
@@ -81,6 +96,8 @@ def _char_width(ch: str, bold: bool) -> float:
 
     font = _font(bold)
     font.set_size(100.0, 72.0)
+    if ord(ch) not in _charmap(bold):
+        ch = "?"  # drawn as '?' (see drawable)
     glyph = font.load_char(ord(ch), flags=flags)
     return glyph.linearHoriAdvance / 65536.0 / 10.0
 
@@ -331,7 +348,8 @@ def _render_page(items, footer, pdf):
     W, H = PAGE_W_PT, PAGE_H_PT
     for it in items:
         if it.kind == "text":
-            fig.text(it.x / W, it.y / H, it.text, fontsize=it.size, ha=it.ha, va="top",
+            fig.text(it.x / W, it.y / H, drawable(it.text, it.bold), fontsize=it.size, ha=it.ha,
+                     va="top",
                      fontweight="bold" if it.bold else "normal", color=it.color,
                      parse_math=False)
         elif it.kind == "line":
@@ -347,7 +365,8 @@ def _render_page(items, footer, pdf):
     y = FOOTER_TOP - 4.0
     for ln in footer:
         for sub in wrap(ln, BODY_W, MIN_FONT):
-            fig.text(MARGIN_L / W, y / H, sub, fontsize=MIN_FONT, va="top", color="0.25",
+            fig.text(MARGIN_L / W, y / H, drawable(sub), fontsize=MIN_FONT, va="top",
+                     color="0.25",
                      parse_math=False)
             y -= MIN_FONT * 1.3
     pdf.savefig(fig)

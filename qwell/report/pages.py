@@ -5,7 +5,9 @@ blocks of :mod:`qwell.report.layout`: (1) :func:`diagram_blocks` band
 diagram, (2) :func:`stack_blocks` stack table and settings, (3)
 :func:`material_blocks` material parameters with numbered citations, (4)
 :func:`state_blocks` states, exact and semiclassical side by side, (5)
-:func:`transition_blocks` transitions with strengths, (6)
+:func:`transition_blocks` transitions with strengths and, for a reviewed
+intersubband line, :func:`lifetime_blocks` LO-phonon lifetimes and the
+emitter figure of merit, (6)
 :func:`sensitivity_blocks` wavelength sensitivity to each layer's thickness
 (±1 ML) and composition (±0.01) and the absorption spectrum, (7)
 :func:`caution_blocks` cautions.  :func:`report_pages` flows them onto
@@ -18,14 +20,18 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
-import numpy as np
 
 from .. import __version__
-from ..diagram import draw_band_diagram, spread_positions
+from ..diagram import draw_band_diagram
 from ..errors import QwellError
-from ..materials import citation, get_material, parse_formula
-from ..optics import EXCITON_NOTE, spectrum
+from ..materials import (from_memory_count, material_provenance,
+                         origin_label, parse_formula)
+from ..optics import EXCITON_NOTE
+from ..solvers.results import UNCOUPLED_WIDTH_EV
+from ..spectral import auto_unit, column, format_line, format_spread, spread_unit, unit_label
+from ..units import format_exponent
 from .data import ReportData
+from .spectra import spectra_draw, spectra_rows
 from .layout import FigureBlock, Flow, Heading, Item, PageBreak, Paragraph, Table, typeset_pdf
 
 __all__ = [
@@ -34,6 +40,7 @@ __all__ = [
     "design_cautions",
     "diagram_blocks",
     "footer_lines",
+    "lifetime_blocks",
     "material_blocks",
     "render_pdf",
     "report_pages",
@@ -88,9 +95,9 @@ def _doping_text(d) -> str:
     if d.acceptors_cm3:
         parts.append(f"p {d.acceptors_cm3:.3g} cm⁻³")
     if d.sheet_cm2:
-        parts.append(f"n sheet {d.sheet_cm2:.3g} cm⁻²")
+        parts.append(f"n sheet {format_exponent(d.sheet_cm2)} cm⁻²")
     if d.sheet_acceptors_cm2:
-        parts.append(f"p sheet {d.sheet_acceptors_cm2:.3g} cm⁻²")
+        parts.append(f"p sheet {format_exponent(d.sheet_acceptors_cm2)} cm⁻²")
     return ", ".join(parts)
 
 
@@ -110,7 +117,15 @@ def footer_lines(data: ReportData, page: int | None = None, pages: int | None = 
     if page is not None:
         line1 += f" {_SIGMA} page {page} of {pages}"
     line2 = f"input {src} {_SIGMA} SHA-256 {sha}"
-    return [line1, line2, _solver_text(data)]
+    out = [line1, line2, _solver_text(data)]
+    libs = st.libraries
+    if libs:
+        # one line: the full digest for one library, 16 digits each for several (page 3 lists
+        # every full digest)
+        digits = 64 if len(libs) == 1 else 16
+        out.append("material libraries (later wins): " + f" {_SIGMA} ".join(
+            f"{Path(lib.path).name} SHA-256 {lib.sha256[:digits]}" for lib in libs))
+    return out
 
 
 # ---------------------------------------------------------------------------
@@ -141,9 +156,12 @@ def diagram_blocks(data: ReportData) -> list:
     blocks.append(FigureBlock(470.0, draw))
     if data.chosen:
         rows = [[t.name, t.kind, _transition_energy_text(t), f"{t.wavelength_um:.5f}",
-                 f"{t.wavenumber_cm1:.2f}"] for t in data.chosen]
-        blocks.append(Table(["transition", "kind", "energy (eV)", "λ (µm)", "wavenumber (cm⁻¹)"],
-                            rows, ["l", "l", "r", "r", "r"], title="Transitions reviewed"))
+                 f"{t.wavenumber_cm1:.2f}",
+                 format_line(t.energy_eV, data.photon_unit or auto_unit(t.energy_eV))]
+                for t in data.chosen]
+        blocks.append(Table(["transition", "kind", "energy (eV)", "λ (µm)", "wavenumber (cm⁻¹)",
+                             "line"], rows, ["l", "l", "r", "r", "r", "r"],
+                            title="Transitions reviewed"))
     else:
         blocks.append(Paragraph("No transition to review: the stack has fewer than two states "
                                 "connected by an optical transition."))
@@ -157,7 +175,8 @@ def diagram_blocks(data: ReportData) -> list:
 def _charge_summary(sc) -> str:
     """One line on a Schrödinger–Poisson result for the settings table."""
     ef = sc.fermi_level_eV
-    occ = ", ".join(f"{k} {v:.3g} cm⁻²" for k, v in sc.sheet_densities_cm2.items() if v > 1e6)
+    occ = ", ".join(f"{k} {format_exponent(v)} cm⁻²" for k, v in sc.sheet_densities_cm2.items()
+                    if v > 1e6)
     return (f"yes: {sc.iterations} iterations, residual {sc.residual_meV:.2g} meV, Fermi level "
             + ("undefined (no charge)" if ef is None or math.isnan(ef) else f"{ef:.6f} eV")
             + (f"; sheet densities {occ}" if occ else ""))
@@ -202,6 +221,10 @@ def stack_blocks(data: ReportData) -> list:
         ["name", st.name],
         ["file", str(st.path) if st.path else "(in memory)"],
         ["SHA-256 of the file", st.sha256 or "n/a"],
+    ]
+    for i, lib in enumerate(st.libraries, 1):
+        settings.append([f"material library {i}", f"{lib.path} (SHA-256 {lib.sha256})"])
+    settings += [
         ["temperature", f"{st.temperature_K:g} K"],
         ["substrate", st.substrate or "none (layers unstrained)"],
         ["field", f"{st.field_kV_per_cm:g} kV/cm"],
@@ -238,6 +261,8 @@ _PARAM_ROWS = [
     ("c11_GPa", "C11", "GPa", ".1f"),
     ("c12_GPa", "C12", "GPa", ".1f"),
     ("dielectric_constant", "static dielectric constant", "", ".2f"),
+    ("high_frequency_dielectric_constant", "high-frequency dielectric constant", "", ".2f"),
+    ("lo_phonon_energy_eV", "LO-phonon energy", "eV", ".4f"),
 ]
 
 
@@ -255,32 +280,28 @@ def _distinct_materials(data: ReportData):
                 out.setdefault(key, m)
             else:
                 for name in (L.grade.start, L.grade.end):
-                    out.setdefault(name, get_material(name, st.temperature_K, st.user_materials))
+                    out.setdefault(name, st.material_set.get_material(name, st.temperature_K,
+                                                                      st.user_materials))
         except QwellError:
             continue
     if st.substrate and st.substrate not in out:
         try:
-            out[st.substrate + " (substrate)"] = get_material(st.substrate, st.temperature_K,
-                                                              st.user_materials)
+            out[st.substrate + " (substrate)"] = st.material_set.get_material(
+                st.substrate, st.temperature_K, st.user_materials)
         except QwellError:
             pass
     return list(out.items())
 
 
-def _citations_of(mat, field_name):
-    """Full citation strings of one parameter of one material."""
-    key = mat.sources.get(field_name)
-    out = []
-    for k in str(key).split("+") if key else ():
-        k = k.strip()
-        if k == "user":
-            out.append("user-defined value in the stack file (no published source)")
-            continue
-        try:
-            out.append(citation(k))
-        except QwellError:   # a key missing from the sources table: show the key itself
-            out.append(k)
-    return out
+def _citations_of(mat, field_name, material_set=None):
+    """Provenance lines of one parameter of one material (see qwell.materials.provenance).
+
+    A built-in entry gives its citation and whether it was entered from memory, a library
+    entry its file, line, SHA-256, the group's source text and what it overrides, a stack
+    override says so.
+    """
+    p = material_provenance(mat, material_set).get(field_name)
+    return [origin_label(o) for o in p.origins] if p is not None else []
 
 
 def material_blocks(data: ReportData) -> list:
@@ -310,17 +331,32 @@ def material_blocks(data: ReportData) -> list:
                     vals.append("—")
                     continue
                 any_val = True
-                refs = ",".join(str(num(c)) for c in _citations_of(m, key))
+                refs = ",".join(str(num(c)) for c in _citations_of(m, key, data.stack.material_set))
                 vals.append(f"{format(v, spec)} [{refs}]" if refs else format(v, spec))
             if any_val:
                 rows.append([label, unit] + vals)
         blocks.append(Table(["parameter", "unit"] + [k for k, _ in part], rows,
                             ["l", "l"] + ["r"] * len(part), wrap=tuple(range(2, 2 + len(part))),
                             title="Parameters used" if g0 == 0 else ""))
+    fields = [key for key, *_ in _PARAM_ROWS]
+    n_mem, n_all = from_memory_count([m for _, m in mats], data.stack.material_set, fields)
     blocks.append(Paragraph("Numbers in brackets refer to the sources below. Alloy values are "
                             "interpolated from the binaries as the first source describes; band "
                             "edges are unstrained (strain shifts appear in the band diagram).",
                             size=8, color="0.25"))
+    blocks.append(Paragraph(
+        f"{n_mem} of the {n_all} values in these tables rest at least in part on entries "
+        "marked 'from memory' (typed in from recollection of the publication and not "
+        "re-checked against it); check those against the source, or bring calibrated values "
+        "in a material library, before signing the design off.", size=8))
+    libs = data.stack.libraries
+    if libs:
+        blocks.append(Table(["#", "material library (applied in this order; later wins)",
+                             "SHA-256"],
+                            [[str(i), f"{lib.path} ({lib.name}, {len(lib.entries)} values)",
+                              lib.sha256] for i, lib in enumerate(libs, 1)],
+                            ["l", "l", "l"], wrap=(1, 2), title="Material libraries",
+                            zebra=False))
     blocks.append(Heading("Sources", 11.0))
     for i, c in enumerate(cites, 1):
         blocks.append(Paragraph(c, size=8, bullet=f"[{i}]"))
@@ -343,7 +379,7 @@ def state_blocks(data: ReportData) -> list:
         if s is not None:
             status = "bound" if s.bound else "quasi-bound"
             if s.lifetime_s is not None:
-                status += f", τ = {s.lifetime_s:.3g} s"
+                status += f", τ = {1e12 * s.lifetime_s:.3g} ps"
             if not s.converged:
                 status += f", NOT converged (±{s.tolerance_eV:.2g} eV)"
         wkb = ""
@@ -374,7 +410,9 @@ def state_blocks(data: ReportData) -> list:
         blocks.append(Table(["band", "miniband", "bottom (eV)", "top (eV)", "width (meV)",
                              "period (nm)"],
                             [[m.band.replace("_", " "), str(m.index), f"{m.bottom_eV:.6f}",
-                              f"{m.top_eV:.6f}", f"{1e3 * m.width_eV:.3f}", f"{m.period_nm:.3f}"]
+                              f"{m.top_eV:.6f}",
+                              f"{1e3 * m.width_eV:.3f}" if m.coupled else
+                              f"< {1e3 * UNCOUPLED_WIDTH_EV:g} (uncoupled)", f"{m.period_nm:.3f}"]
                              for m in mb], ["l", "r", "r", "r", "r", "r"],
                             title="Minibands (Bloch's theorem on one period)"))
     notes = []
@@ -402,6 +440,21 @@ def state_blocks(data: ReportData) -> list:
     return blocks
 
 
+def _table_unit(data: ReportData, lines) -> str:
+    """Unit of a table's line column: the user's ``--unit``, else a wavelength in the unit of
+    the lines' spectral region (nm below 2 µm, else µm)."""
+    if data.photon_unit:
+        return data.photon_unit
+    energies = sorted(t.energy_eV for t in lines)
+    return "nm" if auto_unit(energies[len(energies) // 2]) == "nm" else "um"
+
+
+def _column_head(unit: str) -> str:
+    """'λ\n(nm)', 'ν\n(THz)', ...: a table heading over two lines."""
+    symbol, label = column(unit).split(" ", 1)
+    return f"{symbol}\n({label})"
+
+
 def transition_blocks(data: ReportData) -> list:
     """Page 5: transitions with energies, wavelengths and strengths."""
     blocks = [Heading("Optical transitions")]
@@ -410,18 +463,22 @@ def transition_blocks(data: ReportData) -> list:
     inter = [t for t in trans if t.kind == "intersubband"]
     band = [t for t in trans if t.kind == "interband"]
     if inter:
+        u = _table_unit(data, inter)
         rows = [[("» " if t.name in chosen else "") + t.name, f"{t.energy_eV:.6f}",
-                 f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}", f"{t.frequency_THz:.3f}",
+                 format_line(t.energy_eV, u, with_unit=False), f"{t.wavenumber_cm1:.2f}",
+                 f"{t.frequency_THz:.3f}",
                  _f(t.dipole_nm, ".4f"), _f(t.oscillator_strength, ".4f")] for t in inter]
-        blocks.append(Table(["transition", "energy\n(eV)", "λ\n(µm)", "wavenumber\n(cm⁻¹)",
+        blocks.append(Table(["transition", "energy\n(eV)", _column_head(u), "wavenumber\n(cm⁻¹)",
                              "frequency\n(THz)", "dipole\n|⟨i|z|j⟩| (nm)", "oscillator\nstrength f"],
                             rows, ["l"] + ["r"] * 6,
                             title="Intersubband (strongest first)"))
     if band:
+        u = _table_unit(data, band)
         rows = [[("» " if t.name in chosen else "") + t.name, f"{t.energy_eV:.6f}",
-                 f"{t.wavelength_um:.5f}", f"{t.wavenumber_cm1:.2f}", _f(t.overlap, ".4f"),
+                 format_line(t.energy_eV, u, with_unit=False), f"{t.wavenumber_cm1:.2f}",
+                 _f(t.overlap, ".4f"),
                  _f(t.te, ".4f"), _f(t.tm, ".4f"), "yes" if t.strongest else ""] for t in band]
-        blocks.append(Table(["transition", "energy\n(eV)", "λ\n(µm)", "wavenumber\n(cm⁻¹)",
+        blocks.append(Table(["transition", "energy\n(eV)", _column_head(u), "wavenumber\n(cm⁻¹)",
                              "overlap\n|⟨e|h⟩|²", "TE", "TM", "Δn = 0"], rows,
                             ["l"] + ["r"] * 6 + ["l"], title="Interband (strongest first)"))
     if not trans:
@@ -438,50 +495,67 @@ def transition_blocks(data: ReportData) -> list:
     return blocks
 
 
-def _spectrum_draw(data: ReportData):
-    """Draw function for the absorption spectra (one panel per transition kind)."""
-    trans = data.exact.transitions
-    kinds = [k for k in ("intersubband", "interband") if any(t.kind == k for t in trans)]
-    chosen = {t.name for t in data.chosen}
+def _time(t) -> str:
+    """A time in ps for the tables: three digits, '∞' for a zero rate."""
+    if t is not None and math.isinf(t) and t > 0:
+        return "∞"
+    return _f(t, ".3g")
 
-    def draw(fig, rect):
-        left, bottom, width, height = rect
-        n = len(kinds)
-        gap = 0.06 * height
-        ph = (height - gap * (n - 1)) / max(n, 1)
-        styles = ("--", ":", "-.", (0, (5, 1, 1, 1)))
-        for i, kind in enumerate(kinds):
-            lines = [t for t in trans if t.kind == kind]
-            spec = spectrum(lines, linewidth_meV=10.0)
-            b = bottom + (n - 1 - i) * (ph + gap)
-            ax = fig.add_axes((left + 0.1 * width, b + 0.22 * ph, 0.86 * width, 0.68 * ph))
-            ax.plot(spec.wavelength_um, spec.absorption, color="black", lw=1.3)
-            ax.set_xlim(float(np.min(spec.wavelength_um)), float(np.max(spec.wavelength_um)))
-            ax.set_ylim(0, 1.25)
-            ax.set_xlabel("wavelength (µm)", fontsize=8)
-            ax.set_ylabel("absorption (peak = 1)", fontsize=8)
-            ax.tick_params(labelsize=8)
-            what = ("intersubband, weight f" if kind == "intersubband"
-                    else "interband, TE weight; excitons not included")
-            ax.set_title(f"{what}; Lorentzian lines, FWHM 10 meV", fontsize=8)
-            k = 0
-            marks = []
-            for t in lines:
-                if t.name not in chosen:
-                    continue
-                ax.axvline(t.wavelength_um, color="#0072B2", ls=styles[k % len(styles)], lw=1.0)
-                marks.append((t.wavelength_um, t.name))
-                k += 1
-            if marks:
-                xs = np.array([m[0] for m in marks])
-                lo, hi = ax.get_xlim()
-                ax_w_pt = 0.86 * width * fig.get_figwidth() * 72.0
-                gap_data = 60.0 / ax_w_pt * (hi - lo)
-                pos = spread_positions(xs, gap_data, lo + 0.5 * gap_data, hi - 0.5 * gap_data)
-                for (_x, name), px in zip(marks, pos):
-                    ax.text(px, 1.12, name, ha="center", va="center", fontsize=8,
-                            color="#0072B2", parse_math=False)
-    return draw, len(kinds)
+
+def lifetime_blocks(data: ReportData) -> list:
+    """LO-phonon scattering times, lifetimes and the emitter figure of merit (when an
+    intersubband line is reviewed)."""
+    if data.lifetimes is None:
+        return ([Heading("Intersubband lifetimes"), Paragraph(data.lifetimes_note)]
+                if data.lifetimes_note else [])
+    lt = data.lifetimes
+    r = lt.rates
+    blocks = [Heading("Intersubband lifetimes (LO-phonon scattering)")]
+    n = len(r.labels)
+    rows = [[r.labels[i]] + [_SIGMA if i == f else _time(1e12 / w if w > 0 else math.inf)
+                             for f, w in enumerate(r.rate_per_s[i])]
+            + [_time(float(r.lifetime_ps[i]))] for i in range(n)]
+    how = ("thermal average over each subband" if r.thermal
+           else "electron at the bottom of the initial subband")
+    blocks.append(Table(["from \\ to"] + list(r.labels) + ["lifetime\n(ps)"], rows,
+                        ["l"] + ["r"] * (n + 1),
+                        title="Scattering times from row to column (ps)"))
+    blocks.append(Paragraph(f"Emission + absorption of LO phonons of {r.phonon.material} "
+                            f"({1e3 * r.phonon.energy_eV:.1f} meV) at T = {r.temperature_K:g} K, "
+                            f"{how}; ∞: no scattering.", size=8, color="0.25"))
+    f = lt.figure
+    if f is not None:
+        blocks.append(Paragraph(
+            f"Emitter line {f.line} ({f.wavelength_um:.4f} µm, |z| {f.dipole_nm:.3f} nm): "
+            f"τ_u {_time(f.tau_upper_ps)} ps, τ_l {_time(f.tau_lower_ps)} ps, τ_ul "
+            f"{_time(f.tau_upper_lower_ps)} ps; τ_u(1 − τ_l/τ_ul) = "
+            f"{_f(f.inversion_factor_ps, '.4g')} ps; z²τ_u(1 − τ_l/τ_ul) = "
+            f"{_f(f.figure_of_merit_nm2_ps, '.4g')} nm² ps; peak cross-section "
+            f"{f.cross_section_cm2:.3g} cm² (FWHM {f.linewidth_meV:g} meV); gain per current "
+            f"density {_f(f.gain_per_current_cm_per_kA, '.3g')} cm/kA (stage {f.period_nm:g} nm, "
+            "unit injection)." + ("" if f.inversion_possible
+                                  else " No inversion possible on this line: τ_l ≥ τ_ul."),
+            size=9))
+    if lt.figures:
+        rows = [[x.line, f"{x.wavelength_um:.4f}", _time(x.tau_upper_ps), _time(x.tau_lower_ps),
+                 _time(x.tau_upper_lower_ps), _f(x.figure_of_merit_nm2_ps, ".4g"),
+                 _f(x.radiative_lifetime_ns, ".4g"), "yes" if x.inversion_possible else "no"]
+                for x in lt.figures]
+        blocks.append(Table(["line", "λ\n(µm)", "τ_u\n(ps)", "τ_l\n(ps)", "τ_ul\n(ps)",
+                             "z²τ_u(1−τ_l/τ_ul)\n(nm² ps)", "radiative\n(ns)", "inversion"],
+                            rows, ["l"] + ["r"] * 6 + ["l"],
+                            title="All intersubband lines (largest figure of merit first)"))
+    for note in tuple(lt.notes) + (tuple(f.notes) if f is not None else ()):
+        blocks.append(Paragraph(note, size=8, bullet="•"))
+    blocks.append(Paragraph(
+        "Fröhlich scattering by bulk, dispersionless LO phonons of the host material with the "
+        "form factor of the two envelopes and the Bose occupation at the stack temperature "
+        "[R. Ferreira and G. Bastard, Phys. Rev. B 40, 1074 (1989)]; no interface phonons, "
+        "screening, electron-electron or interface-roughness scattering. Gain per current "
+        "density from the three-level rate equations with unit injection [J. Faist et al., "
+        "Science 264, 553 (1994)]. Spontaneous emission from the oscillator strength (Einstein "
+        "A coefficient in a medium of index n).", size=8, color="0.25"))
+    return blocks
 
 
 def sensitivity_blocks(data: ReportData) -> list:
@@ -491,14 +565,21 @@ def sensitivity_blocks(data: ReportData) -> list:
         by_t = {}
         for r in data.sensitivity:
             by_t.setdefault(r.transition, []).append(r)
-        lam0 = {t.name: t.wavelength_um for t in data.chosen}
+        e0 = {t.name: t.energy_eV for t in data.chosen}
         for name, rows in by_t.items():
-            trs = [[r.layer, r.parameter, r.step_text, _f(r.minus_nm, "+.2f", "—"),
-                    _f(r.plus_nm, "+.2f", "—"), r.note] for r in rows]
-            blocks.append(Table(["layer", "parameter", "step", "Δλ for\n−step (nm)",
-                                 "Δλ for\n+step (nm)", "note"], trs,
+            # shifts in the unit of the line's spectral region (qwell.spectral): nm, µm or GHz
+            e = e0.get(name, float("nan"))
+            u = data.photon_unit or auto_unit(e)
+            su, sym = unit_label(spread_unit(u)), column(u).split()[0]
+
+            def shift(v, _e=e, _u=u):
+                return "—" if v is None else format_spread(v, _e, _u, sign="+", with_unit=False)
+            trs = [[r.layer, r.parameter, r.step_text, shift(r.minus_nm), shift(r.plus_nm),
+                    r.note] for r in rows]
+            blocks.append(Table(["layer", "parameter", "step", f"Δ{sym} for\n−step ({su})",
+                                 f"Δ{sym} for\n+step ({su})", "note"], trs,
                                 ["l", "l", "l", "r", "r", "l"], wrap=(5,),
-                                title=f"{name}: λ = {lam0.get(name, float('nan')):.5f} µm"))
+                                title=f"{name}: {sym} = {format_line(e, u)}"))
         blocks.append(Paragraph(
             "Each layer parameter is changed alone: the thickness by one monolayer (a/2 of the "
             "layer's material), the composition by ±0.01 (x, y as in the alloy family's formula, "
@@ -509,10 +590,46 @@ def sensitivity_blocks(data: ReportData) -> list:
         blocks.append(Paragraph("No sensitivity table."))
     for n in data.sensitivity_notes:
         blocks.append(Paragraph(n, size=8, bullet="•", color="0.25"))
-    draw, n = _spectrum_draw(data)
+    blocks += spectra_blocks(data)
+    return blocks
+
+
+def spectra_blocks(data: ReportData) -> list:
+    """Absolute spectra: alpha [cm^-1] and per-pass absorption, gain and transparency."""
+    spec = data.spectra
+    if spec is None or not (spec.panels or spec.notes):
+        return []
+    n = spec.panels
+    title = " and ".join(w for w, on in (("Absorption", spec.absorption is not None),
+                                        ("gain", spec.gain is not None)) if on) or "Spectra"
+    blocks = [Heading(title.capitalize(), 11.0, keep=190.0 * n + 60.0)]
+    rows = spectra_rows(spec)
+    if rows:
+        blocks.append(Table(["quantity", "value"], rows, ["l", "l"], wrap=(1,)))
     if n:
-        blocks.append(Heading("Absorption spectrum", 11.0, keep=190.0 * n))
-        blocks.append(FigureBlock(190.0 * n, draw))
+        blocks.append(FigureBlock(190.0 * n, spectra_draw(spec)))
+    text = []
+    if spec.absorption is not None:
+        a = spec.absorption
+        text.append(f"Intersubband α for light polarised along z, from the populated subbands "
+                    f"only ({spec.absorption_basis}); Lorentzian lines of "
+                    f"{a.lines[0].linewidth_meV:g} meV FWHM, depolarisation shift included, "
+                    f"refractive index {a.refractive_index:g}; α is averaged over the active "
+                    "length. The dashed curve is the fraction of p-polarised light absorbed in "
+                    "one pass through a 45° polished facet (unpolarised light: half).")
+    if spec.gain is not None:
+        g = spec.gain
+        text.append(f"Interband material gain (TE) from the step-shaped 2-D joint density of "
+                    f"states of each subband pair with quasi-Fermi levels of an injected n = p, "
+                    f"Lorentzian FWHM {g.linewidth_meV:.3g} meV, at "
+                    f"{g.model.temperature_K:g} K. Parabolic in-plane subbands: valence-band "
+                    "mixing is not included; carriers in barrier/guide states are not counted; "
+                    "excitons are not applied (screened at laser densities). Transparency: the "
+                    "density where the peak gain crosses zero.")
+    for t in text:
+        blocks.append(Paragraph(t, size=8, color="0.25"))
+    for note in spec.notes:
+        blocks.append(Paragraph(note, size=8, bullet="•", color="0.25"))
     return blocks
 
 
@@ -555,7 +672,7 @@ def report_pages(data: ReportData) -> list[list[Item]]:
     """Lay out all sections (each starts on a new page); returns the pages' items."""
     flow = Flow()
     sections = [diagram_blocks, stack_blocks, material_blocks, state_blocks, transition_blocks,
-                sensitivity_blocks, caution_blocks]
+                lifetime_blocks, sensitivity_blocks, caution_blocks]
     for k, sec in enumerate(sections):
         if k:
             PageBreak().place(flow)

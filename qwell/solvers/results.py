@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["State", "Miniband", "Levels"]
+__all__ = ["State", "Miniband", "Levels", "UNCOUPLED_WIDTH_EV"]
 
 
 class _FromEnvelope:
@@ -113,6 +113,11 @@ class State:
     envelope: object = field(default=None, repr=False, compare=False)
 
 
+#: Width [eV] below which a "miniband" is a level repeated in uncoupled periods (10 µeV:
+#: far below any linewidth or kT of a device; common practice, no source).
+UNCOUPLED_WIDTH_EV = 1e-5
+
+
 @dataclass(frozen=True)
 class Miniband:
     """A superlattice miniband from Bloch's theorem on one period.
@@ -139,6 +144,12 @@ class Miniband:
     width_eV: float
     repeat_index: int
     period_nm: float
+
+    @property
+    def coupled(self) -> bool:
+        """False when the width is below :data:`UNCOUPLED_WIDTH_EV`: the periods are
+        practically uncoupled (one level repeated in each well), not a band."""
+        return self.width_eV >= UNCOUPLED_WIDTH_EV
 
 
 @dataclass(frozen=True)
