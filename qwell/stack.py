@@ -69,7 +69,7 @@ from .unit_table import plain_split
 from .units import (FIELD_RANGES, RANGES, expected_words, is_quantity, out_of_range,
                     parse_quantity, spectral_to_eV, thickness_nm as _thickness_nm, to_float)
 from .yamlio import (MAX_ALIASES, MAX_YAML_NODES, decode_text, parse_marked_yaml,  # noqa: F401
-                     read_regular_file)
+                     read_regular_file, type_word as _type_word)
 
 __all__ = [
     "Grade",
@@ -508,18 +508,6 @@ def _short(value, limit: int = 60) -> str:
 def _did_you_mean(word: str, candidates) -> str:
     close = difflib.get_close_matches(str(word), [str(c) for c in candidates], n=1, cutoff=0.6)
     return f" (did you mean {close[0]!r}?)" if close else ""
-
-
-def _type_word(value) -> str:
-    if isinstance(value, Mapping):
-        return "a mapping"
-    if isinstance(value, list):
-        return "a list"
-    if value is None:
-        return "nothing"
-    if isinstance(value, bool):
-        return f"{value!r} (a boolean)"
-    return _short(value)
 
 
 class _Builder:

@@ -18,17 +18,33 @@ from __future__ import annotations
 import os
 import stat
 
+from collections.abc import Mapping
+
 import yaml
 
 from .errors import StackError
 
-__all__ = ["MAX_ALIASES", "MAX_YAML_NODES", "parse_marked_yaml", "decode_text",
+__all__ = ["MAX_ALIASES", "MAX_YAML_NODES", "parse_marked_yaml", "decode_text", "type_word",
            "read_regular_file", "one_line"]
 
 #: Most YAML aliases (``*name``) in one document.
 MAX_ALIASES = 100
 #: Most YAML nodes in one document, as written and after alias expansion.
 MAX_YAML_NODES = 1_000_000
+
+
+def type_word(value) -> str:
+    """What a YAML value is, for messages: 'a mapping', 'a list', 'nothing', or its short repr."""
+    if isinstance(value, Mapping):
+        return "a mapping"
+    if isinstance(value, list):
+        return "a list"
+    if value is None:
+        return "nothing"
+    if isinstance(value, bool):
+        return f"{value!r} (a boolean)"
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 def one_line(text) -> str:

@@ -68,6 +68,7 @@ from ..errors import LibraryError, MaterialError, StackError, UnitError, Validit
 from .. import units
 from ..units import to_float
 from ..yamlio import decode_text, one_line, parse_marked_yaml, read_regular_file
+from ..yamlio import type_word as _type_word
 from . import _database as db
 
 __all__ = [
@@ -690,19 +691,6 @@ class _Parser:
 def _strip_who(exc, who) -> str:
     text = one_line(exc)
     return text[len(who) + 2:] if text.startswith(f"{who}: ") else text
-
-
-def _type_word(value) -> str:
-    if isinstance(value, Mapping):
-        return "a mapping"
-    if isinstance(value, list):
-        return "a list"
-    if value is None:
-        return "nothing"
-    if isinstance(value, bool):
-        return f"{value!r} (a boolean)"
-    text = repr(value)
-    return text if len(text) <= 60 else text[:57] + "..."
 
 
 def _convert(number: float, unit, target: str) -> float:
