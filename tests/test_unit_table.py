@@ -115,3 +115,17 @@ def test_levels_command_imports_no_registry_optimiser_or_plotting():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          cwd=__file__.rsplit("/tests/", 1)[0], check=False)
     assert "LOADED []" in out.stderr, out.stderr[-2000:]
+
+
+def test_levels_command_imports_only_its_own_layers():
+    # start-up: `qwell levels` registers and imports only its own command module, not the
+    # design workflows (sizing, sweeps, tolerances), the report or the spectra commands
+    # (common practice, no source)
+    code = ("import sys; from qwell.cli import main; main(['levels', 'layers/lwir-detector.yaml']);"
+            "bad = [m for m in ('qwell.cli.design', 'qwell.cli.report', 'qwell.cli.spectra',"
+            " 'qwell.design.evaluate', 'qwell.design.sizing', 'qwell.design.sweeps',"
+            " 'qwell.design.tolerances', 'qwell.report') if m in sys.modules];"
+            "print('LOADED', bad, file=sys.stderr)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         cwd=__file__.rsplit("/tests/", 1)[0], check=False)
+    assert "LOADED []" in out.stderr, out.stderr[-2000:]

@@ -14,6 +14,7 @@ One module per command group adds its sub-commands with ``register``:
 from __future__ import annotations
 
 import argparse
+import importlib
 import os
 import re
 import signal
@@ -22,7 +23,6 @@ import warnings
 
 from .. import __version__
 from ..errors import QwellError, QwellWarning, one_line
-from . import design, levels, materials, profile, report, spectra
 from .common import EXIT_USAGE, locate_error
 
 __all__ = ["main", "build_parser", "EXIT_USAGE"]
@@ -33,18 +33,41 @@ class _Parser(argparse.ArgumentParser):
         self.exit(EXIT_USAGE, f"{self.prog}: error: {message}\n")
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The ``qwell`` argument parser with every sub-command."""
+#: sub-command -> the module of :mod:`qwell.cli` that registers and runs it.  Only the
+#: module of the command being run is imported (``qwell levels`` does not pay for the
+#: design, report and plotting layers); ``qwell --help`` and unknown commands import all.
+COMMANDS = {
+    "materials": "materials",
+    "profile": "profile",
+    "levels": "levels",
+    "size": "design",
+    "sweep": "design",
+    "tolerance": "design",
+    "report": "report",
+    "absorption": "spectra",
+    "gain": "spectra",
+}
+
+
+def _command_modules(argv=None) -> list:
+    """The command modules to register for ``argv``: that of its command, else all (in order)."""
+    names = list(dict.fromkeys(COMMANDS.values()))
+    first = next((tok for tok in (argv or ()) if not tok.startswith("-")), None)
+    if argv is not None and first in COMMANDS and not any(
+            tok in ("-h", "--help", "--version") for tok in argv[:argv.index(first)]):
+        names = [COMMANDS[first]]
+    # imported on demand (see COMMANDS): start-up pays only for the command being run
+    return [importlib.import_module(f"{__name__}.{n}") for n in names]
+
+
+def build_parser(argv=None) -> argparse.ArgumentParser:
+    """The ``qwell`` argument parser: every sub-command, or with ``argv`` only the one it runs."""
     p = _Parser(prog="qwell", description="Quantum-well layer-stack design: profiles, subbands, "
                 "transitions, sizing, sweeps and design-review reports.")
     p.add_argument("--version", action="version", version=f"qwell {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    materials.register(sub)
-    profile.register(sub)
-    levels.register(sub)
-    design.register(sub)
-    report.register(sub)
-    spectra.register(sub)
+    for module in _command_modules(argv):
+        module.register(sub)
     return p
 
 
@@ -96,9 +119,9 @@ def _restore_sigterm(previous) -> None:
 
 def main(argv=None) -> int:
     """Run ``qwell`` with ``argv`` (default ``sys.argv[1:]``); returns the exit status."""
-    parser = build_parser()
-    argv = sys.argv[1:] if argv is None else list(argv)
-    args = parser.parse_args(_join_negative_values(argv))
+    argv = _join_negative_values(sys.argv[1:] if argv is None else list(argv))
+    parser = build_parser(argv)
+    args = parser.parse_args(argv)
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_USAGE

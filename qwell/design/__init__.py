@@ -24,45 +24,55 @@ per monolayer (thickness; per nm when the layer has no lattice constant), per
 
 from __future__ import annotations
 
-from ..formula import format_formula
-from ..stack_edit import KINDS, Parameter, apply_parameters, get_parameter, parameters
-from .crossings import Anticrossing, find_anticrossings
-from .evaluate import DesignPoint, bands_for_transitions, design_point, evaluate_many
-from .sizing import MonolayerOption, SizeResult, size
-from .sweeps import SweepResult, sweep
-from .growth import CorrelatedGroup, parse_growth_rate
-from .histogram import plot_monte_carlo
-from .tolerances import (Contribution, GroupContribution, MonteCarloSummary, Sensitivity, SensitivityResult,
-                        ToleranceResult, parse_parameter_value, sensitivities, tolerance)
+import importlib
 
-__all__ = [
-    "Parameter",
-    "DesignPoint",
-    "SizeResult",
-    "MonolayerOption",
-    "SweepResult",
-    "Anticrossing",
-    "find_anticrossings",
-    "Contribution",
-    "GroupContribution",
-    "CorrelatedGroup",
-    "MonteCarloSummary",
-    "ToleranceResult",
-    "Sensitivity",
-    "SensitivityResult",
-    "parameters",
-    "get_parameter",
-    "apply_parameters",
-    "format_formula",
-    "design_point",
-    "evaluate_many",
-    "bands_for_transitions",
-    "size",
-    "sweep",
-    "tolerance",
-    "sensitivities",
-    "parse_parameter_value",
-    "parse_growth_rate",
-    "plot_monte_carlo",
-    "KINDS",
-]
+#: public name -> module that defines it.  The modules are imported on first use
+#: (PEP 562), so a command that needs one workflow (``qwell levels`` needs only
+#: :mod:`.line`) does not pay for the others.
+_API = {
+    "Parameter": "qwell.stack_edit",
+    "DesignPoint": "qwell.design.evaluate",
+    "SizeResult": "qwell.design.sizing",
+    "MonolayerOption": "qwell.design.sizing",
+    "SweepResult": "qwell.design.sweeps",
+    "Anticrossing": "qwell.design.crossings",
+    "find_anticrossings": "qwell.design.crossings",
+    "Contribution": "qwell.design.tolerances",
+    "GroupContribution": "qwell.design.tolerances",
+    "CorrelatedGroup": "qwell.design.growth",
+    "MonteCarloSummary": "qwell.design.tolerances",
+    "ToleranceResult": "qwell.design.tolerances",
+    "Sensitivity": "qwell.design.tolerances",
+    "SensitivityResult": "qwell.design.tolerances",
+    "parameters": "qwell.stack_edit",
+    "get_parameter": "qwell.stack_edit",
+    "apply_parameters": "qwell.stack_edit",
+    "format_formula": "qwell.formula",
+    "design_point": "qwell.design.evaluate",
+    "evaluate_many": "qwell.design.evaluate",
+    "bands_for_transitions": "qwell.design.evaluate",
+    "size": "qwell.design.sizing",
+    "sweep": "qwell.design.sweeps",
+    "tolerance": "qwell.design.tolerances",
+    "sensitivities": "qwell.design.tolerances",
+    "parse_parameter_value": "qwell.design.tolerances",
+    "parse_growth_rate": "qwell.design.growth",
+    "plot_monte_carlo": "qwell.design.histogram",
+    "KINDS": "qwell.stack_edit",
+}
+
+__all__ = list(_API)
+
+
+def __getattr__(name: str):
+    try:
+        module = _API[name]
+    except KeyError:
+        raise AttributeError(f"module 'qwell.design' has no attribute {name!r}") from None
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value          # later look-ups skip this function
+    return value
+
+
+def __dir__():
+    return sorted(__all__)
