@@ -198,7 +198,9 @@ def design_line(stack, transition: str | None = None, solution=None, *,
         reason = f"declared in the stack (line: at {where})"
         target_eV, target_text = declared.target_eV, declared.target_text
         if check:
-            check_line(name, solution if solution is not None else solve_stack(stack))
+            # no solution given: solve the bands the declared line needs (None: all)
+            check_line(name, solution if solution is not None
+                       else solve_stack(stack, bands=line_bands(stack)))
     else:
         sol = solution if solution is not None else solve_stack(stack)
         name, reason = default_line(sol)
