@@ -85,10 +85,30 @@ def _bands_for(which) -> tuple:
     return tuple(which)
 
 
+#: State label prefix -> band.
+_BAND_OF_PREFIX = {"e": "conduction", "hh": "heavy_hole", "lh": "light_hole"}
+
+
+def lowest_states(labels) -> dict:
+    """Band -> number of lowest states that hold every label of ``labels`` ('e3', 'hh1').
+
+    Labels that do not read as a state label are ignored.
+    """
+    out: dict = {}
+    for lab in labels or ():
+        lab = str(lab)
+        digits = len(lab) - len(lab.lstrip("ehl"))
+        band = _BAND_OF_PREFIX.get(lab[:digits])
+        if band is None or not lab[digits:].isdigit():
+            continue
+        out[band] = max(out.get(band, 0), int(lab[digits:]))
+    return out
+
+
 def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
                   transitions: bool = True, tolerance_eV: float = 1e-7,
                   wavefunctions: bool = True, quasi_bound: bool = True,
-                  hole_intersubband: bool = False) -> Solution:
+                  hole_intersubband: bool = False, states_needed=None) -> Solution:
     """Solve the bands of a profile and collect transitions.
 
     Parameters
@@ -110,11 +130,18 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
         every bound state, so skipping them leaves the bound labels unchanged.
     hole_intersubband : bool
         Also list heavy-hole and light-hole intersubband pairs (hh1-hh2, ...).
+    states_needed : sequence of str, optional
+        With ``quasi_bound=False`` and the exact method: the state labels the
+        caller needs ('e3', 'hh1'); a band holding some of them keeps only its
+        lowest bound states up to the highest needed one (the refinement of the
+        others is skipped; the kept states' labels and energies are those of the
+        full solve).  Bands without a needed label are solved in full.
     """
     if method not in METHODS:
         raise ParameterError(f"unknown method {method!r}; expected one of: " + ", ".join(METHODS))
     notes = []
     levels = {}
+    keep = lowest_states(states_needed) if method == "exact" and not quasi_bound else {}
     for b in _bands_for(bands):
         if b not in profile.bands:
             notes.append(f"{b}: not defined in every layer (no valence parameters); skipped")
@@ -123,6 +150,8 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
         if method == "exact":
             opts["wavefunctions"] = wavefunctions and transitions
             opts["quasi_bound"] = quasi_bound
+            if b in keep:
+                opts["max_states"] = keep[b]
         levels[b] = solve(profile.bands[b], method, **opts)
     trans = ()
     if transitions and method == "exact":

@@ -8,7 +8,9 @@ adds the uniform field tilt, and returns a :class:`Profile` holding
   light hole) with one piece per layer, for the solvers, and
 * sampled arrays (conduction, heavy- and light-hole edges, masses, gap) for
   plots and JSON, with both sides of every interface so that steps are
-  vertical.
+  vertical.  They are computed on first access (a plot, a table, the
+  Schrödinger–Poisson loop), not when the profile is built: a design
+  evaluation that only solves never samples.
 
 Conventions: z = 0 nm at the start of the first layer, z increasing in
 growth order; a field ``F`` [kV/cm] adds ``+F * 1e-4 * z`` eV (z in nm) to
@@ -105,6 +107,14 @@ class Profile:
     bands : dict
         Band name -> :class:`~qwell.bands.Band`; a band is missing when some
         layer does not define its edge and mass (user materials).
+    warnings : tuple of str
+        Stack-level warnings (also repeated per layer).
+    sampler : _Sampler
+        The layer description the sampled arrays below are computed from (on
+        first access, then kept).
+
+    Sampled arrays (properties)
+    ---------------------------
     z_nm : ndarray
         Sample positions [nm], interfaces included twice (both sides).
     conduction_edge_eV, heavy_hole_edge_eV, light_hole_edge_eV : ndarray
@@ -113,23 +123,63 @@ class Profile:
         Band-edge masses [m0] along [001].
     gap_eV : ndarray
         Local (strained) gap Ec - max(Ehh, Elh) [eV].
-    warnings : tuple of str
-        Stack-level warnings (also repeated per layer).
+    sample_layer : ndarray
+        Index of the layer each sample belongs to.
     """
 
     stack: object
     layers: tuple
     bands: dict
-    z_nm: np.ndarray = field(repr=False)
-    conduction_edge_eV: np.ndarray = field(repr=False)
-    heavy_hole_edge_eV: np.ndarray = field(repr=False)
-    light_hole_edge_eV: np.ndarray = field(repr=False)
-    electron_mass: np.ndarray = field(repr=False)
-    heavy_hole_mass: np.ndarray = field(repr=False)
-    light_hole_mass: np.ndarray = field(repr=False)
-    gap_eV: np.ndarray = field(repr=False)
     warnings: tuple = ()
-    sample_layer: np.ndarray | None = field(default=None, repr=False)
+    sampler: object = field(default=None, repr=False, compare=False)
+    _samples: dict = field(default_factory=dict, init=False, repr=False, compare=False)
+
+    def _sampled(self, key: str) -> np.ndarray:
+        """One sampled array, all of them computed on the first access."""
+        if not self._samples:
+            self._samples.update(self.sampler.sample())
+        return self._samples[key]
+
+    @property
+    def z_nm(self) -> np.ndarray:
+        return self._sampled("z_nm")
+
+    @property
+    def conduction_edge_eV(self) -> np.ndarray:
+        return self._sampled("ec")
+
+    @property
+    def heavy_hole_edge_eV(self) -> np.ndarray:
+        return self._sampled("ehh")
+
+    @property
+    def light_hole_edge_eV(self) -> np.ndarray:
+        return self._sampled("elh")
+
+    @property
+    def electron_mass(self) -> np.ndarray:
+        return self._sampled("me")
+
+    @property
+    def heavy_hole_mass(self) -> np.ndarray:
+        return self._sampled("mhh")
+
+    @property
+    def light_hole_mass(self) -> np.ndarray:
+        return self._sampled("mlh")
+
+    @property
+    def gap_eV(self) -> np.ndarray:
+        return self._sampled("gap")
+
+    @property
+    def sample_layer(self) -> np.ndarray:
+        return self._sampled("sample_layer")
+
+    @property
+    def samples_computed(self) -> bool:
+        """Whether the sampled arrays have been computed (they are on first access)."""
+        return bool(self._samples)
 
     def layer_samples(self, index: int) -> np.ndarray:
         """Boolean mask of the samples that belong to layer ``index``."""
@@ -157,15 +207,12 @@ class Profile:
         the gap difference vanishes).  Field tilt cancels at an interface.
         """
         out = []
-        top = np.fmax(self.heavy_hole_edge_eV, self.light_hole_edge_eV)
-        # samples are in growth order: first and last sample of each layer by bisection
-        # (one mask per layer made long stacks quadratic in the layer count)
-        order = np.asarray(self.sample_layer)
+        # the edges at both ends of each layer: the first and last samples of the layer,
+        # evaluated alone (the samples themselves are not needed)
+        ec, top = self.sampler.layer_ends()
         for a, b in zip(self.layers[:-1], self.layers[1:]):
-            last_a = int(np.searchsorted(order, a.index, side="right")) - 1
-            first_b = int(np.searchsorted(order, b.index, side="left"))
-            ec_a, ec_b = self.conduction_edge_eV[last_a], self.conduction_edge_eV[first_b]
-            ev_a, ev_b = top[last_a], top[first_b]
+            ec_a, ec_b = ec[a.index, 1], ec[b.index, 0]
+            ev_a, ev_b = top[a.index, 1], top[b.index, 0]
             dec = float(ec_b - ec_a)
             dev = float(ev_b - ev_a) if np.isfinite(ev_a) and np.isfinite(ev_b) else None
             share = None
@@ -287,6 +334,62 @@ _BAND_ATTRS = {
 def _material_set(stack):
     """The stack's material tables (built-in plus its libraries)."""
     return getattr(stack, "material_set", None) or _BUILTIN_SET
+
+
+_SAMPLED_COLUMNS = ("ec", "ehh", "elh", "me", "mhh", "mlh", "gap")
+
+
+class _Sampler:
+    """The sampled arrays of a profile, from its per-layer band functions.
+
+    Each layer is sampled at ``ceil(thickness / step) + 1`` (at least 2) evenly
+    spaced points including both of its ends; edges get the field tilt and the
+    electrostatic energy.
+    """
+
+    def __init__(self, funcs: tuple, slope_eV_per_nm: float, electrostatic_eV, step_nm: float):
+        self.funcs = funcs
+        self.slope_eV_per_nm = slope_eV_per_nm
+        self.electrostatic_eV = electrostatic_eV
+        self.step_nm = step_nm
+
+    def _columns(self, f: _LayerFunctions, zz: np.ndarray, keys) -> dict:
+        extra = self.electrostatic_eV(zz) if self.electrostatic_eV is not None else 0.0
+        out = {}
+        for k in keys:
+            v = f.value(k, zz)
+            if k in ("ec", "ehh", "elh"):
+                v = v + self.slope_eV_per_nm * zz + extra
+            out[k] = v
+        return out
+
+    def sample(self) -> dict:
+        """``{'z_nm', 'sample_layer', 'ec', 'ehh', 'elh', 'me', 'mhh', 'mlh', 'gap'}`` arrays."""
+        zs, owner = [], []
+        cols = {k: [] for k in _SAMPLED_COLUMNS}
+        for i, f in enumerate(self.funcs):
+            n = max(2, int(math.ceil((f.z1 - f.z0) / self.step_nm)) + 1)
+            zz = np.linspace(f.z0, f.z1, n)
+            zs.append(zz)
+            owner.append(np.full(n, i))
+            for k, v in self._columns(f, zz, _SAMPLED_COLUMNS).items():
+                cols[k].append(v)
+        out = {k: np.concatenate(v) for k, v in cols.items()}
+        out["z_nm"] = np.concatenate(zs)
+        out["sample_layer"] = np.concatenate(owner)
+        return out
+
+    def layer_ends(self) -> tuple:
+        """``(ec, top)``: conduction and top valence edge [eV] at the start (column 0) and end
+        (column 1) of every layer, equal to the layer's first and last samples."""
+        ec = np.empty((len(self.funcs), 2))
+        top = np.empty((len(self.funcs), 2))
+        for i, f in enumerate(self.funcs):
+            zz = np.array([f.z0, f.z1])
+            c = self._columns(f, zz, ("ec", "ehh", "elh"))
+            ec[i] = c["ec"]
+            top[i] = np.fmax(c["ehh"], c["elh"])
+        return ec, top
 
 
 def _layer_material_fn(stack, layer):
@@ -439,26 +542,10 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
         bands[bname] = Band(name=bname, pieces=tuple(pieces), carrier_sign=sign,
                             nonparabolic=nonpar, repeats=repeats, layer_names=labels)
 
-    # -- samples --------------------------------------------------------------
-    zs, owner, cols = [], [], {k: [] for k in ("ec", "ehh", "elh", "me", "mhh", "mlh", "gap")}
-    for i, f in enumerate(funcs):
-        n = max(2, int(math.ceil((f.z1 - f.z0) / sample_step_nm)) + 1)
-        zz = np.linspace(f.z0, f.z1, n)
-        zs.append(zz)
-        owner.append(np.full(n, i))
-        extra = electrostatic_eV(zz) if electrostatic_eV is not None else 0.0
-        for k in cols:
-            v = f.value(k, zz)
-            if k in ("ec", "ehh", "elh"):
-                v = v + slope * zz + extra
-            cols[k].append(v)
-    zcat = np.concatenate(zs)
-    cat = {k: np.concatenate(v) for k, v in cols.items()}
-    prof = Profile(stack=stack, layers=tuple(layer_profiles), bands=bands, z_nm=zcat,
-                   conduction_edge_eV=cat["ec"], heavy_hole_edge_eV=cat["ehh"],
-                   light_hole_edge_eV=cat["elh"], electron_mass=cat["me"],
-                   heavy_hole_mass=cat["mhh"], light_hole_mass=cat["mlh"], gap_eV=cat["gap"],
-                   warnings=tuple(warnings), sample_layer=np.concatenate(owner))
+    # -- samples: computed on first access ----------------------------------------
+    prof = Profile(stack=stack, layers=tuple(layer_profiles), bands=bands,
+                   warnings=tuple(warnings),
+                   sampler=_Sampler(tuple(funcs), slope, electrostatic_eV, sample_step_nm))
     grouped: dict = {}
     for w in warnings:
         label, _, msg = w.partition(": ")
@@ -503,16 +590,14 @@ def _offset_warnings(prof: Profile, families: list) -> list[str]:
     named = {}
     seen_pairs = set()
     index_of = {lp.label: lp.index for lp in prof.layers}
+    ec, top = prof.sampler.layer_ends()
     for o in prof.band_offsets():
         i = index_of[o["left"]]
         pair = frozenset({families[i], families[i + 1]})
         share = o["conduction_share"]
         where = f"interface {o['left']} | {o['right']}"
-        ia = prof.layer_samples(i)
-        ib = prof.layer_samples(i + 1)
-        top = np.fmax(prof.heavy_hole_edge_eV, prof.light_hole_edge_eV)
-        ec_a, ec_b = prof.conduction_edge_eV[ia][-1], prof.conduction_edge_eV[ib][0]
-        ev_a, ev_b = top[ia][-1], top[ib][0]
+        ec_a, ec_b = ec[i, 1], ec[i + 1, 0]
+        ev_a, ev_b = top[i, 1], top[i + 1, 0]
         if np.isfinite(ev_a) and np.isfinite(ev_b) and (ec_a < ev_b or ec_b < ev_a):
             out.append(f"{where}: broken-gap (type-III) alignment — the conduction edge on one "
                        "side lies below the valence edge on the other; a single-band envelope "

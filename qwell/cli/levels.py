@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
-from ..design.line import ALLOWED_OVERLAP, design_line
+from ..design.line import ALLOWED_OVERLAP, HOLES_NOT_SOLVED, design_line, line_bands
 from ..errors import QwellError
 from ..fileio import OutputGroup, check_figure_target
 from ..levels import compare_methods, depolarised_lines, shifted_transitions, solve_profile
@@ -25,7 +25,9 @@ def register(subparsers) -> None:
     """Add ``levels`` to the ``qwell`` sub-commands."""
     lv = subparsers.add_parser("levels", help="subband states and transitions of a stack")
     lv.add_argument("stack", help="stack YAML file")
-    lv.add_argument("--band", default="all", choices=["conduction", "heavy_hole", "light_hole", "all"])
+    lv.add_argument("--band", default=None, choices=["conduction", "heavy_hole", "light_hole", "all"],
+                    help="bands to solve (default: the conduction band when the design line is "
+                         "an intersubband line, declared or given with --transition; else all)")
     lv.add_argument("--method", default="exact", choices=["exact", "semiclassical", "both"])
     lv.add_argument("--transition", action="append", metavar="e1-e2",
                     help="show only this transition (repeatable)")
@@ -60,8 +62,9 @@ class LevelsOptions:
     Attributes
     ----------
     stack_path : str
-    band : str
-        'conduction', 'heavy_hole', 'light_hole' or 'all'.
+    band : str or None
+        'conduction', 'heavy_hole', 'light_hole' or 'all'; None (no ``--band``): the bands
+        the design line needs (:func:`solve_bands`).
     methods : tuple of str
         ('exact',), ('semiclassical',) or both.
     transitions : tuple of str
@@ -91,7 +94,7 @@ class LevelsOptions:
     """
 
     stack_path: str
-    band: str = "all"
+    band: str | None = None
     methods: tuple = ("exact",)
     transitions: tuple = ()
     json: bool = False
@@ -114,7 +117,8 @@ class LevelsOptions:
     @classmethod
     def from_args(cls, args) -> LevelsOptions:
         """Options of the parsed ``levels`` arguments; refuses contradictory ones."""
-        if args.transition and args.band not in ("all", "conduction") and not args.hole_intersubband:
+        if (args.transition and args.band not in (None, "all", "conduction")
+                and not args.hole_intersubband):
             raise QwellError(f"--transition needs the conduction band: transitions start from "
                              f"electron states, but --band {args.band} solves only that band; "
                              "use --band all")
@@ -148,8 +152,11 @@ def cmd_levels(args) -> int:
                                                             transitions=False).states],
                    opts.band)
     edges = reference_edges_eV(prof, opts.reference) if opts.reference else None
-    sols = {m: solve_profile(prof, bands=opts.band, method=m, transitions=(m == "exact"),
+    bands, note = solve_bands(stack, opts)
+    sols = {m: solve_profile(prof, bands=bands, method=m, transitions=(m == "exact"),
                              hole_intersubband=opts.hole_intersubband) for m in opts.methods}
+    if note:
+        sols = {m: replace(s, notes=s.notes + (note,)) for m, s in sols.items()}
     if sc is not None:
         sols = {m: replace(s, self_consistent=sc) for m, s in sols.items()}
     line = _line(stack, sols, opts)
@@ -177,17 +184,40 @@ def cmd_levels(args) -> int:
     return 0
 
 
+def solve_bands(stack, opts: LevelsOptions) -> tuple:
+    """``(bands, note)``: the bands this invocation solves, and the note saying what was left out.
+
+    ``--band`` wins.  Without it, the conduction band alone when every line the
+    command follows is an intersubband line (:func:`qwell.design.line.line_bands`:
+    the ``--transition`` names, else the stack's declared line) and nothing else
+    asked needs holes (``--hole-intersubband``, ``--spectrum interband``); the
+    note then says that the hole bands were not solved and how to ask for them.
+    Every band otherwise (interband lines, or no declared line: the physics
+    default needs the hole states).
+    """
+    if opts.band is not None:
+        return opts.band, ""
+    if opts.hole_intersubband or opts.spectrum_kind == "interband":
+        return "all", ""
+    bands = line_bands(stack, opts.transitions)
+    if bands is None:
+        return "all", ""
+    line = opts.transitions[0] if opts.transitions else stack.declared_line.transition
+    return bands, HOLES_NOT_SOLVED.format(line=line)
+
+
 def _line(stack, sols: dict, opts: LevelsOptions):
     """The design line (:func:`qwell.design.line.design_line`) on the solved bands.
 
-    The exact all-band solution is used when this invocation has it; else (one
+    The exact solution is used when it holds the bands the line needs (every band,
+    or the conduction band for a declared or given intersubband line); else (one
     band, or the semiclassical method) the stack is solved once more for it.
     """
     exact = sols.get("exact")
-    full = exact if exact is not None and opts.band == "all" else None
+    everything = opts.band in (None, "all")
+    full = exact if exact is not None and everything else None
     first = opts.transitions[0] if len(opts.transitions) == 1 else None
-    return design_line(stack, first, solution=full,
-                       check=full is not None or opts.band == "all")
+    return design_line(stack, first, solution=full, check=full is not None or everything)
 
 
 # ---------------------------------------------------------------------------

@@ -200,7 +200,7 @@ def _solve_design(stack, bands, wavefunctions, needed, tolerance_eV, emitter=Non
     if needed:
         sol = solve_profile(prof, bands=bands, method="exact", transitions=True,
                             wavefunctions=wavefunctions, quasi_bound=False,
-                            tolerance_eV=tolerance_eV)
+                            tolerance_eV=tolerance_eV, states_needed=needed)
         have = {s.label for s in sol.states}
         if not set(needed) <= have:
             sol = None
@@ -248,8 +248,9 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
         on it.
     needed : sequence of str, optional
         State labels the caller needs (e.g. ``("e1", "hh1")``); when all are
-        bound, quasi-bound resonances are not searched (faster; the other
-        results are unchanged).
+        bound, quasi-bound resonances are not searched and each band keeps
+        only its lowest bound states up to the needed ones (faster; the needed
+        states' energies are unchanged).
     tolerance_eV : float
         Energy tolerance of each state [eV].
     record_errors : bool

@@ -27,7 +27,8 @@ from ..errors import ParameterError
 from ..levels import solve_stack
 from ..optics import strength
 
-__all__ = ["DesignLine", "design_line", "default_line", "ALLOWED_OVERLAP", "check_line"]
+__all__ = ["DesignLine", "design_line", "default_line", "ALLOWED_OVERLAP", "check_line",
+           "line_bands", "HOLES_NOT_SOLVED"]
 
 #: Smallest |<e|h>|^2 of an interband line counted as allowed (the tables' threshold).
 ALLOWED_OVERLAP = 1e-3
@@ -112,6 +113,44 @@ def default_line(solution) -> tuple[str, str]:
                                                   or "none"))
 
 
+#: Note of a command that solved the conduction band only (``{line}``: the line it follows).
+HOLES_NOT_SOLVED = ("hole bands not solved: the design line {line} is a conduction-band "
+                    "(intersubband) line; --band all adds heavy- and light-hole states and "
+                    "interband transitions")
+
+
+def _intersubband_name(name: str) -> bool:
+    """Whether ``name`` reads as a conduction intersubband line (e1-e2, E3 - e2)."""
+    parts = [p.strip().lower() for p in str(name).split("-")]
+    return len(parts) == 2 and all(p[:1] == "e" and p[1:].isdigit() for p in parts)
+
+
+def line_bands(stack, transitions=()) -> tuple | None:
+    """The bands a command following the stack's line needs, decided without solving.
+
+    ``('conduction',)`` when every line the command follows is a conduction
+    intersubband line: the ``transitions`` given on the command line, else the
+    stack's declared ``line:``.  None (every band) when one of them is an
+    interband line, or when nothing is declared: the physics default
+    (:func:`default_line`) needs the hole states to choose.
+
+    Parameters
+    ----------
+    stack : qwell.stack.Stack
+    transitions : sequence of str
+        Lines named with ``--transition`` (win over the declared line).
+    """
+    names = list(transitions or ())
+    if not names:
+        declared = stack.declared_line
+        if declared is None:
+            return None
+        names = [declared.transition]
+    if all(_intersubband_name(n) for n in names):
+        return ("conduction",)
+    return None
+
+
 def check_line(name: str, solution, where: str = "the nominal design") -> None:
     """Raise :class:`ParameterError` naming the states that exist when ``name`` is absent."""
     have = [t.name for t in solution.transitions]
@@ -159,7 +198,9 @@ def design_line(stack, transition: str | None = None, solution=None, *,
         reason = f"declared in the stack (line: at {where})"
         target_eV, target_text = declared.target_eV, declared.target_text
         if check:
-            check_line(name, solution if solution is not None else solve_stack(stack))
+            # no solution given: solve the bands the declared line needs (None: all)
+            check_line(name, solution if solution is not None
+                       else solve_stack(stack, bands=line_bands(stack)))
     else:
         sol = solution if solution is not None else solve_stack(stack)
         name, reason = default_line(sol)

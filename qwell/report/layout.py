@@ -336,6 +336,97 @@ class PageBreak:
 # ---------------------------------------------------------------------------
 # rendering
 # ---------------------------------------------------------------------------
+@lru_cache(maxsize=4096)
+def _advance(ch: str, size: float, bold: bool) -> float:
+    """Unhinted advance of one character at ``size`` [pt] (characters without a glyph are
+    drawn as '?')."""
+    return size / 10.0 * _char_width(ch, bold)
+
+
+def _line_width(text: str, size: float, bold: bool) -> float:
+    """Width matplotlib aligns one line of text by [pt]: the sum of the advances (kerning
+    ignored: a fraction of a point)."""
+    return sum(_advance(c, size, bold) for c in text)
+
+
+class _PageText:
+    """Every text item of a page drawn straight through the renderer, as one artist.
+
+    Matplotlib's ``Text`` artist measures each string once more before drawing
+    it (shaping the whole line); the page's items are placed already, so this
+    layer computes the same anchor from cached per-character metrics: the
+    left edge (``ha='left'``) or the advance width (``'right'``, ``'center'``)
+    horizontally, and the top of the box of the line's glyphs and of 'lp'
+    (``va='top'``, matplotlib's rule) vertically.  The output is the same
+    glyphs at the same places, up to kerning (a fraction of a point).
+    """
+
+    def __init__(self, texts):
+        # texts: (x_pt, top_pt, text, size_pt, bold, ha, color)
+        self.texts = texts
+        self._vertical: dict = {}
+
+    def _ascent_descent(self, renderer, ch: str, prop, key) -> tuple:
+        """Height above the baseline and depth below it of ``ch`` [pt], measured once."""
+        k = (ch,) + key
+        got = self._vertical.get(k)
+        if got is None:
+            got = _VERTICAL.get((type(renderer).__name__,) + k)
+        if got is None:
+            _, h, d = renderer.get_text_width_height_descent(ch, prop, ismath=False)
+            got = (h - d, d)
+            _VERTICAL[(type(renderer).__name__,) + k] = got
+        self._vertical[k] = got
+        return got
+
+    def _baseline_drop(self, renderer, text: str, prop, key) -> float:
+        """Distance from the top of the line's box to its baseline [pt], as matplotlib's
+        ``va='top'`` has it: box height max(h_text, h_lp) minus depth max(d_text, d_lp)."""
+        a_lp, d_lp = self._ascent_descent(renderer, "lp", prop, key)
+        marks = [self._ascent_descent(renderer, c, prop, key) for c in set(text)]
+        a_t = max(m[0] for m in marks)
+        d_t = max(m[1] for m in marks)
+        return max(a_t + d_t, a_lp + d_lp) - max(d_t, d_lp)
+
+    def artist(self):
+        # matplotlib is heavy: imported when a page is rendered
+        from matplotlib.artist import Artist
+        from matplotlib.font_manager import FontProperties
+
+        layer = self
+        props: dict = {}
+
+        class _Layer(Artist):
+            zorder = 3
+
+            def draw(self, renderer):
+                if not self.get_visible():
+                    return
+                gc = renderer.new_gc()
+                for x, top, text, size, bold, ha, color in layer.texts:
+                    if not text:
+                        continue
+                    key = (float(size), bool(bold))
+                    prop = props.get(key)
+                    if prop is None:
+                        prop = props[key] = FontProperties(size=size,
+                                                           weight="bold" if bold else "normal")
+                    if ha == "right":
+                        x = x - _line_width(text, size, bold)
+                    elif ha == "center":
+                        x = x - 0.5 * _line_width(text, size, bold)
+                    gc.set_foreground(color)
+                    renderer.draw_text(gc, x, top - layer._baseline_drop(renderer, text, prop, key),
+                                       text, prop, 0.0)
+                gc.restore()
+
+        return _Layer()
+
+
+#: (renderer type, text, size, bold) -> (ascent, descent) [pt], shared by the pages
+_VERTICAL: dict = {}
+
+
 def _render_page(items, footer, pdf):
     # matplotlib is heavy: imported when a page is rendered
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -346,12 +437,16 @@ def _render_page(items, footer, pdf):
     fig = Figure(figsize=(PAGE_W_PT / 72.0, PAGE_H_PT / 72.0), dpi=72)
     FigureCanvasAgg(fig)
     W, H = PAGE_W_PT, PAGE_H_PT
+    texts = []
     for it in items:
         if it.kind == "text":
-            fig.text(it.x / W, it.y / H, drawable(it.text, it.bold), fontsize=it.size, ha=it.ha,
-                     va="top",
-                     fontweight="bold" if it.bold else "normal", color=it.color,
-                     parse_math=False)
+            text = drawable(it.text, it.bold)
+            if "\n" in text:
+                fig.text(it.x / W, it.y / H, text, fontsize=it.size, ha=it.ha, va="top",
+                         fontweight="bold" if it.bold else "normal", color=it.color,
+                         parse_math=False)
+            else:
+                texts.append((it.x, it.y, text, it.size, it.bold, it.ha, it.color))
         elif it.kind == "line":
             fig.add_artist(Line2D([it.x / W, (it.x + it.w) / W], [it.y / H, it.y / H],
                                   lw=0.6, color="0.3", transform=fig.transFigure))
@@ -365,10 +460,9 @@ def _render_page(items, footer, pdf):
     y = FOOTER_TOP - 4.0
     for ln in footer:
         for sub in wrap(ln, BODY_W, MIN_FONT):
-            fig.text(MARGIN_L / W, y / H, drawable(sub), fontsize=MIN_FONT, va="top",
-                     color="0.25",
-                     parse_math=False)
+            texts.append((MARGIN_L, y, drawable(sub), MIN_FONT, False, "left", "0.25"))
             y -= MIN_FONT * 1.3
+    fig.add_artist(_PageText(texts).artist())
     pdf.savefig(fig)
 
 
