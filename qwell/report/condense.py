@@ -209,7 +209,7 @@ def shown_states(solution, chosen=()) -> list:
     keep = set()
     for lev in solution.levels.values():
         groups = state_groups(lev)
-        keep.update(s.label for g in groups for s in g.representatives)
+        keep.update(s.label for g in groups if g.kind != "single" for s in g.representatives)
         singles = [g.states[0] for g in groups if g.kind == "single"]
         if len(singles) <= _SINGLES_ALL:
             keep.update(s.label for s in singles)

@@ -137,7 +137,7 @@ def spectra_rows(spec: ReportSpectra) -> list:
     return rows
 
 
-def absorbing_range_um(spec: ReportSpectra, fraction: float = 1e-3):
+def absorbing_range_um(spec: ReportSpectra, fraction: float = 0.01):
     """Wavelength range [µm] where alpha reaches ``fraction`` of its peak, 10 % wider on each
     side (None without an absorption spectrum): the window a long stack's plot is drawn
     over, whose millimetre lines inside one miniband would otherwise squeeze the rest."""
