@@ -142,17 +142,6 @@ class IntersubbandLine:
     def name(self) -> str:
         return f"{self.initial}-{self.final}"
 
-    def to_json(self) -> dict:
-        return {"transition": self.name, "energy_eV": self.energy_eV,
-                "depolarisation_shift_eV": self.depolarisation_shift_eV,
-                "peak_energy_eV": self.peak_energy_eV,
-                "peak_wavelength_um": self.peak_wavelength_um,
-                "oscillator_strength": self.oscillator_strength, "dipole_nm": self.dipole_nm,
-                "population_difference_cm2": self.population_difference_cm2,
-                "linewidth_meV": self.linewidth_meV,
-                "integrated_absorption_eV_per_cm": self.integrated_eV_per_cm,
-                "peak_absorption_cm1": self.peak_absorption_cm1}
-
 
 @dataclass(frozen=True)
 class IntersubbandAbsorption:
@@ -213,31 +202,6 @@ class IntersubbandAbsorption:
             return math.nan
         return self.integrated_eV_per_cm / self.sum_rule_eV_per_cm
 
-    def to_json(self, *, arrays: bool = True) -> dict:
-        out = {"populations": self.populations,
-               "fermi_level_eV": None if math.isnan(self.fermi_level_eV) else self.fermi_level_eV,
-               "sheet_densities_cm2": dict(self.sheet_densities_cm2),
-               "total_density_cm2": self.total_density_cm2,
-               "temperature_K": self.temperature_K,
-               "active_length_nm": self.active_length_nm,
-               "active_length_rule": self.active_length_rule,
-               "refractive_index": self.refractive_index,
-               "polarisation": "z (TM)",
-               "peak_absorption_cm1": self.peak_absorption_cm1,
-               "peak_energy_eV": self.peak_energy_eV,
-               "peak_wavelength_um": self.peak_wavelength_um,
-               "integrated_absorption_eV_per_cm": self.integrated_eV_per_cm,
-               "sum_rule_eV_per_cm": self.sum_rule_eV_per_cm,
-               "sum_rule_fraction": (None if math.isnan(self.sum_rule_fraction)
-                                     else self.sum_rule_fraction),
-               "lines": [ln.to_json() for ln in self.lines],
-               "notes": list(self.notes)}
-        if arrays:
-            out["energy_eV"] = self.energy_eV.tolist()
-            out["wavelength_um"] = self.wavelength_um.tolist()
-            out["absorption_cm1"] = self.absorption_cm1.tolist()
-        return out
-
 
 @dataclass(frozen=True)
 class PassAbsorption:
@@ -273,14 +237,6 @@ class PassAbsorption:
     total: np.ndarray = field(repr=False)
     peak_per_pass: float = 0.0
     peak_total: float = 0.0
-
-    def to_json(self) -> dict:
-        return {"geometry": self.geometry, "internal_angle_deg": self.internal_angle_deg,
-                "passes": self.passes, "path_factor": self.path_factor,
-                "thickness_nm": self.thickness_nm,
-                "peak_absorbed_fraction_per_pass": self.peak_per_pass,
-                "peak_absorbed_fraction_total": self.peak_total,
-                "polarisation": "p (TM); unpolarised light: half"}
 
 
 def _linewidths(names, linewidth_meV):

@@ -70,6 +70,8 @@ _PSI_CUT = 0.01      # |psi|^2 below this fraction of its peak is not drawn
 _PSI_HEIGHT = 0.15   # the largest |psi|^2 of a panel is drawn this fraction of its span high
 _GROUP_MIN = 4       # a miniband holding this many states or more is drawn as a group
 _GROUP_DRAWN = 3     # states drawn (and labelled) per grouped miniband: bottom, middle, top
+_SINGLES_MAX = 30    # a band with more single (ungrouped) states than this draws only
+_SINGLES_DRAWN = 16  # this many of them (long stacks without minibands, e.g. under bias)
 
 #: One colour per state, cycled in energy order within a panel (our own choice: dark,
 #: saturated hues that stay apart on white and in greyscale print by their lightness).
@@ -210,6 +212,25 @@ def miniband_groups(lev, min_states: int = _GROUP_MIN) -> list:
             out.append((None, [s]))
     out.sort(key=lambda g: min(_carrier(s) for s in g[1]))
     return out
+
+
+def _thin_singles(entries, transitions) -> tuple:
+    """``(entries, n)``: a band's diagram entries with at most :data:`_SINGLES_DRAWN` single
+    states when it has more than :data:`_SINGLES_MAX` (a long stack without minibands, e.g.
+    under bias): those of the chosen transitions and the rest evenly spread in energy; ``n``
+    is the number of single states before thinning (0 when nothing was left out)."""
+    singles = [k for k, (mb, _, _) in enumerate(entries) if mb is None]
+    if len(singles) <= _SINGLES_MAX:
+        return entries, 0
+    named = {x for t in transitions for x in (getattr(t, "initial", None), getattr(t, "final", None))}
+    keep = {k for k in singles if entries[k][1][0].label in named}
+    rest = [k for k in singles if k not in keep]
+    room = max(_SINGLES_DRAWN - len(keep), 0)
+    if room and rest:
+        step = (len(rest) - 1) / max(room - 1, 1)
+        keep.update(rest[round(i * step)] for i in range(min(room, len(rest))))
+    return [e for k, e in enumerate(entries) if entries[k][0] is not None or k in keep], \
+        len(singles)
 
 
 def _carrier(state) -> float:
@@ -425,8 +446,15 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
     for b, lev in levels.items():
         entries[b] = [(mb, st, st if mb is None else _representatives(st))
                       for mb, st in miniband_groups(lev)]
-    all_labels = [_entry_label(mb, st) for es in entries.values() for mb, st, _ in es]
     n_total = sum(len(st) for es in entries.values() for _, st, _ in es)
+    thinned = []
+    for b in entries:
+        if b not in bands_shown:
+            continue
+        entries[b], n_single = _thin_singles(entries[b], transitions)
+        if n_single:
+            thinned.append((b, n_single, sum(1 for mb, _, _ in entries[b] if mb is None)))
+    all_labels = [_entry_label(mb, st) for es in entries.values() for mb, st, _ in es]
     n_draw = sum(len(dr) for es in entries.values() for _, _, dr in es)
     n_grouped = sum(1 for es in entries.values() for mb, _, _ in es if mb is not None)
     label_w = max([_text_extent_pt(fig, t, fontsize)[0] for t in all_labels] + [20.0])
@@ -471,6 +499,13 @@ def draw_band_diagram(fig, profile, levels, *, transitions=(), rect=(0.0, 0.0, 1
         if n_grouped:
             notes.append(f"{n_draw} of {n_total} states drawn: each miniband of the repeated "
                          f"periods is shaded, with its bottom, middle and top states drawn")
+        if thinned:
+            shown_total = sum(len(levels[b].states) for b in bands_shown if b in levels)
+            shown_draw = sum(len(dr) for b in bands_shown for _, _, dr in entries.get(b, []))
+            notes.append(("" if n_grouped else f"{shown_draw} of {shown_total} states drawn: ")
+                         + ", ".join(f"{k} of the {n} single {b.replace('_', ' ')} states"
+                                     for b, n, k in thinned)
+                         + " (evenly spread in energy, with those of the chosen lines)")
         if unlabelled:
             notes.append("narrow layers not labelled above: " + _layer_list(unlabelled))
         note_lines = _wrap_words(fig, ";  ".join(notes), width_pt - margin_l - 8.0,

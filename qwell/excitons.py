@@ -93,14 +93,6 @@ class ExcitonBinding:
     def name(self) -> str:
         return f"{self.electron}-{self.hole}"
 
-    def to_json(self) -> dict:
-        return {"pair": self.name, "binding_meV": self.binding_meV, "radius_nm": self.radius_nm,
-                "pair_energy_eV": self.pair_energy_eV,
-                "exciton_energy_eV": self.exciton_energy_eV,
-                "exciton_wavelength_um": self.exciton_wavelength_um,
-                "reduced_mass_m0": self.reduced_mass_m0,
-                "dielectric_constant": self.dielectric_constant}
-
 
 def _density_on(grid, state):
     p2 = np.interp(grid, np.asarray(state.z_nm, dtype=float),

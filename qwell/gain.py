@@ -137,13 +137,6 @@ class InterbandPair:
     def name(self) -> str:
         return f"{self.electron}-{self.hole}"
 
-    def to_json(self) -> dict:
-        return {"pair": self.name, "edge_eV": self.edge_eV,
-                "edge_wavelength_um": self.edge_wavelength_um, "overlap": self.overlap,
-                "te": self.te, "tm": self.tm, "electron_mass_m0": self.electron_mass_m0,
-                "hole_mass_m0": self.hole_mass_m0, "reduced_mass_m0": self.reduced_mass_m0,
-                "step_te_cm1": self.step_te_cm1, "step_tm_cm1": self.step_tm_cm1}
-
 
 @dataclass(frozen=True)
 class InterbandModel:
@@ -240,34 +233,6 @@ class GainTable:
             refractive_index=m.refractive_index, kane_energy_eV=m.kane_energy_eV,
             temperature_K=m.temperature_K, notes=self.notes)
 
-    def to_json(self, *, arrays: bool = False) -> dict:
-        def fin(v):
-            v = float(v)
-            return v if math.isfinite(v) else None
-        m = self.model
-        out = {"polarisation": self.polarisation,
-               "linewidth_meV": self.linewidth_meV,
-               "temperature_K": m.temperature_K, "active_length_nm": m.active_length_nm,
-               "active_length_rule": m.active_length_rule,
-               "refractive_index": m.refractive_index, "kane_energy_eV": m.kane_energy_eV,
-               "transparency_density_cm2": fin(self.transparency_density_cm2),
-               "pairs": [p.to_json() for p in m.pairs],
-               "table": [{"density_cm2": float(d), "peak_gain_cm1": float(g),
-                          "peak_energy_eV": float(e), "peak_wavelength_um": float(w),
-                          "electron_fermi_eV": fin(fc), "hole_fermi_eV": fin(fv),
-                          "fermi_separation_eV": fin(fc - fv)}
-                         for d, g, e, w, fc, fv in zip(self.densities_cm2, self.peak_gain_cm1,
-                                                       self.peak_energy_eV,
-                                                       self.peak_wavelength_um,
-                                                       self.electron_fermi_eV,
-                                                       self.hole_fermi_eV)],
-               "notes": list(self.notes)}
-        if arrays:
-            out["energy_eV"] = self.energy_eV.tolist()
-            out["gain_te_cm1"] = self.gain_te_cm1.tolist()
-            out["gain_tm_cm1"] = self.gain_tm_cm1.tolist()
-        return out
-
 
 @dataclass(frozen=True)
 class GainSpectrum:
@@ -320,27 +285,6 @@ class GainSpectrum:
     def gain_cm1(self) -> np.ndarray:
         """Gain of the chosen polarisation [cm^-1]."""
         return self.gain_te_cm1 if self.polarisation == "te" else self.gain_tm_cm1
-
-    def to_json(self, *, arrays: bool = True) -> dict:
-        def fin(v):
-            return v if math.isfinite(v) else None
-        out = {"density_cm2": self.density_cm2, "polarisation": self.polarisation,
-               "electron_fermi_eV": fin(self.electron_fermi_eV),
-               "hole_fermi_eV": fin(self.hole_fermi_eV),
-               "fermi_separation_eV": fin(self.fermi_separation_eV),
-               "peak_gain_cm1": self.peak_gain_cm1, "peak_energy_eV": self.peak_energy_eV,
-               "peak_wavelength_um": self.peak_wavelength_um,
-               "linewidth_meV": self.linewidth_meV, "temperature_K": self.temperature_K,
-               "active_length_nm": self.active_length_nm,
-               "active_length_rule": self.active_length_rule,
-               "refractive_index": self.refractive_index, "kane_energy_eV": self.kane_energy_eV,
-               "pairs": [p.to_json() for p in self.pairs], "notes": list(self.notes)}
-        if arrays:
-            out["energy_eV"] = self.energy_eV.tolist()
-            out["wavelength_um"] = self.wavelength_um.tolist()
-            out["gain_te_cm1"] = self.gain_te_cm1.tolist()
-            out["gain_tm_cm1"] = self.gain_tm_cm1.tolist()
-        return out
 
 
 # ---------------------------------------------------------------------------

@@ -13,6 +13,7 @@ Griffin (1977), ch. 10: var(s) ≈ σ²/(2(N-1))).
 
 from __future__ import annotations
 
+import csv
 import json
 import math
 from pathlib import Path
@@ -688,6 +689,33 @@ def test_cli_sweep_outputs(tmp_path, capsys):
     lines = csv_file.read_text().splitlines()
     assert len(lines) == 8 and "e1-e2 wavelength [um]" in lines[0]
     assert png_file.stat().st_size > 5000
+
+
+def test_cli_sweep_csv_in_the_photon_unit(tmp_path, capsys):
+    # The CSV keeps its fixed columns and adds each line in the --unit chosen: nu = c/lambda
+    # and d(nu)/dp = -c/lambda^2 d(lambda)/dp (CODATA c from scipy.constants).
+    csv_file = tmp_path / "s.csv"
+    rc = main(["sweep", str(LWIR), "--vary", "field", "--from", "-5kV/cm", "--to", "5kV/cm",
+               "--points", "3", "--transition", "e1-e2", "--csv", str(csv_file), "--unit", "THz",
+               "--jobs", "1"])
+    assert rc == 0
+    capsys.readouterr()
+    rows = list(csv.DictReader(csv_file.read_text().splitlines()))
+    assert len(rows) == 3
+    for r in rows:
+        lam_m = float(r["e1-e2 wavelength [um]"]) * 1e-6
+        nu_THz = float(r["e1-e2 line frequency [THz]"])
+        assert nu_THz == pytest.approx(sc.c / lam_m * 1e-12, rel=1e-12)
+        dlam_m = float(r["e1-e2 d(wavelength)/d(field) [nm/(kV/cm)]"]) * 1e-9
+        dnu_GHz = float(r["e1-e2 line d(frequency)/d(field) [GHz/(kV/cm)]"])
+        assert dnu_GHz == pytest.approx(-sc.c / lam_m ** 2 * dlam_m * 1e-9, rel=1e-9, abs=1e-9)
+    # without --unit: the lines' spectral region (8.3 um: micrometres)
+    rc = main(["sweep", str(LWIR), "--vary", "field", "--from", "-5kV/cm", "--to", "5kV/cm",
+               "--points", "3", "--transition", "e1-e2", "--csv", str(csv_file), "--jobs", "1"])
+    assert rc == 0
+    head = csv_file.read_text().splitlines()[0].split(",")
+    assert "e1-e2 wavelength [um]" in head and "e1-e2 line wavelength [um]" in head
+    assert "e1-e2 line d(wavelength)/d(field) [um/(kV/cm)]" in head
 
 
 def test_cli_sweep_range_crossing_invalid(capsys):

@@ -9,6 +9,7 @@ import pytest
 from scipy import constants as sc
 
 from qwell.bands import Band, Piece
+from qwell.cli.json_out import gain_spectrum_json
 from qwell.errors import ParameterError
 from qwell.gain import (
     DEFAULT_LINEWIDTH_MEV,
@@ -169,7 +170,7 @@ def test_single_density_spectrum_and_json():
     assert spec.linewidth_meV == pytest.approx(DEFAULT_LINEWIDTH_MEV)
     # 2ħ/τ with τ = 0.1 ps (CODATA ħ)
     assert DEFAULT_LINEWIDTH_MEV == pytest.approx(2 * sc.hbar / 0.1e-12 / sc.e * 1e3, rel=1e-6)
-    js = spec.to_json()
+    js = gain_spectrum_json(spec)
     for key in ("density_cm2", "peak_gain_cm1", "peak_wavelength_um", "electron_fermi_eV",
                 "hole_fermi_eV", "gain_te_cm1", "active_length_nm", "refractive_index"):
         assert key in js

@@ -33,6 +33,7 @@ from pathlib import Path
 import pytest
 
 from qwell.cli import main
+from qwell.cli.common import MAX_STATE_BYTES
 from qwell.units import RANGES
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -504,3 +505,16 @@ def test_readme_limits_table_is_the_ranges_table():
         if len(cells) == 5 and cells[0] in RANGES:
             rows[cells[0]] = (float(cells[2]), float(cells[3]), cells[4] or "1")
     assert rows == {k: (lo, hi, u) for k, (lo, hi, u, _) in RANGES.items()}
+
+
+def test_state_memory_cap_is_in_bytes_in_code_and_readme(tmp_path, capsys):
+    # the cap on a band's states is a byte estimate; the README's caps table states the
+    # code's limit in bytes (common practice, no source)
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    row = [ln for ln in readme.splitlines() if ln.startswith("| memory of one band's states")]
+    assert len(row) == 1 and f"| {MAX_STATE_BYTES:,} bytes" in row[0]
+    f = tmp_path / "s.yaml"
+    f.write_text(stack_text(thickness="5 um"))
+    assert main(["levels", str(f)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert f"above the limit of {MAX_STATE_BYTES:,} bytes" in err and err.count("\n") == 0

@@ -20,6 +20,8 @@ from ..errors import ConvergenceError, QwellError, StackError, ValidityWarning
 from ..levels import prepare_profile
 from ..materials import load_library
 from ..profile import band_profile
+from ..solvers._transfer import BASE_STEP_NM
+from ..solvers.exact import output_step_nm
 from ..spectral import UNITS, parse_unit
 from ..stack import load_stack
 from ..units import format_exponent
@@ -27,7 +29,8 @@ from ..units import format_exponent
 __all__ = ["EXIT_USAGE", "load", "profile_and_charge", "print_self_consistent", "print_json",
            "print_warnings", "print_stack_warnings",
            "table", "fmt", "unit_text", "add_self_consistent_option", "add_library_option",
-           "add_unit_option", "check_work", "estimate_bound_states", "MAX_BOUND_STATES_PER_BAND",
+           "add_unit_option", "check_work", "estimate_bound_states", "estimate_state_bytes",
+           "MAX_STATE_BYTES",
            "MAX_SOLVED_LAYERS", "locate_error"]
 
 #: Exit status of every user error (bad input, bad option).
@@ -41,10 +44,16 @@ def add_self_consistent_option(parser) -> None:
                              "(also set by 'self_consistent: true' in the stack)")
 
 
-#: Most bound states one band of an accepted stack may hold (a semiclassical count made
-#: before any solve): beyond it the states, envelopes and transitions would need more than
-#: ~1 GB and minutes.  A 1000-period superlattice with one miniband stays below it.
-MAX_BOUND_STATES_PER_BAND = 1500
+#: Most memory [bytes] the states of one band of an accepted stack may take, estimated
+#: before any solve (:func:`estimate_state_bytes`): 256 MiB, about 1,500 states on the
+#: solver's 20,000-point output grid; beyond it the states, envelopes and transitions would
+#: need more than ~1 GB and minutes.
+MAX_STATE_BYTES = 256 * 1024 ** 2
+#: Cladding tail of the output grid on each side, at most [nm] (the exact solver's cap).
+_TAIL_NM = 60.0
+#: Refinement level of sliced (graded, tilted) pieces: 2**level slices per BASE_STEP_NM
+#: (the least the exact solver refines to before it checks the tolerance).
+_SLICE_LEVEL = 2
 #: Most expanded layers a command solves (the loader alone accepts more): the solve time
 #: grows with the layer count, and 2,500 layers stay within ~30 s for ``levels``.
 MAX_SOLVED_LAYERS = 2500
@@ -53,9 +62,11 @@ MAX_SOLVED_LAYERS = 2500
 def estimate_bound_states(band) -> float:
     """Semiclassical count of the bound states of a band (no solve).
 
-    N ≈ (1/π) ∫ sqrt(2 m(z) (E_lim - V(z))) / ħ dz over the stack, with E_lim the lower
-    cladding edge, evaluated at the middle of every piece (common practice, no source:
-    the Bohr-Sommerfeld phase integral).
+    N ≈ Σ ceil((1/π) ∫ sqrt(2 m(z) (E_lim - V(z))) / ħ dz) over each run of pieces below
+    E_lim (a well, or wells with no barrier reaching E_lim between them), E_lim the lower
+    cladding edge, evaluated at the middle of every piece: the Bohr-Sommerfeld phase
+    integral, rounded up per well as the finite square well's count is (common practice,
+    no source).
     """
     starts = np.array([p.z_start_nm for p in band.pieces])
     ends = np.array([p.z_end_nm for p in band.pieces])
@@ -64,12 +75,36 @@ def estimate_bound_states(band) -> float:
     mid = 0.5 * (starts + ends)
     depth = np.maximum(band.confinement_limit_eV - band.potential(mid), 0.0)
     k = np.sqrt(np.abs(band.edge_mass(mid)) * depth / HBAR2_2M0_EV_NM2)
-    return float(np.sum(k * (ends - starts)) / math.pi)
+    phase = k * (ends - starts) / math.pi
+    # runs of consecutive pieces below the limit: one well (or coupled wells) each
+    inside = depth > 0
+    run = np.cumsum(np.concatenate([[inside[0]], inside[1:] & ~inside[:-1]]))
+    per_run = np.bincount(run[inside], weights=phase[inside]) if np.any(inside) else np.zeros(0)
+    return float(np.sum(np.ceil(per_run[per_run > 0] - 1e-9)))
+
+
+def estimate_state_bytes(band, grid_step_nm: float = 0.02) -> tuple[float, float]:
+    """``(bytes, states)``: memory of a band's states with wavefunctions, estimated (no solve).
+
+    bytes = states x (output grid points + 2 x slice boundaries) x 8: each state's sampled
+    envelope on the output grid (:func:`qwell.solvers.exact.output_step_nm`, at most 20,000
+    points plus the cladding tails) and its stored solution at the slice boundaries
+    (two numbers each; a flat piece is one slice, a graded or tilted piece
+    ``max(2, ceil(t / 0.5 nm)) * 4``), in float64; states from
+    :func:`estimate_bound_states`.
+    """
+    n = estimate_bound_states(band)
+    step = output_step_nm(band, grid_step_nm)
+    grid = (band.z_end_nm - band.z_start_nm) / step + len(band.pieces) + 2 * _TAIL_NM / step
+    slices = sum(1 if p.kind == "flat" else
+                 max(2, math.ceil(p.thickness_nm / BASE_STEP_NM)) * 2 ** _SLICE_LEVEL
+                 for p in band.pieces)
+    return n * (grid + 2.0 * (slices + 1)) * 8.0, n
 
 
 def check_work(stack) -> None:
-    """Refuse a stack whose bound-state count (estimated on the flat-band profile) exceeds
-    :data:`MAX_BOUND_STATES_PER_BAND` in any band, before any solve or allocation.
+    """Refuse a stack whose states (estimated on the flat-band profile) would take more than
+    :data:`MAX_STATE_BYTES` in any band, before any solve or allocation.
 
     Raises
     ------
@@ -82,12 +117,13 @@ def check_work(stack) -> None:
                          "layers); expected fewer periods", file=stack.path, key="layers")
     prof = band_profile(stack)
     for name, band in prof.bands.items():
-        n = estimate_bound_states(band)
-        if n > MAX_BOUND_STATES_PER_BAND:
+        nbytes, n = estimate_state_bytes(band)
+        if nbytes > MAX_STATE_BYTES:
             raise StackError(f"the {name.replace('_', ' ')} band would hold about {n:,.0f} bound "
-                             f"states, above the limit of {MAX_BOUND_STATES_PER_BAND:,} (time "
-                             "and memory); expected thinner wells, fewer periods or lighter "
-                             "masses", file=stack.path, key="layers")
+                             f"states taking about {nbytes:,.0f} bytes, above the limit of "
+                             f"{MAX_STATE_BYTES:,} bytes (states x grid points x 8 bytes plus "
+                             "the stored transfer solutions); expected thinner wells, fewer "
+                             "periods or lighter masses", file=stack.path, key="layers")
 
 
 def add_library_option(parser) -> None:

@@ -391,7 +391,7 @@ def cmd_sweep(args) -> int:
         # both files or neither: written to temporary names, renamed when both succeeded
         with OutputGroup(outputs, protect=[args.stack]) as group:
             if args.csv:
-                atomic_write_text(group.path(args.csv), res.to_csv(), protect=[args.stack])
+                atomic_write_text(group.path(args.csv), res.to_csv(args.unit), protect=[args.stack])
             if args.png:
                 res.plot(group.path(args.png), protect=[args.stack], title=stack.name,
                          unit=args.unit)

@@ -21,7 +21,9 @@ __all__ = ["material_list_json", "material_json", "library_json", "library_check
            "miniband_json", "transition_json", "solution_json", "comparison_json", "levels_json",
            "spectrum_json", "design_line_json", "size_json", "sweep_json", "monte_carlo_json", "tolerance_json",
            "phonon_json", "rate_table_json", "radiative_json", "emitter_figure_json",
-           "lifetimes_json", "emitter_pairs_json"]
+           "lifetimes_json", "emitter_pairs_json", "absorption_line_json", "absorption_json",
+           "pass_absorption_json", "interband_pair_json", "gain_table_json", "gain_spectrum_json",
+           "exciton_json"]
 
 
 def _finite(v):
@@ -502,3 +504,130 @@ def tolerance_json(res, unit: str | None = None) -> dict:
                         else monte_carlo_json(res.monte_carlo, e0)),
         "notes": list(res.notes),
     }
+
+
+# ---------------------------------------------------------------------------
+# absorption, gain, excitons (qwell absorption / qwell gain)
+# ---------------------------------------------------------------------------
+def absorption_line_json(line) -> dict:
+    """One :class:`~qwell.absorption.IntersubbandLine`: energies [eV], peak λ [µm], strength,
+    Δn [cm^-2], FWHM [meV], ∫α dE [eV/cm], peak α [cm^-1]."""
+    return {"transition": line.name, "energy_eV": line.energy_eV,
+            "depolarisation_shift_eV": line.depolarisation_shift_eV,
+            "peak_energy_eV": line.peak_energy_eV,
+            "peak_wavelength_um": line.peak_wavelength_um,
+            "oscillator_strength": line.oscillator_strength, "dipole_nm": line.dipole_nm,
+            "population_difference_cm2": line.population_difference_cm2,
+            "linewidth_meV": line.linewidth_meV,
+            "integrated_absorption_eV_per_cm": line.integrated_eV_per_cm,
+            "peak_absorption_cm1": line.peak_absorption_cm1}
+
+
+def absorption_json(res, *, arrays: bool = True) -> dict:
+    """An :class:`~qwell.absorption.IntersubbandAbsorption`: populations, α [cm^-1] peak and
+    integral, sum rule, its lines and (``arrays``) the spectrum."""
+    frac = res.sum_rule_fraction
+    out = {"populations": res.populations,
+           "fermi_level_eV": None if math.isnan(res.fermi_level_eV) else res.fermi_level_eV,
+           "sheet_densities_cm2": dict(res.sheet_densities_cm2),
+           "total_density_cm2": res.total_density_cm2,
+           "temperature_K": res.temperature_K,
+           "active_length_nm": res.active_length_nm,
+           "active_length_rule": res.active_length_rule,
+           "refractive_index": res.refractive_index,
+           "polarisation": "z (TM)",
+           "peak_absorption_cm1": res.peak_absorption_cm1,
+           "peak_energy_eV": res.peak_energy_eV,
+           "peak_wavelength_um": res.peak_wavelength_um,
+           "integrated_absorption_eV_per_cm": res.integrated_eV_per_cm,
+           "sum_rule_eV_per_cm": res.sum_rule_eV_per_cm,
+           "sum_rule_fraction": None if math.isnan(frac) else frac,
+           "lines": [absorption_line_json(ln) for ln in res.lines],
+           "notes": list(res.notes)}
+    if arrays:
+        out["energy_eV"] = res.energy_eV.tolist()
+        out["wavelength_um"] = res.wavelength_um.tolist()
+        out["absorption_cm1"] = res.absorption_cm1.tolist()
+    return out
+
+
+def pass_absorption_json(geo) -> dict:
+    """A :class:`~qwell.absorption.PassAbsorption`: geometry, angle [deg], path factor,
+    thickness [nm] and the absorbed fractions at the peak."""
+    return {"geometry": geo.geometry, "internal_angle_deg": geo.internal_angle_deg,
+            "passes": geo.passes, "path_factor": geo.path_factor,
+            "thickness_nm": geo.thickness_nm,
+            "peak_absorbed_fraction_per_pass": geo.peak_per_pass,
+            "peak_absorbed_fraction_total": geo.peak_total,
+            "polarisation": "p (TM); unpolarised light: half"}
+
+
+def interband_pair_json(pair) -> dict:
+    """An :class:`~qwell.gain.InterbandPair`: edge [eV, µm], overlap, TE/TM, masses [m0],
+    absorption steps [cm^-1]."""
+    return {"pair": pair.name, "edge_eV": pair.edge_eV,
+            "edge_wavelength_um": pair.edge_wavelength_um, "overlap": pair.overlap,
+            "te": pair.te, "tm": pair.tm, "electron_mass_m0": pair.electron_mass_m0,
+            "hole_mass_m0": pair.hole_mass_m0, "reduced_mass_m0": pair.reduced_mass_m0,
+            "step_te_cm1": pair.step_te_cm1, "step_tm_cm1": pair.step_tm_cm1}
+
+
+def gain_table_json(tab, *, arrays: bool = False) -> dict:
+    """A :class:`~qwell.gain.GainTable`: the model, peak gain [cm^-1] and quasi-Fermi levels
+    [eV] per density [cm^-2], transparency, and (``arrays``) the gain spectra."""
+    m = tab.model
+    out = {"polarisation": tab.polarisation,
+           "linewidth_meV": tab.linewidth_meV,
+           "temperature_K": m.temperature_K, "active_length_nm": m.active_length_nm,
+           "active_length_rule": m.active_length_rule,
+           "refractive_index": m.refractive_index, "kane_energy_eV": m.kane_energy_eV,
+           "transparency_density_cm2": _finite(tab.transparency_density_cm2),
+           "pairs": [interband_pair_json(p) for p in m.pairs],
+           "table": [{"density_cm2": float(d), "peak_gain_cm1": float(g),
+                      "peak_energy_eV": float(e), "peak_wavelength_um": float(w),
+                      "electron_fermi_eV": _finite(fc), "hole_fermi_eV": _finite(fv),
+                      "fermi_separation_eV": _finite(fc - fv)}
+                     for d, g, e, w, fc, fv in zip(tab.densities_cm2, tab.peak_gain_cm1,
+                                                   tab.peak_energy_eV, tab.peak_wavelength_um,
+                                                   tab.electron_fermi_eV, tab.hole_fermi_eV)],
+           "notes": list(tab.notes)}
+    if arrays:
+        out["energy_eV"] = tab.energy_eV.tolist()
+        out["gain_te_cm1"] = tab.gain_te_cm1.tolist()
+        out["gain_tm_cm1"] = tab.gain_tm_cm1.tolist()
+    return out
+
+
+def gain_spectrum_json(spec, *, arrays: bool = True) -> dict:
+    """A :class:`~qwell.gain.GainSpectrum` at one density [cm^-2]: quasi-Fermi levels [eV],
+    peak gain [cm^-1], the model's settings and (``arrays``) the spectrum."""
+    def fin(v):
+        return v if math.isfinite(v) else None
+    out = {"density_cm2": spec.density_cm2, "polarisation": spec.polarisation,
+           "electron_fermi_eV": fin(spec.electron_fermi_eV),
+           "hole_fermi_eV": fin(spec.hole_fermi_eV),
+           "fermi_separation_eV": fin(spec.fermi_separation_eV),
+           "peak_gain_cm1": spec.peak_gain_cm1, "peak_energy_eV": spec.peak_energy_eV,
+           "peak_wavelength_um": spec.peak_wavelength_um,
+           "linewidth_meV": spec.linewidth_meV, "temperature_K": spec.temperature_K,
+           "active_length_nm": spec.active_length_nm,
+           "active_length_rule": spec.active_length_rule,
+           "refractive_index": spec.refractive_index, "kane_energy_eV": spec.kane_energy_eV,
+           "pairs": [interband_pair_json(p) for p in spec.pairs], "notes": list(spec.notes)}
+    if arrays:
+        out["energy_eV"] = spec.energy_eV.tolist()
+        out["wavelength_um"] = spec.wavelength_um.tolist()
+        out["gain_te_cm1"] = spec.gain_te_cm1.tolist()
+        out["gain_tm_cm1"] = spec.gain_tm_cm1.tolist()
+    return out
+
+
+def exciton_json(x) -> dict:
+    """An :class:`~qwell.excitons.ExcitonBinding`: binding [meV], radius [nm], pair and exciton
+    energies [eV], wavelength [µm], reduced mass [m0], dielectric constant."""
+    return {"pair": x.name, "binding_meV": x.binding_meV, "radius_nm": x.radius_nm,
+            "pair_energy_eV": x.pair_energy_eV,
+            "exciton_energy_eV": x.exciton_energy_eV,
+            "exciton_wavelength_um": x.exciton_wavelength_um,
+            "reduced_mass_m0": x.reduced_mass_m0,
+            "dielectric_constant": x.dielectric_constant}

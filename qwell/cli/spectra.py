@@ -20,6 +20,8 @@ from ..levels import solve_stack
 from ..spectra_plots import pick_densities, plot_absorption, plot_gain
 from ..units import to_float
 from .common import add_self_consistent_option, load, print_json, table
+from .json_out import (absorption_json, exciton_json, gain_spectrum_json, gain_table_json,
+                       pass_absorption_json)
 
 __all__ = ["register", "cmd_absorption", "cmd_gain", "parse_density", "parse_linewidth",
            "parse_density_range"]
@@ -119,7 +121,8 @@ def cmd_absorption(args) -> int:
         plot_absorption(res, args.png, passes=chosen,
                         title=f"{stack.name}: intersubband absorption", protect=[args.stack])
     if args.json:
-        out = {"stack": stack.name, **res.to_json(), "geometries": [g.to_json() for g in geos]}
+        out = {"stack": stack.name, **absorption_json(res),
+               "geometries": [pass_absorption_json(g) for g in geos]}
         print_json(out)
         return 0
     print(f"{stack.name}  (T = {stack.temperature_K:g} K) — intersubband absorption, light "
@@ -189,11 +192,11 @@ def cmd_gain(args) -> int:
         plot_gain(tab, args.png, indices=idx, title=f"{stack.name}: interband gain",
                   protect=[args.stack], excitons=excitons)
     if args.json:
-        out = {"stack": stack.name, **tab.to_json()}
+        out = {"stack": stack.name, **gain_table_json(tab)}
         if idx_main is not None:
-            out["spectrum"] = tab.spectrum(idx_main).to_json()
+            out["spectrum"] = gain_spectrum_json(tab.spectrum(idx_main))
         if args.excitons:
-            out["excitons"] = [x.to_json() for x in excitons]
+            out["excitons"] = [exciton_json(x) for x in excitons]
             out["excitons_note"] = ("binding energies are a separate correction: the absorption "
                                     "edge and PL peak lie this much below the pair edge; the "
                                     "gain spectrum is not shifted (excitons screened at laser "

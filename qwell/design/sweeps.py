@@ -25,6 +25,10 @@ from .evaluate import (EMITTER_KEYS, LABEL_RE, DesignPoint, bands_for_transition
 
 __all__ = ["SweepResult", "sweep"]
 
+#: What a line in each photon unit measures (CSV headers, ASCII).
+_CSV_MEASURE = {"nm": "wavelength", "um": "wavelength", "cm-1": "wavenumber",
+                "THz": "frequency", "meV": "photon energy"}
+
 # Steps of the "local" (central-difference) sensitivity, in the value's unit.
 _LOCAL_STEP = {"thickness": 0.01, "x": 1e-3, "y": 1e-3, "field": 0.1, "temperature": 0.1}
 
@@ -146,8 +150,17 @@ class SweepResult:
         """The design point at a grid index (``i`` or ``i, j``)."""
         return self.points[int(np.ravel_multi_index(index, self.shape))]
 
-    def to_csv(self) -> str:
-        """One row per grid point: parameters, state energies, transitions."""
+    def to_csv(self, unit: str | None = None) -> str:
+        """One row per grid point: parameters, state energies, transitions.
+
+        After the fixed columns (energies [eV], wavelengths [um] and their
+        sensitivities [nm per step]) each followed line comes again in the photon
+        unit ``unit`` (default :meth:`photon_unit`, the lines' spectral region), with
+        its sensitivity in that unit's spread unit, the unit in the header, e.g.
+        ``e1-e2 line frequency [THz]`` and ``e1-e2 line d(frequency)/d(p) [GHz/nm]``.
+        """
+        u = self.photon_unit(unit)
+        measure = _CSV_MEASURE[u]
         grids = np.meshgrid(*self.values, indexing="ij")
         cols = [(f"{p} [{u}]", g.ravel()) for p, u, g in zip(self.parameters, self.units, grids)]
         for lab in self.state_labels:
@@ -163,6 +176,12 @@ class SweepResult:
                 cols.append((f"{self.emitter_line} {k}", np.asarray(self.emitter[k]).ravel()))
             for lab, v in self.lifetime_ps.items():
                 cols.append((f"{lab} lifetime [ps]", np.asarray(v).ravel()))
+        for t in self.transitions:
+            cols.append((f"{t} line {measure} [{u}]", np.asarray(self.line_in(t, u)).ravel()))
+            for p in self.parameters:
+                per = self.sensitivity_units[p].split("/", 1)[1]
+                cols.append((f"{t} line d({measure})/d({p}) [{spread_unit(u)}/{per}]",
+                             np.asarray(self.sensitivity_in(t, p, u)).ravel()))
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
         w.writerow([c[0] for c in cols])

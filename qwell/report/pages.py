@@ -30,8 +30,10 @@ from ..optics import EXCITON_NOTE
 from ..solvers.results import UNCOUPLED_WIDTH_EV
 from ..spectral import auto_unit, column, format_line, format_spread, spread_unit, unit_label
 from ..units import format_exponent
+from .condense import (LONG_LAYERS, full_list_hint, is_long, shown_states, shown_transitions,
+                       state_groups, transition_groups)
 from .data import ReportData
-from .spectra import spectra_draw, spectra_rows
+from .spectra import absorbing_range_um, spectra_draw, spectra_rows
 from .layout import FigureBlock, Flow, Heading, Item, PageBreak, Paragraph, Table, typeset_pdf
 
 __all__ = [
@@ -193,7 +195,12 @@ def stack_blocks(data: ReportData) -> list:
         headers.insert(8, "doping")
         aligns.insert(8, "l")
     rows = []
+    hidden = _middle_periods(st) if len(st.layers) > LONG_LAYERS else {}
     for L, lp in zip(st.layers, prof.layers):
+        if L.index in hidden:
+            if hidden[L.index]:
+                rows.append(["", "…", hidden[L.index]] + [""] * (len(headers) - 3))
+            continue
         ml = "—" if not lp.monolayer_nm else f"{lp.thickness_nm / lp.monolayer_nm:.2f}"
         comp = "graded" if L.grade is not None else (
             "user-defined" if L.material in (st.user_materials or {}) else _composition_text(L.material))
@@ -211,8 +218,12 @@ def stack_blocks(data: ReportData) -> list:
             row.insert(8, _doping_text(L.doping))
         rows.append(row)
     wrap = (2, len(headers) - 1) + ((8,) if any_doping else ())
+    title = "Layers in growth order"
+    if hidden:
+        title += (f": {len(st.layers) - len(hidden)} of {len(st.layers)} shown (first and last "
+                  "period of each long repeat block)")
     blocks = [Heading("Layer stack"),
-              Table(headers, rows, aligns, wrap=wrap, title="Layers in growth order"),
+              Table(headers, rows, aligns, wrap=wrap, title=title),
               Paragraph("ML: thickness in monolayers of the layer's material (a/2 on (001)). "
                         "Strain: pseudomorphic in-plane strain to the substrate (negative = "
                         "compressive). h_c: Matthews–Blakeslee critical thickness.",
@@ -237,6 +248,25 @@ def stack_blocks(data: ReportData) -> list:
     blocks.append(Table(["setting", "value"], settings, ["l", "l"], wrap=(1,),
                         title="Stack settings", zebra=False))
     return blocks
+
+
+def _middle_periods(st) -> dict:
+    """Layers of a long stack's table left out: index -> '' or, for the first left out of a
+    run, the text of the row standing for the run (repeat blocks of four periods or more keep
+    their first and last period)."""
+    out = {}
+    for rb in sorted(st.repeats, key=lambda b: -b.count * b.layers_per_period):
+        if rb.count < 4:
+            continue
+        lo = rb.first_layer + rb.layers_per_period
+        hi = rb.first_layer + (rb.count - 1) * rb.layers_per_period
+        if any(i in out for i in range(lo, hi)):
+            continue    # inside a run already left out (a nested block)
+        for i in range(lo, hi):
+            out[i] = ""
+        out[lo] = (f"periods 2–{rb.count - 1} of {rb.count}: {hi - lo} layers, each period as "
+                   "the first")
+    return out
 
 
 _PARAM_ROWS = [
@@ -371,8 +401,14 @@ def state_blocks(data: ReportData) -> list:
         for s in lev.states:
             semi_states[s.label] = s
     exact_states = {s.label: s for s in data.exact.states}
+    long = is_long(data.exact)
+    if long:
+        blocks += _state_group_blocks(data)
+    shown = set(shown_states(data.exact, data.chosen)) if long else None
     rows = []
     for r in data.comparison:
+        if shown is not None and r["label"] not in shown:
+            continue
         s = exact_states.get(r["label"])
         w = semi_states.get(r["label"])
         status = ""
@@ -393,7 +429,14 @@ def state_blocks(data: ReportData) -> list:
     if rows:
         blocks.append(Table(["band", "state", "exact\n(eV)", "semiclassical\n(eV)", "diff\n(meV)",
                              "diff\n(%)", "status (exact)", "semiclassical note"], rows,
-                            ["l", "l", "r", "r", "r", "r", "l", "l"], wrap=(6, 7)))
+                            ["l", "l", "r", "r", "r", "r", "l", "l"], wrap=(6, 7),
+                            title="Representative states in full" if long else ""))
+        if long:
+            blocks.append(Paragraph(
+                f"{len(rows)} of {len(data.comparison)} states shown: the bottom, middle and "
+                "top state of each group above, the states of the reviewed lines and their "
+                "neighbours, and the lowest and highest single states. Every state: "
+                f"{full_list_hint(data.stack)}.", size=8))
     else:
         blocks.append(Paragraph("No bound state in any band."))
     blocks.append(Paragraph(
@@ -440,6 +483,34 @@ def state_blocks(data: ReportData) -> list:
     return blocks
 
 
+def _state_group_blocks(data: ReportData) -> list:
+    """A long stack's states per miniband / cluster: count, energy range, representatives."""
+    rows = []
+    n_groups = 0
+    for lev in data.exact.levels.values():
+        for g in state_groups(lev):
+            if g.kind == "single":
+                continue
+            n_groups += 1
+            what = "miniband" if g.kind == "miniband" else "cluster"
+            rows.append([lev.band.replace("_", " "), g.label, what, str(len(g.states)),
+                         f"{g.bottom_eV:.6f}", f"{g.top_eV:.6f}", f"{1e3 * g.width_eV:.4f}",
+                         ", ".join(s.label for s in g.representatives)])
+    n_all = len(data.exact.states)
+    n_in = sum(int(r[3]) for r in rows)
+    blocks = []
+    if rows:
+        blocks.append(Table(["band", "states", "group", "count", "lowest\n(eV)", "highest\n(eV)",
+                             "spread\n(meV)", "shown in full"], rows,
+                            ["l", "l", "l", "r", "r", "r", "r", "l"], wrap=(7,),
+                            title="States grouped per miniband or cluster"))
+    blocks.append(Paragraph(
+        f"Long stack: {n_all} states, {n_in} of them in {n_groups} group(s) (a miniband of a "
+        "repeat block from Bloch's theorem on one period, or a cluster of at least four "
+        "neighbours less than 1 meV apart); the rest are single states.", size=8))
+    return blocks
+
+
 def _table_unit(data: ReportData, lines) -> str:
     """Unit of a table's line column: the user's ``--unit``, else a wavelength in the unit of
     the lines' spectral region (nm below 2 µm, else µm)."""
@@ -462,6 +533,19 @@ def transition_blocks(data: ReportData) -> list:
     chosen = {t.name for t in data.chosen}
     inter = [t for t in trans if t.kind == "intersubband"]
     band = [t for t in trans if t.kind == "interband"]
+    long = is_long(data.exact)
+    if long:
+        blocks.append(Paragraph(
+            f"Long stack: {len(trans)} transitions ({len(inter)} intersubband, {len(band)} "
+            "interband), grouped below by the groups of states they join (see the states "
+            "page); in full only the reviewed lines, their neighbours in energy and the "
+            f"strongest few. Every transition: {full_list_hint(data.stack)}.", size=8))
+    if inter and long:
+        blocks += _transition_group_blocks(data, "intersubband", inter)
+        inter = shown_transitions(inter, data.chosen, data.exact)
+    if band and long:
+        blocks += _transition_group_blocks(data, "interband", band)
+        band = shown_transitions(band, data.chosen, data.exact)
     if inter:
         u = _table_unit(data, inter)
         rows = [[("» " if t.name in chosen else "") + t.name, f"{t.energy_eV:.6f}",
@@ -471,7 +555,8 @@ def transition_blocks(data: ReportData) -> list:
         blocks.append(Table(["transition", "energy\n(eV)", _column_head(u), "wavenumber\n(cm⁻¹)",
                              "frequency\n(THz)", "dipole\n|⟨i|z|j⟩| (nm)", "oscillator\nstrength f"],
                             rows, ["l"] + ["r"] * 6,
-                            title="Intersubband (strongest first)"))
+                            title=_shown_title("Intersubband", long, len(rows),
+                                               data.exact.transitions, "intersubband")))
     if band:
         u = _table_unit(data, band)
         rows = [[("» " if t.name in chosen else "") + t.name, f"{t.energy_eV:.6f}",
@@ -480,7 +565,9 @@ def transition_blocks(data: ReportData) -> list:
                  _f(t.te, ".4f"), _f(t.tm, ".4f"), "yes" if t.strongest else ""] for t in band]
         blocks.append(Table(["transition", "energy\n(eV)", _column_head(u), "wavenumber\n(cm⁻¹)",
                              "overlap\n|⟨e|h⟩|²", "TE", "TM", "Δn = 0"], rows,
-                            ["l"] + ["r"] * 6 + ["l"], title="Interband (strongest first)"))
+                            ["l"] + ["r"] * 6 + ["l"],
+                            title=_shown_title("Interband", long, len(rows),
+                                               data.exact.transitions, "interband")))
     if not trans:
         blocks.append(Paragraph("No transition: fewer than two states connected optically."))
     blocks.append(Paragraph(
@@ -493,6 +580,45 @@ def transition_blocks(data: ReportData) -> list:
     if band:
         blocks.append(Paragraph("Interband: " + EXCITON_NOTE + ".", size=8, color="0.25"))
     return blocks
+
+
+def _shown_title(what: str, long: bool, n_shown: int, transitions, kind: str) -> str:
+    """'Intersubband (strongest first)', or with a long stack 'Intersubband: 12 of 2450
+    shown (strongest first)'."""
+    if not long:
+        return f"{what} (strongest first)"
+    n_all = sum(1 for t in transitions if t.kind == kind)
+    return f"{what}: {n_shown} of {n_all} shown (strongest first)"
+
+
+def _transition_group_blocks(data: ReportData, kind: str, lines) -> list:
+    """A long stack's transitions of one kind per pair of state groups."""
+    groups = transition_groups(data.exact, kind)
+    u = _table_unit(data, lines)
+    head = column(u).split(" ", 1)[0]
+    limit = 16
+    rows = []
+    for g in groups[:limit]:
+        lo, hi = g.low_eV, g.high_eV
+        f = (_f(g.strongest.oscillator_strength, ".4f") if kind == "intersubband"
+             else _f(max(abs(g.strongest.te or 0.0), abs(g.strongest.tm or 0.0)), ".4f"))
+        rows.append([f"{g.initial} → {g.final}", str(len(g.transitions)),
+                     f"{lo:.6f} – {hi:.6f}" if hi - lo > 5e-7 else f"{lo:.6f}",
+                     format_line(hi, u, with_unit=False) + " – " + format_line(lo, u, with_unit=False)
+                     if hi - lo > 5e-7 else format_line(lo, u, with_unit=False),
+                     g.strongest.name, f])
+    strength = "strongest f" if kind == "intersubband" else "strongest\nTE/TM"
+    title = f"{kind.capitalize()} transitions per pair of groups"
+    if len(groups) > limit:
+        title += f" ({limit} of {len(groups)} pairs, strongest first)"
+    return [Table(["from → to", "lines", "energy (eV)", f"{head} ({unit_label(u)})",
+                   "strongest line", strength], rows, ["l", "r", "r", "r", "l", "r"],
+                  wrap=(2, 3), title=title)]
+
+
+#: A long stack's rate table shows at most this many states (rows and columns), and its
+#: line table this many lines.
+_RATE_STATES, _FIGURE_ROWS = 7, 12
 
 
 def _time(t) -> str:
@@ -512,14 +638,25 @@ def lifetime_blocks(data: ReportData) -> list:
     r = lt.rates
     blocks = [Heading("Intersubband lifetimes (LO-phonon scattering)")]
     n = len(r.labels)
+    idx = list(range(n))
+    title = "Scattering times from row to column (ps)"
+    if is_long(data.exact) and n > _RATE_STATES:
+        # a long stack: the rows and columns of the states shown in full on the states page
+        # (the lifetime column still sums over every state)
+        f0 = lt.figure
+        want = set(shown_states(data.exact, data.chosen))
+        if f0 is not None:
+            want.update(f0.line.split("-"))
+        idx = [i for i, lab in enumerate(r.labels) if lab in want][:_RATE_STATES]
+        title += f": {len(idx)} of {n} states (representatives; lifetimes over all {n})"
+    labels = [r.labels[i] for i in idx]
     rows = [[r.labels[i]] + [_SIGMA if i == f else _time(1e12 / w if w > 0 else math.inf)
-                             for f, w in enumerate(r.rate_per_s[i])]
-            + [_time(float(r.lifetime_ps[i]))] for i in range(n)]
+                             for f, w in ((f, r.rate_per_s[i][f]) for f in idx)]
+            + [_time(float(r.lifetime_ps[i]))] for i in idx]
     how = ("thermal average over each subband" if r.thermal
            else "electron at the bottom of the initial subband")
-    blocks.append(Table(["from \\ to"] + list(r.labels) + ["lifetime\n(ps)"], rows,
-                        ["l"] + ["r"] * (n + 1),
-                        title="Scattering times from row to column (ps)"))
+    blocks.append(Table(["from \\ to"] + labels + ["lifetime\n(ps)"], rows,
+                        ["l"] + ["r"] * (len(idx) + 1), title=title))
     blocks.append(Paragraph(f"Emission + absorption of LO phonons of {r.phonon.material} "
                             f"({1e3 * r.phonon.energy_eV:.1f} meV) at T = {r.temperature_K:g} K, "
                             f"{how}; ∞: no scattering.", size=8, color="0.25"))
@@ -537,14 +674,22 @@ def lifetime_blocks(data: ReportData) -> list:
                                   else " No inversion possible on this line: τ_l ≥ τ_ul."),
             size=9))
     if lt.figures:
+        figs = list(lt.figures)
+        title = "All intersubband lines (largest figure of merit first)"
+        if is_long(data.exact) and len(figs) > _FIGURE_ROWS:
+            figs = figs[:_FIGURE_ROWS]
+            title = (f"Intersubband lines: {len(figs)} of {len(lt.figures)} shown (largest "
+                     "figure of merit first)")
         rows = [[x.line, f"{x.wavelength_um:.4f}", _time(x.tau_upper_ps), _time(x.tau_lower_ps),
                  _time(x.tau_upper_lower_ps), _f(x.figure_of_merit_nm2_ps, ".4g"),
                  _f(x.radiative_lifetime_ns, ".4g"), "yes" if x.inversion_possible else "no"]
-                for x in lt.figures]
+                for x in figs]
         blocks.append(Table(["line", "λ\n(µm)", "τ_u\n(ps)", "τ_l\n(ps)", "τ_ul\n(ps)",
                              "z²τ_u(1−τ_l/τ_ul)\n(nm² ps)", "radiative\n(ns)", "inversion"],
-                            rows, ["l"] + ["r"] * 6 + ["l"],
-                            title="All intersubband lines (largest figure of merit first)"))
+                            rows, ["l"] + ["r"] * 6 + ["l"], title=title))
+        if len(figs) < len(lt.figures):
+            blocks.append(Paragraph("Every rate and line: "
+                                    f"{full_list_hint(data.stack, lifetimes=True)}.", size=8))
     for note in tuple(lt.notes) + (tuple(f.notes) if f is not None else ()):
         blocks.append(Paragraph(note, size=8, bullet="•"))
     blocks.append(Paragraph(
@@ -607,7 +752,9 @@ def spectra_blocks(data: ReportData) -> list:
     if rows:
         blocks.append(Table(["quantity", "value"], rows, ["l", "l"], wrap=(1,)))
     if n:
-        blocks.append(FigureBlock(190.0 * n, spectra_draw(spec)))
+        # a long stack: alpha drawn where it absorbs (lines inside a miniband lie at mm)
+        xlim = absorbing_range_um(spec) if is_long(data.exact) else None
+        blocks.append(FigureBlock(190.0 * n, spectra_draw(spec, absorption_xlim_um=xlim)))
     text = []
     if spec.absorption is not None:
         a = spec.absorption

@@ -137,8 +137,25 @@ def spectra_rows(spec: ReportSpectra) -> list:
     return rows
 
 
-def spectra_draw(spec: ReportSpectra):
-    """A ``draw(fig, rect)`` for the report's figure block; one row per part."""
+def absorbing_range_um(spec: ReportSpectra, fraction: float = 0.01):
+    """Wavelength range [µm] where alpha reaches ``fraction`` of its peak, 10 % wider on each
+    side (None without an absorption spectrum): the window a long stack's plot is drawn
+    over, whose millimetre lines inside one miniband would otherwise squeeze the rest."""
+    a = spec.absorption
+    if a is None or not a.absorption_cm1.size:
+        return None
+    alpha = np.abs(np.asarray(a.absorption_cm1, dtype=float))
+    top = float(np.max(alpha))
+    if not top > 0:
+        return None
+    lam = np.asarray(a.wavelength_um, dtype=float)[alpha >= fraction * top]
+    lo, hi = float(np.min(lam)), float(np.max(lam))
+    return max(0.9 * lo, float(np.min(a.wavelength_um))), min(1.1 * hi, float(np.max(a.wavelength_um)))
+
+
+def spectra_draw(spec: ReportSpectra, *, absorption_xlim_um=None):
+    """A ``draw(fig, rect)`` for the report's figure block; one row per part
+    (``absorption_xlim_um``: the wavelength range [µm] of the absorption plot, default all)."""
     def draw(fig, rect):
         left, bottom, width, height = rect
         n = spec.panels
@@ -149,6 +166,8 @@ def spectra_draw(spec: ReportSpectra):
             b = bottom + (n - 1 - row) * (ph + gap)
             ax = fig.add_axes((left + 0.1 * width, b + 0.2 * ph, 0.78 * width, 0.66 * ph))
             draw_absorption(ax, spec.absorption, passes=spec.passes[0])
+            if absorption_xlim_um is not None:
+                ax.set_xlim(*absorption_xlim_um)
             _small(ax, fig)
             ax.set_title("intersubband absorption, only populated subbands absorb", fontsize=8)
             row += 1
