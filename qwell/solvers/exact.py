@@ -674,16 +674,37 @@ def _pole_candidates(band: Band, sl: tr.Slices, xtol: float, top_eV: float | Non
     E_box = E_box[(E_box > lim) & (E_box < e_hi)]
     if E_box.size == 0:
         return np.zeros(0, complex), np.zeros(0), []
-    poles, step, done = _poles(sl, E_box, clad_l, clad_r, xtol, backtrack=_BACKTRACK)
+    # plain secant from every closed-box level; the levels whose secant fails, lands
+    # on a pole found before or on a broad one are searched again by the damped
+    # secant (which stays with the zero nearest to its start); the union is kept
+    poles, step, done = _poles(sl, E_box, clad_l, clad_r, xtol)
+    ok = _in_window(poles, done, lim, top, xtol)
+    first = _distinct(poles, ok, xtol)
+    broad = np.zeros(poles.size, bool)
+    broad[first] = ~_localised(poles[first], lim, slack=1.2)
+    again = np.nonzero(~ok | broad | ~np.isin(np.arange(poles.size), first))[0]
+    if again.size:
+        p2, s2, d2 = _poles(sl, E_box[again], clad_l, clad_r, xtol, backtrack=_BACKTRACK)
+        poles, step = np.concatenate([poles, p2]), np.concatenate([step, s2])
+        ok = np.concatenate([ok, _in_window(p2, d2, lim, top, xtol)])
+    keep = _distinct(poles, ok, xtol)
+    return poles[keep], step[keep], E_box
+
+
+def _in_window(poles, done, lim: float, top: float, xtol: float) -> np.ndarray:
+    """Converged, finite, not growing poles with ``lim < Re E < top``."""
     gamma = -2 * poles.imag
-    ok = (done & np.isfinite(poles) & (gamma > -xtol) & (poles.real > lim) & (poles.real < top))
-    # distinct poles (several closed-box levels may lead to the same pole)
-    cand, cst = [], []
-    for p, s in zip(poles[ok], step[ok]):
-        if all(abs(p - q) > max(1e3 * xtol, 1e-3 * abs(p.imag)) for q in cand):
-            cand.append(p)
-            cst.append(s)
-    return np.array(cand, complex), np.array(cst), E_box
+    return done & np.isfinite(poles) & (gamma > -xtol) & (poles.real > lim) & (poles.real < top)
+
+
+def _distinct(poles, ok, xtol: float) -> np.ndarray:
+    """Indices of the first of each group of equal poles among ``poles[ok]`` (in order)."""
+    out = []
+    for i in np.nonzero(ok)[0]:
+        p = poles[i]
+        if all(abs(p - poles[j]) > max(1e3 * xtol, 1e-3 * abs(p.imag)) for j in out):
+            out.append(i)
+    return np.array(out, dtype=np.int64)
 
 
 def _localised(poles, lim: float, slack: float = 1.0) -> np.ndarray:
