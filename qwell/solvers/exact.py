@@ -41,8 +41,12 @@ Method
 * Quasi-bound states (above the lower cladding): poles of the outgoing-wave
   mismatch in the complex energy plane, started from the real eigenvalues of
   the stack closed at its ends; ``E = E_r - i Gamma/2``, lifetime ``hbar/Gamma``.
+  The search runs on the coarsest slices (a secant from every closed-box
+  level, a damped secant again from the levels whose secant failed, repeated
+  a pole or found a broad one); the poles that may be localised are then
+  followed to finer slices and Richardson-extrapolated like the bound states.
   Only resonances narrow compared with the spacing of their neighbours are
-  kept (localised states).
+  kept (localised states), judged on the refined poles.
 * Minibands: Bloch's theorem on one period, ``cos(q d) = tr(T)/2`` with ``T``
   the period's transfer matrix in the ``(psi, psi'/m)`` basis.  Each gap holds
   exactly one Dirichlet eigenvalue of the period, which brackets every band
