@@ -1,7 +1,7 @@
 """Benchmark of the exact solver on long stacks (prints figures; never asserts).
 
-Run: ``python tests/bench_long.py [--quick] [--timeout SECONDS]``.  Not collected by
-pytest.
+Run: ``python tests/bench_long.py [--quick] [--timeout SECONDS] [--case NAME]``
+(``--case cascade`` runs only that case; names below).  Not collected by pytest.
 
 Every case runs in a fresh Python process (so its peak resident memory is its
 own) with a 3 GB address-space limit and a time-out, and reports
@@ -137,6 +137,11 @@ def main():
              ("superlattice", "energies", SUPERLATTICE, periods),
              ("superlattice", "states", SUPERLATTICE, periods[:3]),
              ("cascade", "states", CASCADE, (10, 30))]
+    if "--case" in sys.argv:
+        only = sys.argv[sys.argv.index("--case") + 1]
+        cases = [c for c in cases if c[0] == only]
+        if not cases:
+            sys.exit(f"bench_long: no case {only!r} (detector, superlattice, cascade)")
     print(f"{'case':<13} {'solve':<9} {'periods':>7} {'states':>6} {'time s':>8} "
           f"{'x ref':>7} {'x 1st':>6} {'peak RSS MB':>11} {'before MB':>9}")
     for name, kind, template, ns in cases:

@@ -292,3 +292,118 @@ def test_progress_line_only_on_a_terminal_and_for_long_solves(monkeypatch):
     assert term.text.startswith("qwell: solving conduction band: 40 bound states")
     assert "expected ~" in term.text and term.text.rstrip().endswith(" s")
     assert term.text.count("\n") == 1
+
+
+# ------------------------------------------------------------ biased cascade
+# a cascade-like stack of our own: 12 InGaAs/InAlAs layers per period under 45 kV/cm
+# (nonparabolic conduction band, every layer tilted)
+_CASCADE_PERIOD = [("In0.52Al0.48As", 4.0), ("In0.53Ga0.47As", 1.5), ("In0.52Al0.48As", 1.1),
+                   ("In0.53Ga0.47As", 4.7), ("In0.52Al0.48As", 1.3), ("In0.53Ga0.47As", 4.0),
+                   ("In0.52Al0.48As", 2.6), ("In0.53Ga0.47As", 3.2), ("In0.52Al0.48As", 1.8),
+                   ("In0.53Ga0.47As", 2.8), ("In0.52Al0.48As", 2.0), ("In0.53Ga0.47As", 2.6)]
+
+
+def _cascade(n_periods):
+    from qwell.profile import band_profile
+    from qwell.stack import stack_from_text
+
+    text = ("name: cascade\ntemperature: 300 K\nsubstrate: InP\nfield: 45 kV/cm\nlayers:\n"
+            "  - {material: In0.52Al0.48As, thickness: 20 nm}\n"
+            f"  - repeat: {n_periods}\n    layers:\n"
+            + "".join(f"      - {{material: {m}, thickness: {t} nm}}\n" for m, t in _CASCADE_PERIOD)
+            + "  - {material: In0.52Al0.48As, thickness: 20 nm}\n")
+    return band_profile(stack_from_text(text)).bands["conduction"]
+
+
+def _converged_pole(band, pole, levels=(5, 6)):
+    """A pole of the sliced problem followed to fine slices, Richardson-extrapolated.
+
+    The secant (tolerance 1e-14 eV) is started at ``pole`` on every level up to the
+    last of ``levels``; the extrapolate (4 p_h/2 - p_h)/3 of the last two removes the
+    h^2 error of the midpoint slices (L. F. Richardson, Phil. Trans. R. Soc. A 210,
+    307 (1911)).
+    """
+    from qwell.solvers.exact import _poles
+
+    cl, cr = _cladding(band, "left"), _cladding(band, "right")
+    p = np.array([pole])
+    raw = {}
+    for lv in range(0, levels[-1] + 1):
+        p, _, done = _poles(tr.build_slices(band, lv), p, cl, cr, 1e-14)
+        assert done[0]
+        raw[lv] = p[0]
+    return (4 * raw[levels[1]] - raw[levels[0]]) / 3
+
+
+@pytest.mark.slow
+def test_biased_cascade_energies_equal_converged_slices():
+    # every state of a 3-period cascade under bias (bound and quasi-bound) equals the
+    # continuum limit of the sliced problem, from much finer slices (h = 0.5 nm / 64)
+    # than the solver stops at, to 0.1 ueV
+    from qwell.solvers.exact import _eigenvalues
+
+    band = _cascade(3)
+    lev = solve_exact(band, wavefunctions=False)
+    bound = np.array([s.carrier_energy_eV for s in lev.states if s.bound])
+    quasi = [s for s in lev.states if not s.bound]
+    assert bound.size >= 5 and len(quasi) >= 10
+    cl, cr = _cladding(band, "left"), _cladding(band, "right")
+    lim = band.confinement_limit_eV
+    fine = []
+    for lv in (5, 6):
+        sl = _slices(band, lv)
+        E, half, iso, _ = _eigenvalues(band, sl, cl, cr, float(np.min(sl.v_eV)) - 1e-6, lim,
+                                       None, 1e-13)
+        assert iso.all()
+        fine.append(E)
+    ref = (4 * fine[1] - fine[0]) / 3  # Richardson (1911), error even in h
+    assert ref.size == bound.size
+    np.testing.assert_allclose(bound, ref, atol=0.1 * UEV, rtol=0)
+    hbar_eV_s = const.hbar / const.e  # CODATA via scipy.constants
+    for s in quasi:
+        gamma = hbar_eV_s / s.lifetime_s if np.isfinite(s.lifetime_s) else 0.0
+        p = _converged_pole(band, s.carrier_energy_eV - 0.5j * gamma)
+        assert s.converged
+        assert abs(s.carrier_energy_eV - p.real) < 0.1 * UEV
+        assert abs(gamma - (-2 * p.imag)) < 0.2 * UEV  # Gamma = -2 Im E
+
+
+def test_biased_cascade_resonances_include_the_previous_search():
+    # the resonance search of before (closed box and undamped secant on the finest
+    # slices of the bound states, refinement from there) finds no localised state
+    # that the present search (coarsest slices, damped secant) misses
+    from qwell.solvers.exact import (_eigenvalues, _localised, _poles, _refine_poles)
+
+    band = _cascade(3)
+    lev = solve_exact(band, wavefunctions=False)
+    got = np.array([s.carrier_energy_eV for s in lev.states if not s.bound])
+    cl, cr = _cladding(band, "left"), _cladding(band, "right")
+    lim = band.confinement_limit_eV
+    sl = _slices(band, 2)  # the level the bound states stop at on this stack
+    top = max(float(np.max(sl.v_eV)), cl[0], cr[0])
+    wall = (top + 1.0, cl[1], np.inf), (top + 1.0, cr[1], np.inf)
+    E_box = _eigenvalues(band, sl, wall[0], wall[1], lim, top, 200, 1e-9)[0]
+    E_box = E_box[(E_box > lim) & (E_box < top)]
+    p, _, done = _poles(sl, E_box, cl, cr, 1e-9)
+    p = p[done & (-2 * p.imag > -1e-9) & (p.real > lim) & (p.real < top)]
+    cand = []
+    for q in p:
+        if all(abs(q - c) > max(1e-6, 1e-3 * abs(q.imag)) for c in cand):
+            cand.append(q)
+    cand = np.array(cand)
+    old = cand[_localised(cand, lim)]
+    old, _ = _refine_poles(band, old, 2, cl, cr, 1e-9, 1e-7)
+    assert old.size >= 10
+    # identification of each previous resonance (their accuracy is checked above)
+    for q in old.real:
+        assert np.min(np.abs(got - q)) < 1 * UEV, q
+
+
+def test_node_count_complete_on_biased_cascades():
+    # oscillation theorem (Sturm-Liouville; Pryce 1993) on the bound states of the
+    # 10- and 30-period (362-layer) cascades under 45 kV/cm
+    for n in (10, 30):
+        band = _cascade(n)
+        lev = solve_exact(band, wavefunctions=False, quasi_bound=False)
+        assert len(lev) >= 5
+        _assert_count_complete(band, lev)

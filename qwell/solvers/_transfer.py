@@ -150,17 +150,10 @@ def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
         h = None
     if lengths is not None:
         h = lengths
+    if np.iscomplexobj(E):
+        return _complex_coefficients(m0, v, g, h, E)
     m = eff_mass(m0, v, g, E) if np.any(np.isfinite(g)) else m0 + 0.0 * E
     q = m * (E - v) / HBAR2_2M0_EV_NM2
-    if np.iscomplexobj(q):
-        # complex energies (resonances): scaled cosh = 1 + expm1(-2x)/2 and
-        # sinh/kappa = -expm1(-2x)/(2 kappa); q/m = (E - V)/C (no complex division)
-        x = np.sqrt(-q) * h
-        em1 = np.expm1(-2.0 * x)
-        a = 1.0 + 0.5 * em1
-        with np.errstate(invalid="ignore", divide="ignore"):
-            s = np.where(np.abs(x) > 1e-8, em1 / (-2.0 * np.where(x == 0, 1, x)), 1.0 - x) * h
-        return a, m * s, (-1.0 / HBAR2_2M0_EV_NM2) * (E - v) * s, a, x
     osc = q > 0
     k = np.sqrt(np.abs(q))
     x = k * h
@@ -188,6 +181,41 @@ def coefficients(sl: Slices, energies, lengths=None, sl_index=None):
             s[osc] = np.sin(xo) / k[osc]
             ls[osc] = 0.0
     return a, m * s, -(q / m) * s, a, ls
+
+
+def _complex_coefficients(m0, v, g, h, E):
+    """:func:`coefficients` at complex energies (resonances), analytic in E.
+
+    Scaled ``cosh = 1 + expm1(-2x)/2`` and ``sinh/kappa = -expm1(-2x)/(2 kappa)``
+    with ``x = kappa h``, ``kappa^2 = m (V - E)/C``; ``q/m = (E - V)/C`` (no
+    complex division by the mass).  Temporaries are reused in place.
+    """
+    de = E - v
+    if np.any(np.isfinite(g)):
+        m = de / g
+        m += 1.0
+        m *= m0  # two-band mass m (1 + (E - V)/Eg), continued analytically
+    else:
+        m = m0 + 0.0 * de
+    x = de * m
+    x *= -1.0 / HBAR2_2M0_EV_NM2
+    np.sqrt(x, out=x)
+    x *= h
+    em1 = np.multiply(x, -2.0)
+    np.expm1(em1, out=em1)
+    a = em1 * 0.5
+    a += 1.0
+    zero = x == 0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        s = em1 / x
+    s *= -0.5
+    if zero.any():
+        s[zero] = 1.0  # sinh(kappa h)/(kappa h) -> 1
+    s *= h
+    de *= s
+    de *= -1.0 / HBAR2_2M0_EV_NM2
+    m *= s
+    return a, m, de, a, x
 
 
 def subset(sl: Slices, lo: int, hi: int) -> Slices:
@@ -286,18 +314,31 @@ def _block_size(n_e: int) -> int:
 
 
 def _reduce(a, b, c, d, *, renorm: bool, track_log: bool):
-    """Pairwise product (later @ earlier) of 2x2 matrices given by components (ns, nE)."""
+    """Pairwise product (later @ earlier) of 2x2 matrices given by components (ns, nE).
+
+    Each level multiplies neighbouring pairs in place of fresh temporaries (an
+    odd last matrix is carried to the next level unchanged, the same numbers as
+    a product with the identity).
+    """
     logs = 0.0
-    while a.shape[0] > 1:
-        if a.shape[0] % 2:
-            one = np.ones((1,) + a.shape[1:], dtype=a.dtype)
-            zero = np.zeros_like(one)
-            a, b, c, d = (np.concatenate([x, y]) for x, y in ((a, one), (b, zero), (c, zero),
-                                                              (d, one)))
-        a0, b0, c0, d0 = a[0::2], b[0::2], c[0::2], d[0::2]
-        a1, b1, c1, d1 = a[1::2], b[1::2], c[1::2], d[1::2]
-        a, b, c, d = (a1 * a0 + b1 * c0, a1 * b0 + b1 * d0, c1 * a0 + d1 * c0,
-                      c1 * b0 + d1 * d0)
+    n = a.shape[0]
+    while n > 1:
+        h2 = 2 * (n // 2)
+        a0, b0, c0, d0 = a[0:h2:2], b[0:h2:2], c[0:h2:2], d[0:h2:2]
+        a1, b1, c1, d1 = a[1:h2:2], b[1:h2:2], c[1:h2:2], d[1:h2:2]
+        na = a1 * a0
+        na += b1 * c0
+        nb = a1 * b0
+        nb += b1 * d0
+        nc = c1 * a0
+        nc += d1 * c0
+        nd = c1 * b0
+        nd += d1 * d0
+        if n % 2:
+            na, nb, nc, nd = (np.concatenate([x, y[-1:]]) for x, y in ((na, a), (nb, b),
+                                                                       (nc, c), (nd, d)))
+        a, b, c, d = na, nb, nc, nd
+        n = a.shape[0]
         if renorm:
             s = np.maximum(np.maximum(np.abs(a), np.abs(b)), np.maximum(np.abs(c), np.abs(d)))
             s = np.where(s > 0, s, 1.0)

@@ -41,8 +41,12 @@ Method
 * Quasi-bound states (above the lower cladding): poles of the outgoing-wave
   mismatch in the complex energy plane, started from the real eigenvalues of
   the stack closed at its ends; ``E = E_r - i Gamma/2``, lifetime ``hbar/Gamma``.
+  The search runs on the coarsest slices (a secant from every closed-box
+  level, a damped secant again from the levels whose secant failed, repeated
+  a pole or found a broad one); the poles that may be localised are then
+  followed to finer slices and Richardson-extrapolated like the bound states.
   Only resonances narrow compared with the spacing of their neighbours are
-  kept (localised states).
+  kept (localised states), judged on the refined poles.
 * Minibands: Bloch's theorem on one period, ``cos(q d) = tr(T)/2`` with ``T``
   the period's transfer matrix in the ``(psi, psi'/m)`` basis.  Each gap holds
   exactly one Dirichlet eigenvalue of the period, which brackets every band
@@ -86,6 +90,8 @@ _MAX_GRID_POINTS = 20000
 _BLOCK = 2_000_000
 #: boundary states of at most this many (boundary, energy) pairs at once
 _STATE_BLOCK = 500_000
+#: step halvings of the damped secant searching poles from closed-box levels
+_BACKTRACK = 4
 
 
 # ---------------------------------------------------------------- helpers
@@ -525,12 +531,15 @@ def _open_mismatch(sl: tr.Slices, E, clad_l, clad_r):
     return -(kr / mr) * p - u
 
 
-def _poles(sl: tr.Slices, starts, clad_l, clad_r, xtol, maxit=80):
+def _poles(sl: tr.Slices, starts, clad_l, clad_r, xtol, maxit=80, backtrack=0):
     """Vectorised secant iteration for complex poles.
 
     ``starts`` are real energies (closed-box levels) or complex pole estimates
     (then the secant starts at the estimate and a point shifted by a small
-    fraction of its width).
+    fraction of its width).  With ``backtrack > 0`` a step longer than
+    ``100 xtol`` that does not decrease ``|f|`` is halved up to ``backtrack``
+    times (a damped secant: it stays with the zero nearest to its start instead
+    of jumping to a distant one).
     """
     s0 = np.asarray(starts, dtype=complex)
     if np.any(s0.imag != 0):
@@ -555,6 +564,13 @@ def _poles(sl: tr.Slices, starts, clad_l, clad_r, xtol, maxit=80):
         x2 = x1[act] + dx
         f2 = _open_mismatch(sl, x2, clad_l, clad_r)
         ia = np.nonzero(act)[0]
+        for _ in range(backtrack):
+            worse = (np.abs(f2) > np.abs(f1[ia])) & (np.abs(dx) > 100 * xtol)
+            if not worse.any():
+                break
+            dx = np.where(worse, 0.5 * dx, dx)
+            x2[worse] = x1[ia[worse]] + dx[worse]
+            f2[worse] = _open_mismatch(sl, x2[worse], clad_l, clad_r)
         x0[ia], f0[ia] = x1[ia], f1[ia]
         x1[ia], f1[ia] = x2, f2
         step[ia] = np.abs(dx)
@@ -639,12 +655,18 @@ def _refine_poles(band: Band, poles, level: int, clad_l, clad_r, xtol: float,
     return best, np.maximum(tol, xtol)
 
 
-def _quasi_bound(band: Band, sl: tr.Slices, xtol: float):
-    """Localised resonances above the confinement limit: (E_complex, step, ok)."""
+def _pole_candidates(band: Band, sl: tr.Slices, xtol: float, top_eV: float | None = None):
+    """Distinct poles above the confinement limit on ``sl``: (E_complex, step, E_box).
+
+    Started from the real eigenvalues of the stack closed at its outer ends by
+    a wall 1 eV above ``top_eV`` (default: the highest potential of ``sl`` and
+    the claddings); poles outside ``(lim, top_eV)``, growing ones and unconverged
+    secants are dropped, and several closed-box levels leading to one pole give
+    one candidate.
+    """
     clad_l, clad_r = _cladding(band, "left"), _cladding(band, "right")
     lim = band.confinement_limit_eV
-    vmax = float(np.max(sl.v_eV))
-    top = max(vmax, clad_l[0], clad_r[0])
+    top = max(float(np.max(sl.v_eV)), clad_l[0], clad_r[0]) if top_eV is None else top_eV
     if top <= lim + 1e-9:
         return np.zeros(0, complex), np.zeros(0), []
     # stack closed at both outer ends by a high decaying wall
@@ -656,26 +678,62 @@ def _quasi_bound(band: Band, sl: tr.Slices, xtol: float):
     E_box = E_box[(E_box > lim) & (E_box < e_hi)]
     if E_box.size == 0:
         return np.zeros(0, complex), np.zeros(0), []
+    # plain secant from every closed-box level; the levels whose secant fails, lands
+    # on a pole found before or on a broad one are searched again by the damped
+    # secant (which stays with the zero nearest to its start); the union is kept
     poles, step, done = _poles(sl, E_box, clad_l, clad_r, xtol)
+    ok = _in_window(poles, done, lim, top, xtol)
+    first = _distinct(poles, ok, xtol)
+    broad = np.zeros(poles.size, bool)
+    broad[first] = ~_localised(poles[first], lim, slack=1.2)
+    again = np.nonzero(~ok | broad | ~np.isin(np.arange(poles.size), first))[0]
+    if again.size:
+        p2, s2, d2 = _poles(sl, E_box[again], clad_l, clad_r, xtol, backtrack=_BACKTRACK)
+        poles, step = np.concatenate([poles, p2]), np.concatenate([step, s2])
+        ok = np.concatenate([ok, _in_window(p2, d2, lim, top, xtol)])
+    keep = _distinct(poles, ok, xtol)
+    return poles[keep], step[keep], E_box
+
+
+def _in_window(poles, done, lim: float, top: float, xtol: float) -> np.ndarray:
+    """Converged, finite, not growing poles with ``lim < Re E < top``."""
     gamma = -2 * poles.imag
-    ok = (done & np.isfinite(poles) & (gamma > -xtol) & (poles.real > lim) & (poles.real < top))
-    # distinct poles (several closed-box levels may lead to the same pole)
-    cand, cst = [], []
-    for p, s in zip(poles[ok], step[ok]):
-        if all(abs(p - q) > max(1e3 * xtol, 1e-3 * abs(p.imag)) for q in cand):
-            cand.append(p)
-            cst.append(s)
-    # localised: narrow compared with the distance to every other pole
-    # (an isolated Breit-Wigner resonance) and with its height above the open edge
-    out, st = [], []
-    for i, p in enumerate(cand):
+    return done & np.isfinite(poles) & (gamma > -xtol) & (poles.real > lim) & (poles.real < top)
+
+
+def _distinct(poles, ok, xtol: float) -> np.ndarray:
+    """Indices of the first of each group of equal poles among ``poles[ok]`` (in order)."""
+    out = []
+    for i in np.nonzero(ok)[0]:
+        p = poles[i]
+        if all(abs(p - poles[j]) > max(1e3 * xtol, 1e-3 * abs(p.imag)) for j in out):
+            out.append(i)
+    return np.array(out, dtype=np.int64)
+
+
+def _localised(poles, lim: float, slack: float = 1.0) -> np.ndarray:
+    """Which poles are localised resonances (boolean mask over ``poles``).
+
+    Narrow compared with the distance to every other pole (an isolated
+    Breit-Wigner resonance) and with its height above the open edge ``lim``:
+    ``Gamma < 0.5 gap`` and ``Gamma < E_r - lim``.  ``slack > 1`` widens both
+    limits by that factor (a superset, for poles not yet refined).
+    """
+    poles = np.asarray(poles, dtype=complex)
+    keep = np.zeros(poles.size, bool)
+    for i, p in enumerate(poles):
         g = -2 * p.imag
-        others = [abs(p.real - q.real) for j, q in enumerate(cand) if j != i]
+        others = [abs(p.real - q.real) for j, q in enumerate(poles) if j != i]
         gap = min(others) if others else np.inf
-        if g < 0.5 * gap and g < (p.real - lim):
-            out.append(p)
-            st.append(cst[i])
-    return np.array(out, complex), np.array(st), E_box
+        keep[i] = g < 0.5 * slack * gap and g < slack * (p.real - lim)
+    return keep
+
+
+def _quasi_bound(band: Band, sl: tr.Slices, xtol: float, top_eV: float | None = None):
+    """Localised resonances above the confinement limit on ``sl``: (E_complex, step, E_box)."""
+    cand, cst, E_box = _pole_candidates(band, sl, xtol, top_eV)
+    keep = _localised(cand, band.confinement_limit_eV)
+    return cand[keep], cst[keep], E_box
 
 
 # ---------------------------------------------------------------- minibands
@@ -883,7 +941,7 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
 
     vmin_carrier, deep_name = _deepest(band)
     levels_E = []   # per level: energies
-    sl = _slices(band, 0)
+    sl = coarse_sl = _slices(band, 0)
     e_lo = min(float(np.min(sl.v_eV)), vmin_carrier) - 1e-6
     progress = None
     if _on_terminal():
@@ -932,11 +990,26 @@ def solve_exact(band: Band, *, tolerance_eV: float = 1e-7, max_states: int | Non
     poles, ptol = np.zeros(0, complex), np.zeros(0)
     if quasi_bound:
         xq = max(min(tolerance_eV / 10, 1e-9), 1e-13)
-        poles, steps, _ = _quasi_bound(band, final_sl, xq)
-        ptol = np.maximum(steps, xq) if len(poles) else steps
-        if not flat and len(poles):
-            poles, ptol = _refine_poles(band, poles, len(levels_E) - 1, clad_l, clad_r, xq,
-                                        tolerance_eV)
+        # the highest potential of the finest slices (the search window of the poles)
+        top = max(float(np.max(final_sl.v_eV)), clad_l[0], clad_r[0])
+        if flat:
+            poles, steps, _ = _quasi_bound(band, coarse_sl, xq, top)
+            ptol = np.maximum(steps, xq) if len(poles) else steps
+        else:
+            # sliced pieces: the poles are found on the coarsest slices and followed
+            # to finer ones (Richardson, as the bound states); the localisation test
+            # is made on the refined poles
+            cand, _, _ = _pole_candidates(band, coarse_sl, xq, top)
+            # only candidates that may pass the test once refined are refined (a
+            # pole moves by far less than 20 % of its width and gap between levels);
+            # the others keep their coarse values as neighbours in the final test
+            maybe = _localised(cand, lim, slack=1.2)
+            poles, ptol = cand[maybe], np.zeros(int(maybe.sum()))
+            if len(poles):
+                poles, ptol = _refine_poles(band, poles, 0, clad_l, clad_r, xq, tolerance_eV)
+                both = np.concatenate([poles, cand[~maybe]])
+                keep = _localised(both, lim)[:poles.size]
+                poles, ptol = poles[keep], ptol[keep]
     if wavefunctions:
         waves, qwaves = _envelopes(band, final_sl, final_E[:E.size], np.real(poles),
                                    output_step_nm(band, grid_step_nm), clad_l, clad_r)
