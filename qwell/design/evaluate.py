@@ -28,9 +28,9 @@ from ..errors import ParameterError, QwellError, QwellWarning
 from ..levels import collect_transitions, depolarised_lines, prepare_profile, solve_profile, \
     wants_self_consistent
 from ..lifetimes import solution_lifetimes
-from ..profile import band_profile
 from ..solvers.batch import solve_bound_many
 from ..stack import stack_from_mapping
+from ..stack_bands import stack_bands
 from ..stack_edit import Parameter, apply_parameters
 
 __all__ = ["DesignPoint", "design_point", "evaluate_many", "bands_for_transitions",
@@ -289,8 +289,7 @@ def _notes_of(caught) -> tuple:
 def _design_bands(stack, bands) -> dict:
     """Band name -> :class:`~qwell.bands.Band` of one flat-band design (the bands asked
     for that every layer defines)."""
-    prof = band_profile(stack)
-    return {b: prof.bands[b] for b in bands if b in prof.bands}
+    return stack_bands(stack, bands)
 
 
 def _batched(stack) -> bool:

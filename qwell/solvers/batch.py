@@ -70,6 +70,8 @@ _MAX_CELLS = 400_000
 _N_GRID = 8
 #: one band alone with at most this many slices takes the scalar path
 _SCALAR_MAX_SLICES = 12
+#: the mismatch steps through at most this many slices one by one (pairwise products beyond)
+_LOOP_MAX_SLICES = 8
 _MIN_MASS_FRACTION = 0.01
 _C = HBAR2_2M0_EV_NM2
 
@@ -97,7 +99,7 @@ class _Rows:
             self.v, self.m, self.g, self.h = (x.tolist() for x in
                                               (sl.v_eV, sl.m_m0, sl.g_eV, sl.h_nm))
             self.sl = sl
-        cl, cr = _cladding(band, "left"), _cladding(band, "right")
+        cl, cr = _claddings(band)
         self.clad = (float(cl[0]), float(cl[1]), float(cl[2]), float(cr[0]), float(cr[1]),
                      float(cr[2]))
         self.lim = float(min(cl[0], cr[0]))
@@ -111,6 +113,26 @@ class _Rows:
         if self.sl is None:
             self.sl = tr.build_slices(self.band, self.level)
         return self.sl
+
+
+def _claddings(band: Band):
+    """(V, m, g) of the left and right claddings, as :func:`qwell.solvers.exact._cladding`
+    gives them (g = inf where parabolic); flat and linear end pieces in plain floats."""
+    first, last = band.pieces[0], band.pieces[-1]
+    if first.kind == "smooth" or last.kind == "smooth":
+        return _cladding(band, "left"), _cladding(band, "right")
+    out = []
+    for p, z in ((first, first.z_start_nm), (last, last.z_end_nm)):
+        v = p.edge_start_eV + p.edge_slope_eV_per_nm * (z - p.z_start_nm)
+        g = math.inf if (p.gap_eV is None or not band.nonparabolic) else float(p.gap_eV)
+        out.append((float(v), float(p.mass_m0), g))
+    return out[0], out[1]
+
+
+def _top_eV(band: Band) -> float:
+    """Highest potential of flat and linear pieces (their ends) [eV]."""
+    return max(max(p.edge_start_eV, p.edge_start_eV + p.edge_slope_eV_per_nm * p.thickness_nm)
+               for p in band.pieces)
 
 
 # ---------------------------------------------------------------- array kernels
@@ -202,6 +224,8 @@ def _mismatch(V, M, G, H, C, J, E):
     a, b, c = a[:, :, 0], b[:, :, 0], c[:, :, 0]
     wl, wr = _clad(C, E2)
     ns = V.shape[1]
+    if ns <= _LOOP_MAX_SLICES:
+        return _mismatch_loop(V, M, G, J, E, a, b, c, wl, wr)
     left = np.arange(ns)[None, :] < J[:, None]
     one, zero = np.ones_like(a), np.zeros_like(a)
     la, lb, lc, ld = _reduce(np.where(left, a, one), np.where(left, b, zero),
@@ -212,6 +236,32 @@ def _mismatch(V, M, G, H, C, J, E):
     wl0, wr0 = wl[:, 0], -wr[:, 0]
     pl, ul = la + lb * wl0, lc + ld * wl0
     pr, ur = ra + rb * wr0, rc + rd * wr0
+    rows = np.arange(V.shape[0])
+    jw = np.minimum(J, ns - 1)
+    vj = V[rows, jw]
+    mj = _mass(M[rows, jw], vj, G[rows, jw], E)
+    w = np.sqrt(_C * mj / np.maximum(np.abs(E - vj), 1e-3))
+    ul, ur = w * ul, w * ur
+    return (pl * ur - ul * pr) / (np.hypot(pl, ul) * np.hypot(pr, ur))
+
+
+def _mismatch_loop(V, M, G, J, E, a, b, c, wl, wr):
+    """:func:`_mismatch` for few slices: both solutions stepped slice by slice."""
+    ns = V.shape[1]
+    pl, ul = np.ones_like(E), wl[:, 0].copy()
+    pr, ur = np.ones_like(E), -wr[:, 0]
+    for j in range(ns):
+        go = j < J
+        p1 = a[:, j] * pl + b[:, j] * ul
+        u1 = c[:, j] * pl + a[:, j] * ul
+        s = np.maximum(np.abs(p1), np.abs(u1))
+        pl, ul = np.where(go, p1 / s, pl), np.where(go, u1 / s, ul)
+        jb = ns - 1 - j
+        back = jb >= J
+        p1 = a[:, jb] * pr - b[:, jb] * ur
+        u1 = -c[:, jb] * pr + a[:, jb] * ur
+        s = np.maximum(np.abs(p1), np.abs(u1))
+        pr, ur = np.where(back, p1 / s, pr), np.where(back, u1 / s, ur)
     rows = np.arange(V.shape[0])
     jw = np.minimum(J, ns - 1)
     vj = V[rows, jw]
@@ -256,7 +306,6 @@ def _solve_group(rows: list, xtol: float, seeds=None):
     H = np.array([r.h for r in rows])
     C = np.array([r.clad for r in rows])
     lim = np.array([r.lim for r in rows])
-    e_lo = np.array([r.e_lo for r in rows])
     D = len(rows)
     pts = _with_seeds(rows, seeds)
     cnt = _count(V, M, G, H, C, pts)
@@ -467,9 +516,8 @@ def _needs_exact(band: Band, quasi_bound: bool, minibands: bool) -> bool:
         return False
     if any(p.kind == "smooth" for p in band.pieces):
         return True  # the top of a smooth piece is only known on its slices
-    lim = band.confinement_limit_eV
-    top = max(max(p.start_potential_eV, p.end_potential_eV) for p in band.pieces)
-    return top > lim + 1e-9
+    cl, cr = _claddings(band)
+    return _top_eV(band) > min(cl[0], cr[0]) + 1e-9
 
 
 def solve_bound_many(bands, *, tolerance_eV: float = 1e-7, wavefunctions: bool = False,
