@@ -479,18 +479,19 @@ def _sliced_eigenvalues(rows: list, xtol: float, scalar: bool, seeds=None):
 def _levels_of(band: Band, E, tol, conv, final_E, final_sl, tolerance_eV, wavefunctions,
                grid_step_nm, notes) -> Levels:
     """A :class:`Levels` of bound states as :func:`solve_exact` writes it."""
-    clad_l, clad_r = _cladding(band, "left"), _cladding(band, "right")
+    clad_l, clad_r = _claddings(band)
     if wavefunctions and E.size:
         waves, _ = _envelopes(band, final_sl, final_E[:E.size], np.zeros(0),
                               output_step_nm(band, grid_step_nm), clad_l, clad_r)
     else:
         waves = [None] * E.size
-    states = tuple(State(band=band.name, label=f"{band.prefix}{i + 1}", index=i + 1,
-                         energy_eV=float(band.profile_energy(E[i])),
-                         carrier_energy_eV=float(E[i]), bound=True, lifetime_s=None,
-                         tolerance_eV=float(tol[i]), converged=bool(conv[i]), envelope=waves[i])
-                   for i in range(E.size))
-    lim = band.confinement_limit_eV
+    sign, name, prefix = band.carrier_sign, band.name, band.prefix
+    states = tuple(State(band=name, label=f"{prefix}{i + 1}", index=i + 1,
+                         energy_eV=float(sign * e), carrier_energy_eV=e, bound=True,
+                         lifetime_s=None, tolerance_eV=t, converged=c, envelope=waves[i])
+                   for i, (e, t, c) in enumerate(zip(E.tolist(), np.asarray(tol).tolist(),
+                                                     np.asarray(conv).tolist())))
+    lim = min(clad_l[0], clad_r[0])
     n = len(states)
     message = f"{n} bound state{'s' if n != 1 else ''}"
     if n == 0:
@@ -505,7 +506,7 @@ def _levels_of(band: Band, E, tol, conv, final_E, final_sl, tolerance_eV, wavefu
     return Levels(band=band.name, method="exact", states=states,
                   converged=all(s.converged for s in states), message=message,
                   notes=tuple(notes), minibands=(), tolerance_eV=tolerance_eV,
-                  confinement_limit_eV=float(band.profile_energy(lim)))
+                  confinement_limit_eV=float(sign * lim))
 
 
 def _needs_exact(band: Band, quasi_bound: bool, minibands: bool) -> bool:
