@@ -281,3 +281,23 @@ def test_no_bound_state_message():
     lev = solve_bound_many([band, band_from_layers([(20.0, 0.3, 0.09), (5.0, 0.0, 0.067),
                                                     (20.0, 0.3, 0.09)])])[0]
     assert len(lev) == 0 and lev.message.startswith("no bound state")
+
+
+def test_long_or_crowded_bands_go_to_the_exact_solver(monkeypatch):
+    # Bands beyond the batch's memory bounds (slices, bound states) are solved by
+    # solve_exact itself: the same answer as solve_exact, next to batched ones.
+    import qwell.solvers.batch as batch
+
+    wide = band_from_layers([(20.0, 0.3, 0.09), (30.0, 0.0, 0.067), (20.0, 0.3, 0.09)])
+    tilted = band_from_layers([(20.0, 0.3, 0.09), (8.0, 0.0, 0.067), (20.0, 0.3, 0.09)],
+                              field_kV_per_cm=10.0)
+    small = band_from_layers([(20.0, 0.3, 0.09), (5.0, 0.0, 0.067), (20.0, 0.3, 0.09)])
+    monkeypatch.setattr(batch, "_MAX_STATES", 3)
+    monkeypatch.setattr(batch, "_MAX_BATCH_SLICES", 150)
+    out = solve_bound_many([wide, tilted, small])
+    for band, lev in zip((wide, tilted), out):
+        ref = solve_exact(band, quasi_bound=False, wavefunctions=False)
+        assert [s.energy_eV for s in lev.states] == [s.energy_eV for s in ref.states]
+    assert len(out[0]) > 3
+    ref = solve_exact(small, quasi_bound=False, wavefunctions=False)
+    assert _maxdiff(_carrier(out[2]), _carrier(ref)) <= 1e-7

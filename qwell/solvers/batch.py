@@ -32,7 +32,9 @@ Only bound states are searched.  A band is handed to
 :func:`~qwell.solvers.exact.solve_exact` unchanged when the batch cannot give
 its answer: resonances asked for (``quasi_bound=True``) and part of the band
 lies above its confinement limit, minibands asked for on a band with repeat
-blocks, or a bracket the batch could not isolate or refine.
+blocks, a long or crowded band (more than ``_MAX_BATCH_SLICES`` slices or
+``_MAX_STATES`` bound states, where the exact solver's streaming passes bound the
+memory and a batch does not pay), or a bracket the batch could not isolate or refine.
 
 Units: eV, nm, m0 (carrier convention of :mod:`qwell.bands`).
 
@@ -66,6 +68,10 @@ __all__ = ["solve_bound_many", "count_bound_many"]
 ROOT_XTOL_EV = 1e-13
 #: a population is cut into sub-batches of at most this many (design, slice, energy) numbers
 _MAX_CELLS = 400_000
+#: bands with more slices, or more bound states, than this are solved by solve_exact
+#: (its streaming passes bound the memory of long stacks; a batch does not pay there)
+_MAX_BATCH_SLICES = 4096
+_MAX_STATES = 64
 #: interior grid points of the first counting pass per design
 _N_GRID = 8
 #: one band alone with at most this many slices takes the scalar path
@@ -311,8 +317,10 @@ def _solve_group(rows: list, xtol: float, seeds=None):
     cnt = _count(V, M, G, H, C, pts)
     n_lo, n_hi = cnt[:, 0], cnt[:, _N_GRID + 1]
     nb = n_hi - n_lo
+    many = nb > _MAX_STATES           # left to the exact solver (bounded memory here)
+    nb = np.where(many, 0, nb)
     K = int(nb.max()) if D else 0
-    out = [(np.zeros(0), True)] * D
+    out = [(np.zeros(0), not m) for m in many]
     if K <= 0:
         return out
     ks = n_lo[:, None] + np.arange(K)[None, :]          # (D, K) wanted index k
@@ -322,8 +330,13 @@ def _solve_group(rows: list, xtol: float, seeds=None):
         order = np.argsort(pts, axis=1, kind="stable")
         P = np.take_along_axis(pts, order, axis=1)
         N = np.maximum.accumulate(np.take_along_axis(cnt, order, axis=1), axis=1)
-        ia = (N[:, None, :] <= ks[:, :, None]).sum(axis=2) - 1     # largest E with N <= k
-        ib = (N[:, None, :] < ks[:, :, None] + 1).sum(axis=2)      # smallest E with N >= k+1
+        # per row: ia = largest E with N <= k, ib = smallest E with N >= k+1, by one
+        # search over all rows (each row's counts offset above the previous row's)
+        off = (np.arange(D) * (int(N.max()) + int(ks.max()) + 4))[:, None]
+        flat = (N + off).ravel()
+        base = (np.arange(D) * N.shape[1])[:, None]
+        ia = np.searchsorted(flat, (ks + off).ravel(), side="right").reshape(D, K) - 1 - base
+        ib = np.searchsorted(flat, (ks + 1 + off).ravel(), side="left").reshape(D, K) - base
         ia = np.clip(ia, 0, P.shape[1] - 1)
         ib = np.clip(ib, 0, P.shape[1] - 1)
         a = np.take_along_axis(P, ia, axis=1)
@@ -355,9 +368,10 @@ def _solve_group(rows: list, xtol: float, seeds=None):
         conv = (h2 - l2) <= 2 * xtol * (1 + 1e-9)
         E[good] = np.where(conv, 0.5 * (l2 + h2), np.nan)
     res = []
+    bounds = np.searchsorted(d_idx, np.arange(D + 1))
     for d in range(D):
-        e = E[d_idx == d]
-        res.append((e, bool(np.all(np.isfinite(e)))))
+        e = E[bounds[d]:bounds[d + 1]]
+        res.append((e, bool(np.all(np.isfinite(e))) and not many[d]))
     return res
 
 
@@ -465,6 +479,10 @@ def _sliced_eigenvalues(rows: list, xtol: float, scalar: bool, seeds=None):
     res = [None] * len(rows)
     groups: dict = {}
     for i, r in enumerate(rows):
+        n_e = _N_GRID + 2 + (0 if seeds is None else len(seeds[i]))
+        if r.n > _MAX_BATCH_SLICES or r.n * n_e > _MAX_CELLS:
+            res[i] = (np.zeros(0), False)     # long stacks: the exact solver's own blocks
+            continue
         groups.setdefault(r.n, []).append(i)
     for n, idx in groups.items():
         step = max(1, _MAX_CELLS // (max(n, 1) * (_N_GRID + 2) * 4))
