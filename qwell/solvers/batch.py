@@ -261,12 +261,14 @@ def _mismatch_loop(V, M, G, J, E, a, b, c, wl, wr):
         p1 = a[:, j] * pl + b[:, j] * ul
         u1 = c[:, j] * pl + a[:, j] * ul
         s = np.maximum(np.abs(p1), np.abs(u1))
+        s = np.where(s > 0, s, 1.0)   # masked-out steps may annihilate a vector
         pl, ul = np.where(go, p1 / s, pl), np.where(go, u1 / s, ul)
         jb = ns - 1 - j
         back = jb >= J
         p1 = a[:, jb] * pr - b[:, jb] * ur
         u1 = -c[:, jb] * pr + a[:, jb] * ur
         s = np.maximum(np.abs(p1), np.abs(u1))
+        s = np.where(s > 0, s, 1.0)
         pr, ur = np.where(back, p1 / s, pr), np.where(back, u1 / s, ur)
     rows = np.arange(V.shape[0])
     jw = np.minimum(J, ns - 1)
@@ -425,12 +427,12 @@ def _mismatch1(r: _Rows, jm: int, e: float) -> float:
     pl, ul = 1.0, wl
     for a, b, c, _ in co[:jm]:
         pl, ul = a * pl + b * ul, c * pl + a * ul
-        s = max(abs(pl), abs(ul))
+        s = max(abs(pl), abs(ul)) or 1.0
         pl, ul = pl / s, ul / s
     pr, ur = 1.0, -wr
     for a, b, c, _ in reversed(co[jm:]):
         pr, ur = a * pr - b * ur, -c * pr + a * ur
-        s = max(abs(pr), abs(ur))
+        s = max(abs(pr), abs(ur)) or 1.0
         pr, ur = pr / s, ur / s
     j = min(jm, r.n - 1)
     vj = r.v[j]
