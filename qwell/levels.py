@@ -24,7 +24,7 @@ from .stack import Stack
 from .units import HC_EV_UM
 
 __all__ = ["Solution", "solve_stack", "solve_profile", "BAND_CHOICES", "depolarised_lines",
-           "shifted_transitions"]
+           "shifted_transitions", "collect_transitions"]
 
 BAND_CHOICES = BAND_NAMES + ("all",)
 
@@ -162,15 +162,26 @@ def solve_profile(profile: Profile, *, bands=None, method: str = "exact",
 
 def _transitions(profile: Profile, levels: Mapping[str, Levels],
                  hole_intersubband: bool = False) -> tuple:
+    return collect_transitions(profile.bands, levels, hole_intersubband)
+
+
+def collect_transitions(bands: Mapping, levels: Mapping[str, Levels],
+                        hole_intersubband: bool = False) -> tuple:
+    """The transitions of solved levels, as :func:`solve_profile` forms them.
+
+    ``bands`` maps band names to the :class:`~qwell.bands.Band` each ``levels``
+    entry was solved on.  Intersubband (conduction; with ``hole_intersubband``
+    also hole) and interband lines, strongest first.
+    """
     out = []
     for b in ("conduction",) + (("heavy_hole", "light_hole") if hole_intersubband else ()):
         if b in levels and len(levels[b]) >= 2:
-            out += optics.intersubband_transitions(levels[b], profile.bands[b])
+            out += optics.intersubband_transitions(levels[b], bands[b])
     if "conduction" in levels and len(levels["conduction"]):
         for hb in ("heavy_hole", "light_hole"):
             if hb in levels and len(levels[hb]):
-                out += optics.interband_transitions(levels["conduction"], profile.bands["conduction"],
-                                                    levels[hb], profile.bands[hb])
+                out += optics.interband_transitions(levels["conduction"], bands["conduction"],
+                                                    levels[hb], bands[hb])
     out.sort(key=lambda t: -optics.strength(t))
     return tuple(out)
 

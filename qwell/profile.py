@@ -272,7 +272,7 @@ def _edges_of(mat, substrate_mat) -> _Edges:
             ec = ec + s.delta_conduction_eV
             ehh = ev + s.delta_heavy_hole_eV
             elh = ev + s.delta_light_hole_eV
-    top = np.nanmax([ehh, elh]) if not (math.isnan(ehh) and math.isnan(elh)) else math.nan
+    top = max((e for e in (ehh, elh) if not math.isnan(e)), default=math.nan)  # NaN-free max
     gap = ec - top if not (math.isnan(ec) or math.isnan(top)) else _nan(mat.band_gap_eV)
     return _Edges(ec, ehh, elh, _nan(mat.electron_mass), _nan(mat.heavy_hole_mass),
                   _nan(mat.light_hole_mass), gap, eps_xx, eps_zz, d_ec, d_hh, d_lh)

@@ -27,6 +27,7 @@ LAYERS = (
     ("strain", "formula"),
     ("stack", "stack_edit", "stack_text"),
     ("bands", "profile", "reference"),
+    ("stack_bands",),           # the solver bands alone, from the profile's layer functions
     ("solvers",),
     ("optics", "poisson", "lifetimes", "carriers", "excitons"),
     ("selfconsistent",),

@@ -456,7 +456,9 @@ def test_read_only_folder(tmp_path):
 @pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])
 def test_interrupt_stops_workers_promptly(sig, tmp_path):
     (tmp_path / "s.yaml").write_text(OK)
-    argv = SWEEP + ["--from", "4nm", "--to", "9nm", "--points", "20000", "--jobs", "2",
+    # 100,000 points (the cap): the batched route sweeps 20,000 in about 3 s, and the
+    # sweep must still be running when the signal comes
+    argv = SWEEP + ["--from", "4nm", "--to", "9nm", "--points", "100000", "--jobs", "2",
                     "--csv", "x.csv"]
     proc = subprocess.Popen([sys.executable, "-m", "qwell.cli", *argv], cwd=tmp_path, env=_env(),
                             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,

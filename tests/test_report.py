@@ -586,7 +586,7 @@ def test_a_design_the_engine_refuses_becomes_a_note(well_report, monkeypatch):
     from qwell.design import evaluate
 
     data = well_report["data"]
-    real = evaluate._solve_design
+    real = evaluate._design_bands
     thinner = data.stack.layers[1].thickness_nm - 1e-6
 
     def refusing(stack, *args, **kw):
@@ -594,7 +594,7 @@ def test_a_design_the_engine_refuses_becomes_a_note(well_report, monkeypatch):
             raise ParameterError("well.thickness: refused for this test")
         return real(stack, *args, **kw)
 
-    monkeypatch.setattr(evaluate, "_solve_design", refusing)
+    monkeypatch.setattr(evaluate, "_design_bands", refusing)
     rows, notes = rp.sensitivity_rows(data.stack, data.chosen, jobs=1)
     by = {(r.layer, r.parameter): r for r in rows}
     ref = {(r.layer, r.parameter): r for r in data.sensitivity}

@@ -25,9 +25,12 @@ import numpy as np
 from .. import parallel
 from ..bands import BAND_NAMES
 from ..errors import ParameterError, QwellError, QwellWarning
-from ..levels import depolarised_lines, prepare_profile, solve_profile
+from ..levels import collect_transitions, depolarised_lines, prepare_profile, solve_profile, \
+    wants_self_consistent
 from ..lifetimes import solution_lifetimes
+from ..solvers.batch import solve_bound_many
 from ..stack import stack_from_mapping
+from ..stack_bands import stack_bands
 from ..stack_edit import Parameter, apply_parameters
 
 __all__ = ["DesignPoint", "design_point", "evaluate_many", "bands_for_transitions",
@@ -268,35 +271,125 @@ def design_point(stack, values: Mapping[str, float] | None = None, *, bands=("co
     >>> round(point.wavelength("e1-e2"), 2)
     8.4
     """
-    values = dict(values or {})
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        try:
-            s = apply_parameters(stack, values)
-            states, trans, bare, emit, lives = _solve_design(
-                s, tuple(bands), wavefunctions, tuple(needed) if needed else None,
-                tolerance_eV, emitter)
-            error = None
-        except QwellError as exc:
-            if not record_errors:
-                raise
-            states, trans, bare, error, emit, lives = (), (), (), str(exc), (), ()
+    return _design_points(stack, [values], bands=bands, wavefunctions=wavefunctions,
+                          needed=needed, tolerance_eV=tolerance_eV, record_errors=record_errors,
+                          emitter=emitter, scalar=True)[0]
+
+
+def _notes_of(caught) -> tuple:
+    """(messages, qwell warning class or None) of recorded warnings, once each."""
     notes, cats = [], []
     for w in caught:
         msg = str(w.message)
         if msg not in notes:
             notes.append(msg)
             cats.append(w.category if issubclass(w.category, QwellWarning) else None)
-    return DesignPoint(values=tuple(values.items()), states=states, transitions=trans,
-                       notes=tuple(notes), warning_categories=tuple(cats), error=error,
-                       bare_transitions=bare, emitter=emit, lifetimes_ps=lives)
+    return tuple(notes), tuple(cats)
+
+
+def _design_bands(stack, bands) -> dict:
+    """Band name -> :class:`~qwell.bands.Band` of one flat-band design (the bands asked
+    for that every layer defines)."""
+    return stack_bands(stack, bands)
+
+
+def _batched(stack) -> bool:
+    """Whether a design goes through the batched solve: not self-consistent (the
+    Schrödinger–Poisson loop solves its own states, one design at a time)."""
+    return not wants_self_consistent(stack)
+
+
+def _design_points(stack, value_sets, *, bands=("conduction",), wavefunctions=False,
+                   needed=None, tolerance_eV=DEFAULT_TOLERANCE_EV, record_errors=False,
+                   emitter=None, scalar=False) -> list:
+    """:class:`DesignPoint` of every parameter set, the flat-band designs solved together.
+
+    Each design is written into the stack and its bands built (one at a time, its
+    warnings recorded with it); then every band asked for is solved for all these
+    designs in one :func:`qwell.solvers.batch.solve_bound_many` call, and the
+    transitions are formed as :func:`qwell.levels.solve_profile` forms them.  With
+    ``needed`` labels only bound states are searched, and a design where a needed
+    state is not bound is solved again with the resonance search (as
+    :func:`_solve_design` does); without ``needed`` the batch answers what the full
+    exact solve answers (bands with room for resonances go to the exact solver).
+    Self-consistent (doped) designs and emitter requests take the one-design route
+    (:func:`_solve_design`).  With ``scalar`` (one design, :func:`design_point`) a
+    small band takes the solver's scalar path; a design gives the same point in
+    any batch, and the scalar path agrees with it to ~1e-13 eV.
+    """
+    bands = tuple(bands)
+    needed = tuple(needed) if needed else None
+    rows = []   # [values, result or None, band map or None, error, caught warnings]
+    for values in value_sets:
+        values = dict(values or {})
+        row = [values, None, None, None, []]
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                s = apply_parameters(stack, values)
+                if emitter is None and _batched(s):
+                    row[2] = _design_bands(s, bands)
+                else:
+                    row[1] = _solve_design(s, bands, wavefunctions, needed, tolerance_eV,
+                                           emitter)
+            except QwellError as exc:
+                if not record_errors:
+                    raise
+                row[3] = str(exc)
+        row[4] = list(caught)
+        rows.append(row)
+    todo = [r for r in rows if r[2] is not None]
+    if todo:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            levels = _solve_batch([r[2] for r in todo], bands, wavefunctions, needed is None,
+                                  tolerance_eV, scalar)
+            if needed:
+                again = [k for k, lev in enumerate(levels)
+                         if not set(needed) <= {st.label for lv in lev.values()
+                                                for st in lv.states}]
+                redo = _solve_batch([todo[k][2] for k in again], bands, wavefunctions, True,
+                                    tolerance_eV, scalar)
+                for k, lev in zip(again, redo):
+                    levels[k] = lev
+        for r, lev in zip(todo, levels):
+            r[4].extend(caught)
+            sts = tuple((st.label, float(st.energy_eV), bool(st.bound))
+                        for b in BAND_NAMES if b in lev for st in lev[b].states)
+            trans = tuple((t.name, float(t.energy_eV), float(t.wavelength_um))
+                          for t in collect_transitions(r[2], lev))
+            r[1] = (sts, trans, (), (), ())
+    out = []
+    for values, res, _, error, caught in rows:
+        notes, cats = _notes_of(caught)
+        states, trans, bare, emit, lives = res if res is not None else ((), (), (), (), ())
+        out.append(DesignPoint(values=tuple(values.items()), states=states, transitions=trans,
+                               notes=notes, warning_categories=cats, error=error,
+                               bare_transitions=bare, emitter=emit, lifetimes_ps=lives))
+    return out
+
+
+def _solve_batch(band_maps, bands, wavefunctions, quasi_bound, tolerance_eV, scalar) -> list:
+    """Levels of every design (band name -> Levels): one batched solve per band."""
+    out = [{} for _ in band_maps]
+    for b in bands:
+        idx = [k for k, m in enumerate(band_maps) if b in m]
+        if not idx:
+            continue
+        levs = solve_bound_many([band_maps[k][b] for k in idx], tolerance_eV=tolerance_eV,
+                                wavefunctions=wavefunctions, quasi_bound=quasi_bound,
+                                scalar=scalar)
+        for k, lev in zip(idx, levs):
+            out[k][b] = lev
+    return out
 
 
 _BASE_CACHE: dict = {}
 
 
 def _eval_chunk(payload, items):
-    """Worker: evaluate a chunk of parameter dicts on the stack rebuilt from its mapping."""
+    """Worker: evaluate a chunk of parameter dicts on the stack rebuilt from its mapping
+    (the chunk's flat-band designs solved in one batch)."""
     raw, file, options = payload
     key = (id(raw), file)
     base = _BASE_CACHE.get(key)
@@ -307,7 +400,7 @@ def _eval_chunk(payload, items):
             _BASE_CACHE[key] = (raw, stack_from_mapping(raw, file=file))
         base = _BASE_CACHE[key]
     stack = base[1]
-    return [design_point(stack, values, **dict(options)) for values in items]
+    return _design_points(stack, items, **dict(options))
 
 
 def emit_warnings(points, stacklevel=3):
