@@ -107,11 +107,20 @@ def test_needed_states_keep_the_lowest_bound_states_with_their_energies():
     st = load_stack(MIDIR)
     point = design.design_point(st, {"w2.thickness": 4.8}, bands=("conduction", "heavy_hole"),
                                 needed=("e1", "e2", "hh1"))
-    assert [lab for lab, _, _ in point.states] == ["e1", "e2", "hh1"]
+    # a flat-band design point is solved by the batched bound-state solver, which finds
+    # every bound state at once (cheap there): the needed ones are among them, and no
+    # resonance is searched
+    labels = [lab for lab, _, _ in point.states]
+    assert {"e1", "e2", "hh1"} <= set(labels)
     full = solve_profile(band_profile(design.apply_parameters(st, {"w2.thickness": 4.8})),
-                         bands=("conduction", "heavy_hole"))
+                         bands=("conduction", "heavy_hole"), tolerance_eV=1e-12)
+    assert labels == [s.label for s in full.states if s.bound]
+    # this stack has graded layers, so each route stops its slice refinement once its
+    # Richardson estimate is inside the design tolerance (DEFAULT_TOLERANCE_EV = 0.1 ueV):
+    # the energies agree with a 1e-12 eV solve to that contract (here ~1.5e-10 eV)
+    from qwell.design.evaluate import DEFAULT_TOLERANCE_EV
     for lab, e, bound in point.states:
         assert bound
-        assert e == pytest.approx(full.state(lab).energy_eV, abs=1e-12)
+        assert e == pytest.approx(full.state(lab).energy_eV, abs=DEFAULT_TOLERANCE_EV)
     assert point.transition_energy("e1-hh1") == pytest.approx(
-        full.transition("e1-hh1").energy_eV, abs=1e-12)
+        full.transition("e1-hh1").energy_eV, abs=2 * DEFAULT_TOLERANCE_EV)
