@@ -99,6 +99,12 @@ _PSI2_PER_NM_TO_CM = 1e7          # |psi|^2 [nm^-1] -> [cm^-1]
 _OCCUPATION_MARGIN_EV = 0.1
 #: Largest overlap accepted between two states of one band in the loop.
 _ORTHOGONALITY_LIMIT = 1e-2
+#: Two states closer than this many solver tolerances may be two copies of one state
+#: (a doublet split by less than the tolerance); farther apart, their overlap is not an
+#: effect of the tolerance (nonparabolic envelopes overlap by ~1e-2 at any tolerance).
+_DOUBLET_SPAN = 100.0
+#: Overlap above which two states look like copies of one state.
+_COPY_OVERLAP = 0.5
 
 
 @dataclass(frozen=True)
@@ -489,25 +495,39 @@ def _solve_bands(profile, band_names, tolerance_eV, fermi_eV=None, margin_eV=Non
         # Near-degenerate doublets (weakly coupled identical wells) can come back as
         # two copies of one localised state when the energy tolerance exceeds their
         # splitting; such states are not orthogonal.  Tighten the tolerance until they are.
+        # Only pairs within _DOUBLET_SPAN tolerances of each other count, and tightening
+        # stops when it no longer lowers the overlap of a pair that does not look like two
+        # copies: energy-dependent (nonparabolic) masses make envelopes of distinct states
+        # overlap by ~1e-2 whatever the tolerance, and chasing that cost full solves at
+        # 1e-14 eV on every iteration.
         tol = opts["tolerance_eV"]
-        while _max_overlap(lev) > _ORTHOGONALITY_LIMIT and tol > 1e-13:
+        overlap = _doublet_overlap(lev, tol)
+        while overlap > _ORTHOGONALITY_LIMIT and tol > 1e-13:
             tol *= 0.1
             lev = solve(band, "exact", **{**opts, "tolerance_eV": tol})
+            before, overlap = overlap, _doublet_overlap(lev, tol)
+            if overlap < _COPY_OVERLAP and overlap > 0.5 * before:
+                break
         memory[b] = tol      # later iterations start from the tolerance that worked
         out[b] = lev
     return out
 
 
-def _max_overlap(levels) -> float:
-    """Largest |<psi_i|psi_j>| (i != j) of the states of one band (0 for fewer than two)."""
+def _doublet_overlap(levels, tolerance_eV: float) -> float:
+    """Largest |<psi_i|psi_j>| over pairs of states of one band closer in energy than
+    ``_DOUBLET_SPAN * tolerance_eV`` (0 when there is no such pair)."""
     states = [s for s in levels.states if s.psi is not None]
     if len(states) < 2:
+        return 0.0
+    e = np.array([s.carrier_energy_eV for s in states])
+    near = np.abs(e[:, None] - e[None, :]) <= _DOUBLET_SPAN * tolerance_eV
+    np.fill_diagonal(near, False)
+    if not near.any():
         return 0.0
     zz = states[0].z_nm
     rows = np.array([np.interp(zz, s.z_nm, s.psi, left=0.0, right=0.0) for s in states])
     gram = np.abs(np.trapezoid(rows[:, None, :] * rows[None, :, :], zz, axis=-1))
-    np.fill_diagonal(gram, 0.0)
-    return float(np.max(gram))
+    return float(np.max(np.where(near, gram, 0.0)))
 
 
 def _method_name(inner_solver: str) -> str:
