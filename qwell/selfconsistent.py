@@ -73,7 +73,7 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -460,6 +460,26 @@ def _interp_fn(z_grid, u):
     return electrostatic_eV
 
 
+def _with_breaks(profile, z_grid):
+    """The profile with the Poisson grid nodes as ``breaks_nm`` of its smooth pieces.
+
+    The electrostatic energy is interpolated linearly between the nodes, so the
+    potential changes slope there and is smooth in between; the semiclassical
+    estimator integrates node to node.
+    """
+    zg = np.asarray(z_grid, dtype=float)
+    bands = {}
+    for name, band in profile.bands.items():
+        pieces = []
+        for p in band.pieces:
+            if p.kind == "smooth":
+                inner = zg[(zg > p.z_start_nm) & (zg < p.z_end_nm)]
+                p = replace(p, breaks_nm=tuple(inner.tolist()))
+            pieces.append(p)
+        bands[name] = replace(band, pieces=tuple(pieces))
+    return replace(profile, bands=bands)
+
+
 def _solve_bands(profile, band_names, tolerance_eV, fermi_eV=None, margin_eV=None,
                  wave_step_nm=0.02, tolerance_memory=None, inner_solver="fd"):
     """Exact bound states with wavefunctions of each band (internal).
@@ -645,7 +665,7 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
     # parabolic finite differences first; with nonparabolicity the exact solver finishes
     solver_now = inner_solver
     for _ in range(max_iterations):
-        profile = band_profile(stack, electrostatic_eV=_interp_fn(z, u))
+        profile = _with_breaks(band_profile(stack, electrostatic_eV=_interp_fn(z, u)), z)
         levels = _solve_bands(profile, band_names, state_tolerance_eV, ef_prev,
                               _OCCUPATION_MARGIN_EV + 40.0 * KB_EV_PER_K * T,
                               wave_step_nm=min(0.05, 0.5 * grid_step_nm),
