@@ -82,6 +82,10 @@ class Piece:
         Local gap for nonparabolicity [eV]; None means parabolic.
     potential_fn, mass_fn, gap_fn : callable or None
         Vectorised functions of z [nm] for 'smooth' pieces.
+    breaks_nm : tuple of float
+        Positions inside a 'smooth' piece [nm] where its functions may change slope
+        (e.g. the nodes of a potential interpolated linearly between grid points);
+        they are smooth between them.  Empty: smooth over the whole piece.
     """
 
     z_start_nm: float
@@ -95,6 +99,7 @@ class Piece:
     potential_fn: ArrayFn | None = field(default=None, compare=False, repr=False)
     mass_fn: ArrayFn | None = field(default=None, compare=False, repr=False)
     gap_fn: ArrayFn | None = field(default=None, compare=False, repr=False)
+    breaks_nm: tuple = field(default=(), compare=False, repr=False)
 
     def __post_init__(self):
         if not self.z_end_nm > self.z_start_nm:

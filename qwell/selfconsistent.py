@@ -73,7 +73,7 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -99,6 +99,12 @@ _PSI2_PER_NM_TO_CM = 1e7          # |psi|^2 [nm^-1] -> [cm^-1]
 _OCCUPATION_MARGIN_EV = 0.1
 #: Largest overlap accepted between two states of one band in the loop.
 _ORTHOGONALITY_LIMIT = 1e-2
+#: Two states closer than this many solver tolerances may be two copies of one state
+#: (a doublet split by less than the tolerance); farther apart, their overlap is not an
+#: effect of the tolerance (nonparabolic envelopes overlap by ~1e-2 at any tolerance).
+_DOUBLET_SPAN = 100.0
+#: Overlap above which two states look like copies of one state.
+_COPY_OVERLAP = 0.5
 
 
 @dataclass(frozen=True)
@@ -454,6 +460,26 @@ def _interp_fn(z_grid, u):
     return electrostatic_eV
 
 
+def _with_breaks(profile, z_grid):
+    """The profile with the Poisson grid nodes as ``breaks_nm`` of its smooth pieces.
+
+    The electrostatic energy is interpolated linearly between the nodes, so the
+    potential changes slope there and is smooth in between; the semiclassical
+    estimator integrates node to node.
+    """
+    zg = np.asarray(z_grid, dtype=float)
+    bands = {}
+    for name, band in profile.bands.items():
+        pieces = []
+        for p in band.pieces:
+            if p.kind == "smooth":
+                inner = zg[(zg > p.z_start_nm) & (zg < p.z_end_nm)]
+                p = replace(p, breaks_nm=tuple(inner.tolist()))
+            pieces.append(p)
+        bands[name] = replace(band, pieces=tuple(pieces))
+    return replace(profile, bands=bands)
+
+
 def _solve_bands(profile, band_names, tolerance_eV, fermi_eV=None, margin_eV=None,
                  wave_step_nm=0.02, tolerance_memory=None, inner_solver="fd"):
     """Exact bound states with wavefunctions of each band (internal).
@@ -489,25 +515,39 @@ def _solve_bands(profile, band_names, tolerance_eV, fermi_eV=None, margin_eV=Non
         # Near-degenerate doublets (weakly coupled identical wells) can come back as
         # two copies of one localised state when the energy tolerance exceeds their
         # splitting; such states are not orthogonal.  Tighten the tolerance until they are.
+        # Only pairs within _DOUBLET_SPAN tolerances of each other count, and tightening
+        # stops when it no longer lowers the overlap of a pair that does not look like two
+        # copies: energy-dependent (nonparabolic) masses make envelopes of distinct states
+        # overlap by ~1e-2 whatever the tolerance, and chasing that cost full solves at
+        # 1e-14 eV on every iteration.
         tol = opts["tolerance_eV"]
-        while _max_overlap(lev) > _ORTHOGONALITY_LIMIT and tol > 1e-13:
+        overlap = _doublet_overlap(lev, tol)
+        while overlap > _ORTHOGONALITY_LIMIT and tol > 1e-13:
             tol *= 0.1
             lev = solve(band, "exact", **{**opts, "tolerance_eV": tol})
+            before, overlap = overlap, _doublet_overlap(lev, tol)
+            if overlap < _COPY_OVERLAP and overlap > 0.5 * before:
+                break
         memory[b] = tol      # later iterations start from the tolerance that worked
         out[b] = lev
     return out
 
 
-def _max_overlap(levels) -> float:
-    """Largest |<psi_i|psi_j>| (i != j) of the states of one band (0 for fewer than two)."""
+def _doublet_overlap(levels, tolerance_eV: float) -> float:
+    """Largest |<psi_i|psi_j>| over pairs of states of one band closer in energy than
+    ``_DOUBLET_SPAN * tolerance_eV`` (0 when there is no such pair)."""
     states = [s for s in levels.states if s.psi is not None]
     if len(states) < 2:
+        return 0.0
+    e = np.array([s.carrier_energy_eV for s in states])
+    near = np.abs(e[:, None] - e[None, :]) <= _DOUBLET_SPAN * tolerance_eV
+    np.fill_diagonal(near, False)
+    if not near.any():
         return 0.0
     zz = states[0].z_nm
     rows = np.array([np.interp(zz, s.z_nm, s.psi, left=0.0, right=0.0) for s in states])
     gram = np.abs(np.trapezoid(rows[:, None, :] * rows[None, :, :], zz, axis=-1))
-    np.fill_diagonal(gram, 0.0)
-    return float(np.max(gram))
+    return float(np.max(np.where(near, gram, 0.0)))
 
 
 def _method_name(inner_solver: str) -> str:
@@ -625,7 +665,7 @@ def solve_self_consistent(stack, *, fermi_level_eV: float | None = None,
     # parabolic finite differences first; with nonparabolicity the exact solver finishes
     solver_now = inner_solver
     for _ in range(max_iterations):
-        profile = band_profile(stack, electrostatic_eV=_interp_fn(z, u))
+        profile = _with_breaks(band_profile(stack, electrostatic_eV=_interp_fn(z, u)), z)
         levels = _solve_bands(profile, band_names, state_tolerance_eV, ef_prev,
                               _OCCUPATION_MARGIN_EV + 40.0 * KB_EV_PER_K * T,
                               wave_step_nm=min(0.05, 0.5 * grid_step_nm),

@@ -7,7 +7,16 @@ published values in tests/test_constants.py).
 
 import warnings
 
+import warnings as _w
+from pathlib import Path
+
 import numpy as np
+from scipy.integrate import quad as _quad
+
+from qwell.constants import HBAR2_2M0_EV_NM2 as HB
+from qwell.levels import prepare_profile
+from qwell.stack import load_stack
+from qwell.solvers.semiclassical import quantisation_phase as _quantisation_phase
 import pytest
 from scipy import special
 from scipy.linalg import eigh_tridiagonal
@@ -499,3 +508,39 @@ def test_nonparabolic_two_separate_wells():
     for s, (e, region) in zip(lev.states, expect):
         assert s.region == region
         assert abs(s.energy_eV - e) < 1e-6
+
+
+@pytest.mark.parametrize("name", ["doped-detector", "parabolic-well"])
+def test_phase_integral_against_quad_on_sampled_profiles(name):
+    # The phase integral Phi = int k dz of every allowed region (the fast fixed-segment
+    # path for smooth pieces) against scipy.integrate.quad of k = sqrt(2 m (E - V)) / hbar
+    # written here (two-band mass m (1 + (E - V) / Eg) where the band is nonparabolic,
+    # clipped at 1 % as in qwell.bands), split at the pieces and their breaks.
+    # Source: the WKB phase integral, L. D. Landau and E. M. Lifshitz, Quantum Mechanics,
+    # 3rd ed. (1977), sec. 48.
+    with _w.catch_warnings():
+        _w.simplefilter("ignore")
+        prof, _ = prepare_profile(load_stack(Path(__file__).parents[1] / "layers" / f"{name}.yaml"))
+    for band in prof.bands.values():
+        v = [float(p.potential(np.array([z]))[0]) for p in band.pieces
+             for z in np.linspace(p.z_start_nm, p.z_end_nm, 201)]
+        e_lo, e_hi = min(v), min(v[0], v[-1])
+        for e in np.linspace(e_lo, e_hi, 9)[1:-1]:
+            for reg in _quantisation_phase(band, [e])[0].regions:
+                ref = 0.0
+                for p in band.pieces:
+                    a, b = max(p.z_start_nm, reg.z_left_nm), min(p.z_end_nm, reg.z_right_nm)
+                    if b <= a:
+                        continue
+
+                    def k(z, p=p, e=e, band=band):
+                        vz = float(p.potential(np.array([z]))[0])
+                        m = float(p.mass(np.array([z]))[0])
+                        g = p.gap(np.array([z])) if band.nonparabolic else None
+                        if g is not None:
+                            m *= max(1.0 + (e - vz) / float(g[0]), 0.01)
+                        return float(np.sqrt(max(e - vz, 0.0) * m / HB))
+                    pts = [a] + [x for x in p.breaks_nm if a < x < b] + [b]
+                    ref += sum(_quad(k, x0, x1, epsabs=1e-14, epsrel=1e-13, limit=200)[0]
+                               for x0, x1 in zip(pts[:-1], pts[1:]))
+                assert reg.phase_integral_rad == pytest.approx(ref, rel=1e-9, abs=1e-12)

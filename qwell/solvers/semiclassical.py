@@ -475,9 +475,245 @@ def _gl_integral(band, piece, lo, hi, energy, sign=1.0):
         n *= 2
 
 
+# ---------------------------------------------------------------------------
+# Phase integral of a smooth element on fixed segments
+# ---------------------------------------------------------------------------
+#: Longest segment of a smooth element [nm] (between the piece's breaks).
+_SEG_MAX_NM = 0.5
+#: Gauss-Legendre nodes per segment (fixed positions: V, m and Eg sampled once).
+_SEG_NODES = 8
+#: Gauss-Legendre nodes per sub-interval of the turning-point tail (in s = sqrt(y - y_t)).
+_TAIL_NODES = 12
+#: A segment is integrated on its fixed nodes when the nearest zero of E - V (linear
+#: extrapolation) lies at least this many segment lengths beyond it.
+_SAFE_LENGTHS = 1.0
+#: Most whole segments the tail takes beyond the turning-point segment.
+_TAIL_SEGMENTS = 6
+#: Breaks this close to an element end are left out [nm].
+_BREAK_SNAP_NM = 1e-5
+_SMOOTH_CACHE: dict = {}
+_SMOOTH_CACHE_MAX = 64
+
+
+def _band_store(cache: dict, band, limit: int) -> dict:
+    """A dict kept for one Band object (looked up by identity, released with it)."""
+    key = id(band)
+    hit = cache.get(key)
+    if hit is not None and hit[0]() is band:
+        return hit[1]
+    store: dict = {}
+    try:
+        ref = weakref.ref(band, lambda r, key=key: (cache.pop(key, None)
+                                                    if cache.get(key, (None,))[0] is r
+                                                    else None))
+    except TypeError:          # not weak-referenceable: nothing kept
+        return store
+    if len(cache) >= limit:
+        cache.pop(next(iter(cache)))
+    cache[key] = (ref, store)
+    return store
+
+
+_GL_NODES: dict = {}
+
+
+def _gl_nodes(n: int):
+    """Gauss-Legendre nodes and weights on [-1, 1] (kept once computed)."""
+    if n not in _GL_NODES:
+        _GL_NODES[n] = gauss_legendre(n)
+    return _GL_NODES[n]
+
+
+class _SmoothTable:
+    """Fixed-node samples of one smooth (monotone) element for its phase integral.
+
+    The element is cut at the piece's ``breaks_nm`` and into segments of at most
+    ``_SEG_MAX_NM``; every segment carries ``_SEG_NODES`` Gauss-Legendre nodes with
+    V, m and Eg sampled once.  Positions are measured as ``y`` from the end where V
+    is highest (the low end of ``E - V``), so the allowed part of the element is
+    ``y_t <= y <= length`` for every energy.
+    """
+
+    def __init__(self, band, el: _Element):
+        p = band.pieces[el.piece]
+        self.piece = p
+        self.rising = el.v_b > el.v_a
+        # breaks closer than _BREAK_SNAP_NM to an end of the element (an extremum found
+        # next to a node of the potential) would leave a sliver of a segment: left out
+        inner = sorted(b for b in p.breaks_nm
+                       if el.z_a + _BREAK_SNAP_NM < b < el.z_b - _BREAK_SNAP_NM)
+        edges = np.array([el.z_a] + inner + [el.z_b])
+        # every interval between breaks cut into n equal segments of at most _SEG_MAX_NM
+        n = np.maximum(1, np.ceil(np.diff(edges) / _SEG_MAX_NM - 1e-9)).astype(int)
+        start = np.repeat(edges[:-1], n)
+        frac = (np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n)) / np.repeat(n, n)
+        zb = np.append(start + frac * np.repeat(np.diff(edges), n), el.z_b)
+        vb = p.potential(zb)
+        vb[0], vb[-1] = el.v_a, el.v_b
+        x, w = _gl_nodes(_SEG_NODES)
+        h = np.diff(zb)
+        zn = zb[:-1, None] + h[:, None] * (0.5 * (x + 1.0))[None, :]
+        wn = h[:, None] * (0.5 * w)[None, :]
+        if self.rising:                  # order everything from the high-V end
+            zb, vb = zb[::-1].copy(), vb[::-1].copy()
+            zn, wn = zn[::-1].copy(), wn[::-1].copy()
+        self.z_low = float(zb[0])
+        self.dir = -1.0 if self.rising else 1.0          # z = z_low + dir * y
+        self.yb = np.abs(zb - zb[0])
+        self.vb = vb
+        self.v_nodes = p.potential(zn)
+        self.c_nodes = p.mass(zn) / HBAR2_2M0_EV_NM2     # m / (hbar^2 / 2 m0)
+        g = p.gap(zn) if band.nonparabolic else None
+        self.invg_nodes = None if g is None else 1.0 / g
+        self.w_nodes = wn
+        xt, wt = _gl_nodes(_TAIL_NODES)
+        self.tail_x = 0.5 * (xt + 1.0)
+        self.tail_w = 0.5 * wt
+
+    def _k(self, u, c, invg):
+        """Wave number [1/nm] from E - V [eV], m / (hbar^2/2m0) and 1/Eg (or None)."""
+        if invg is not None:
+            c = c * np.fmax(1.0 + u * invg, _MIN_MASS_FRACTION)
+        return np.sqrt(np.fmax(u, 0.0) * c)
+
+    def phase(self, band, el: _Element, energy: np.ndarray) -> np.ndarray:
+        """int k dz over the allowed part of the element for every energy."""
+        energy = np.asarray(energy, dtype=float)
+        out = np.zeros(energy.shape)
+        ub = energy[:, None] - self.vb[None, :]          # E - V at the segment bounds
+        some = ub[:, -1] > 0.0
+        if not np.any(some):
+            return out
+        idx = np.nonzero(some)[0]
+        e = energy[idx]
+        ub = ub[idx]
+        yb = self.yb
+        nseg = len(yb) - 1
+        # turning point (the low end itself where the element is allowed there)
+        partial = ub[:, 0] <= 0.0
+        jt = np.clip(np.sum(ub <= 0.0, axis=1) - 1, 0, nseg - 1)
+        y_t = np.zeros(len(e))
+        if np.any(partial):
+            w = np.nonzero(partial)[0]
+            y_t[w] = self._turning(e[w], jt[w], ub[w, jt[w]], ub[w, jt[w] + 1])
+            jt = np.clip(np.searchsorted(yb, y_t, side="right") - 1, 0, nseg - 1)
+        # where the element is allowed at its low end: a virtual turning point by linear
+        # extrapolation of E - V over the first segment, when it lies close beyond it
+        du0 = ub[:, 1] - ub[:, 0]
+        near0 = ~partial & (du0 > 0.0) & (ub[:, 0] < _SAFE_LENGTHS * du0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            y_virtual = -ub[:, 0] / du0 * (yb[1] - yb[0])
+        y_zero = np.where(partial, y_t, np.where(near0, y_virtual, 0.0))
+        has_tail = partial | near0
+        # whole segments after the turning-point segment whose extrapolated zero of E - V
+        # is close: they join the tail (at most _TAIL_SEGMENTS of them)
+        seg = np.arange(nseg)
+        du = ub[:, 1:] - ub[:, :-1]
+        unsafe = (ub[:, :-1] < _SAFE_LENGTHS * du) & (seg[None, :] > jt[:, None])
+        run = np.zeros(len(e), dtype=int)
+        alive = has_tail.copy()
+        for k in range(1, _TAIL_SEGMENTS + 1):
+            col = np.clip(jt + k, 0, nseg - 1)
+            alive &= (jt + k < nseg) & unsafe[np.arange(len(e)), col]
+            run += alive
+        last = np.where(has_tail, jt + run, -1)            # last segment inside the tail
+        # fixed-node part: segments after the tail
+        first = int(np.min(last)) + 1
+        if first < nseg:
+            u = e[:, None, None] - self.v_nodes[None, first:, :]
+            invg = None if self.invg_nodes is None else self.invg_nodes[None, first:, :]
+            k = self._k(u, self.c_nodes[None, first:, :], invg)
+            per_seg = np.einsum("esn,sn->es", k, self.w_nodes[first:])
+            keep = seg[None, first:] > last[:, None]
+            out[idx] = np.sum(np.where(keep, per_seg, 0.0), axis=1)
+        if np.any(has_tail):
+            t = np.nonzero(has_tail)[0]
+            out[idx[t]] += self._tail(y_zero[t], jt[t], last[t], e[t], partial[t])
+        return out
+
+    def _turning(self, energy, j, f_a, f_b):
+        """y of the turning point inside segment j (E - V from f_a <= 0 to f_b > 0).
+
+        Illinois iteration on the true V - E from the bracket of the segment bounds
+        (one step where V is linear between breaks), to 1e-13 of the position.
+        """
+        p = self.piece
+        a, b = self.yb[j], self.yb[j + 1]
+        fa, fb = -f_a, -f_b                      # V - E: >= 0 at a, < 0 at b
+        side = np.zeros_like(a)
+        tol = 1e-13 * max(1.0, abs(p.z_start_nm), abs(p.z_end_nm))
+        c = a
+        for _ in range(100):
+            with np.errstate(divide="ignore", invalid="ignore"):
+                c = b - fb * (b - a) / (fb - fa)
+            c = np.where(np.isfinite(c), np.clip(c, a, b), 0.5 * (a + b))
+            fc = p.potential(self.z_low + self.dir * c) - energy
+            keep_b = fc > 0.0                     # c replaces a (still not allowed)
+            a, fa, b, fb, side = _illinois_update(a, fa, b, fb, c, fc, keep_b, side)
+            if np.all((np.abs(b - a) < tol) | (fc == 0.0)):
+                break
+        return c
+
+    def _tail(self, y_zero, jt, last, energy, partial):
+        """int k dz from the turning point (real or virtual) to the end of segment ``last``.
+
+        With ``y = y_zero + L s^2`` the square root of E - V at the turning point
+        becomes a factor s that cancels against dy = 2 L s ds, so the integrand is
+        smooth in s on every sub-interval between segment bounds.
+        """
+        yb = self.yb
+        n = len(energy)
+        width = _TAIL_SEGMENTS + 1
+        # sub-interval edges in y: start (the turning point or the low end), then the
+        # segment bounds up to the end of segment `last`
+        cols = jt[:, None] + 1 + np.arange(width)[None, :]
+        ends = yb[np.minimum(cols, len(yb) - 1)]
+        y_end = yb[last + 1]
+        ends = np.minimum(ends, y_end[:, None])
+        start = np.where(partial, y_zero, yb[jt])
+        edges = np.concatenate([start[:, None], ends], axis=1)     # (n, width + 1)
+        L = y_end - y_zero
+        with np.errstate(divide="ignore", invalid="ignore"):
+            s = np.sqrt(np.clip((edges - y_zero[:, None]) / L[:, None], 0.0, 1.0))
+        s_lo, s_hi = s[:, :-1], s[:, 1:]
+        ds = s_hi - s_lo                                            # 0 for padding
+        sn = s_lo[:, :, None] + ds[:, :, None] * self.tail_x[None, None, :]
+        y = y_zero[:, None, None] + L[:, None, None] * sn * sn
+        z = self.z_low + self.dir * y
+        zf = z.reshape(n, -1)
+        ef = np.broadcast_to(energy[:, None], zf.shape)
+        p = self.piece
+        zc = np.clip(zf, p.z_start_nm, p.z_end_nm)
+        kf = _k_piece(self, p, zc, ef)
+        integrand = kf.reshape(z.shape) * (2.0 * L[:, None, None] * sn)
+        return np.sum(integrand * (ds[:, :, None] * self.tail_w[None, None, :]), axis=(1, 2))
+
+
+def _k_piece(table, piece, z, energy):
+    """Wave number [1/nm] of a piece at positions z (true functions of z)."""
+    u = energy - piece.potential(z)
+    c = piece.mass(z) / HBAR2_2M0_EV_NM2
+    g = piece.gap(z) if table.invg_nodes is not None else None
+    return table._k(u, c, None if g is None else 1.0 / g)
+
+
+def _smooth_phase(band, el: _Element, energy: np.ndarray) -> np.ndarray:
+    """int k dz over the allowed part of a smooth element (see :class:`_SmoothTable`)."""
+    if not np.any(energy > min(el.v_a, el.v_b)):
+        return np.zeros(np.shape(energy))
+    store = _band_store(_SMOOTH_CACHE, band, _SMOOTH_CACHE_MAX)
+    key = (el.piece, el.z_a, el.z_b)
+    table = store.get(key)
+    if table is None:
+        table = store[key] = _SmoothTable(band, el)
+    return table.phase(band, el, energy)
+
+
 def _element_phase(band, el: _Element, energy: np.ndarray):
     """int k dz over the allowed part of one element (vectorised)."""
     p = band.pieces[el.piece]
+    if el.kind == "smooth":
+        return _smooth_phase(band, el, energy), True
     if el.kind == "flat":
         m = _piece_mass(band, p, np.full_like(energy, el.z_a), energy)
         k = np.sqrt(np.maximum(energy - el.v_a, 0.0) * m / HBAR2_2M0_EV_NM2)
