@@ -268,8 +268,18 @@ def spectral_to_eV(value) -> float:
     Raises
     ------
     UnitError
-        If the value is none of these.
+        If the value is none of these, or its photon energy is outside
+        ``RANGES['photon_energy']``.
     """
+    energy_eV = _spectral_eV(value)
+    bad = out_of_range("photon_energy", energy_eV)
+    if bad:
+        raise UnitError(f"{value!r} {bad}")
+    return energy_eV
+
+
+def _spectral_eV(value) -> float:
+    """:func:`spectral_to_eV` without the range check."""
     fast = _plain_spectral_eV(value)
     if fast is not None:
         return fast
@@ -356,6 +366,8 @@ RANGES: dict[str, tuple[float, float, str, str]] = {
     "temperature": (1e-3, 1000.0, "K", "a temperature"),
     "field": (-2000.0, 2000.0, "kV/cm", "an electric field"),
     "fermi_level": (-20.0, 20.0, "eV", "a Fermi level"),
+    # 0.1 meV (24 GHz, 12.4 mm) to 20 eV (62 nm): every photon a quantum-well line can give
+    "photon_energy": (1e-4, 20.0, "eV", "a photon energy (wavelength 62 nm to 12.4 mm)"),
 }
 
 #: Material parameter fields (``materials.USER_KEYS``) -> their range name.

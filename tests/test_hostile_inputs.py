@@ -520,3 +520,23 @@ def test_state_memory_cap_is_in_bytes_in_code_and_readme(tmp_path, capsys):
     assert main(["levels", str(f)]) == 2
     err = capsys.readouterr().err.strip()
     assert f"above the limit of {MAX_STATE_BYTES:,} bytes" in err and err.count("\n") == 0
+
+
+@pytest.mark.parametrize("target", ["9 parsec", "1e-9 nm", "1e-12 THz", "500 eV"])
+def test_target_outside_the_photon_range_is_refused_with_its_place(tmp_path, capsys, target):
+    # a design target is a photon a quantum-well line can give: 0.1 meV to 20 eV
+    # (qwell.units.RANGES['photon_energy']; common practice, no source)
+    stack = tmp_path / "s.yaml"
+    stack.write_text("name: x\n"
+                     f"line: {{transition: e1-e2, target: {target}}}\n"
+                     "layers:\n"
+                     "  - {material: Al0.3Ga0.7As, thickness: 20 nm}\n"
+                     "  - {material: GaAs, thickness: 5 nm}\n"
+                     "  - {material: Al0.3Ga0.7As, thickness: 20 nm}\n")
+    assert main(["levels", str(stack)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0
+    assert f"{stack}:2: line.target:" in err and "0.0001 to 20 eV" in err
+    assert main(["size", "layers/lwir-detector.yaml", "--vary", "well.thickness",
+                 "--target", target.replace(" ", "")]) == 2
+    assert "0.0001 to 20 eV" in capsys.readouterr().err
