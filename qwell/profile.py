@@ -411,6 +411,93 @@ def _layer_material_fn(stack, layer):
     return at, name, False
 
 
+def solver_bands(stack, funcs, starts_nm, slope_eV_per_nm: float, electrostatic_eV=None,
+                 names=BAND_NAMES) -> dict:
+    """Band name -> :class:`~qwell.bands.Band` from the layers' edge functions.
+
+    The one builder of solver bands: :func:`band_profile` and
+    :func:`qwell.stack_bands.stack_bands` (bands only, for design evaluations) both
+    call it.  A band is left out when some layer does not define its edge and mass.
+
+    Parameters
+    ----------
+    stack : qwell.stack.Stack
+    funcs : sequence of _LayerFunctions
+        Each layer's edge functions, in growth order.
+    starts_nm : sequence of float
+        Each layer's start [nm].
+    slope_eV_per_nm : float
+        Potential slope of the applied field [eV/nm].
+    electrostatic_eV : callable, optional
+        Electrostatic potential energy of an electron [eV] at z [nm] (the
+        Schrödinger–Poisson loop); every layer is then a smooth piece.
+    names : sequence of str
+        The bands wanted.
+    """
+    labels = tuple(layer.label for layer in stack.layers)
+    repeats = tuple(
+        RepeatInfo(z_start_nm=starts_nm[r.first_layer],
+                   period_nm=sum(stack.layers[r.first_layer + k].thickness_nm
+                                 for k in range(r.layers_per_period)),
+                   count=r.count, first_layer=r.first_layer, layers_per_period=r.layers_per_period)
+        for r in stack.repeats)
+    slope = slope_eV_per_nm
+    bands = {}
+    for bname in BAND_NAMES:
+        if bname not in names:
+            continue
+        e_attr, m_attr, sign = _BAND_ATTRS[bname]
+        if not all(f.defined(e_attr) and f.defined(m_attr) for f in funcs):
+            continue
+        nonpar = bool(stack.nonparabolicity) and bname == "conduction"
+        pieces = []
+        for i, f in enumerate(funcs):
+            has_gap = nonpar and f.defined("gap")
+            if f.uniform and electrostatic_eV is None:
+                c = f.const
+                pieces.append(Piece(z_start_nm=f.z0, z_end_nm=f.z1, layer_index=i,
+                                    kind="flat" if slope == 0 else "linear",
+                                    edge_start_eV=sign * (getattr(c, e_attr) + slope * f.z0),
+                                    edge_slope_eV_per_nm=sign * slope,
+                                    mass_m0=getattr(c, m_attr),
+                                    gap_eV=c.gap if has_gap else None))
+            else:
+                pieces.append(Piece(z_start_nm=f.z0, z_end_nm=f.z1, layer_index=i, kind="smooth",
+                                    potential_fn=_Potential(f, e_attr, sign, slope,
+                                                            electrostatic_eV),
+                                    mass_fn=_Value(f, m_attr),
+                                    gap_fn=_Value(f, "gap") if has_gap else None))
+        bands[bname] = Band(name=bname, pieces=tuple(pieces), carrier_sign=sign,
+                            nonparabolic=nonpar, repeats=repeats, layer_names=labels)
+    return bands
+
+
+class _Value:
+    """One attribute of a layer's edge functions, as a function of z [nm]."""
+
+    def __init__(self, f, attr):
+        self.f, self.attr = f, attr
+
+    def __call__(self, z):
+        return self.f.value(self.attr, z)
+
+
+class _Potential:
+    """Carrier potential of a smooth piece: ``sign * (edge(z) + slope z [+ electrostatic(z)])``
+    [eV]."""
+
+    def __init__(self, f, attr, sign, slope, electrostatic_eV=None):
+        self.f, self.attr, self.sign, self.slope = f, attr, sign, slope
+        self.electrostatic_eV = electrostatic_eV
+
+    def __call__(self, z):
+        zz = np.asarray(z, dtype=float)
+        v = self.f.value(self.attr, z) + self.slope * zz
+        if self.electrostatic_eV is not None:
+            v = v + self.electrostatic_eV(zz)
+        return self.sign * v
+
+
 def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] | None = None,
                  sample_step_nm: float = 0.05) -> Profile:
     """Turn a :class:`~qwell.stack.Stack` into band-edge profiles.
@@ -502,45 +589,8 @@ def band_profile(stack, *, electrostatic_eV: Callable[[np.ndarray], np.ndarray] 
         z = z1
 
     # -- bands ----------------------------------------------------------------
-    bands = {}
-    labels = tuple(lp.label for lp in layer_profiles)
-    repeats = tuple(
-        RepeatInfo(z_start_nm=layer_profiles[r.first_layer].start_nm,
-                   period_nm=sum(stack.layers[r.first_layer + k].thickness_nm
-                                 for k in range(r.layers_per_period)),
-                   count=r.count, first_layer=r.first_layer, layers_per_period=r.layers_per_period)
-        for r in stack.repeats)
-    for bname in BAND_NAMES:
-        e_attr, m_attr, sign = _BAND_ATTRS[bname]
-        if not all(f.defined(e_attr) and f.defined(m_attr) for f in funcs):
-            continue
-        nonpar = bool(stack.nonparabolicity) and bname == "conduction"
-        pieces = []
-        for i, f in enumerate(funcs):
-            has_gap = nonpar and f.defined("gap")
-            if f.uniform and electrostatic_eV is None:
-                c = f.const
-                v0 = sign * (getattr(c, e_attr) + slope * f.z0)
-                pieces.append(Piece(z_start_nm=f.z0, z_end_nm=f.z1, layer_index=i,
-                                    kind="flat" if slope == 0 else "linear",
-                                    edge_start_eV=v0, edge_slope_eV_per_nm=sign * slope,
-                                    mass_m0=getattr(c, m_attr),
-                                    gap_eV=c.gap if has_gap else None))
-            else:
-                def pot(zz, _f=f, _a=e_attr, _s=sign):
-                    v = _f.value(_a, zz) + slope * np.asarray(zz, dtype=float)
-                    if electrostatic_eV is not None:
-                        v = v + electrostatic_eV(np.asarray(zz, dtype=float))
-                    return _s * v
-
-                def mass(zz, _f=f, _a=m_attr):
-                    return _f.value(_a, zz)
-
-                gap = (lambda zz, _f=f: _f.value("gap", zz)) if has_gap else None
-                pieces.append(Piece(z_start_nm=f.z0, z_end_nm=f.z1, layer_index=i, kind="smooth",
-                                    potential_fn=pot, mass_fn=mass, gap_fn=gap))
-        bands[bname] = Band(name=bname, pieces=tuple(pieces), carrier_sign=sign,
-                            nonparabolic=nonpar, repeats=repeats, layer_names=labels)
+    bands = solver_bands(stack, funcs, [lp.start_nm for lp in layer_profiles], slope,
+                         electrostatic_eV)
 
     # -- samples: computed on first access ----------------------------------------
     prof = Profile(stack=stack, layers=tuple(layer_profiles), bands=bands,

@@ -13,12 +13,10 @@ Units: eV, nm, m0 (carrier convention of :mod:`qwell.bands`).
 
 from __future__ import annotations
 
-import numpy as np
-
-from .bands import BAND_NAMES, Band, Piece, RepeatInfo
+from .bands import BAND_NAMES
 from .errors import MaterialError, StackError
-from .profile import FIELD_EV_PER_NM_PER_KV_CM, _BAND_ATTRS, _edges_of, _LayerFunctions, \
-    _layer_material_fn, _material_set
+from .profile import FIELD_EV_PER_NM_PER_KV_CM, _edges_of, _LayerFunctions, \
+    _layer_material_fn, _material_set, solver_bands
 
 __all__ = ["stack_bands"]
 
@@ -58,57 +56,4 @@ def stack_bands(stack, names=BAND_NAMES) -> dict:
                              key=f"layers[{layer.index}]") from None
         starts.append(z0)
         z = z1
-    labels = tuple(layer.label for layer in stack.layers)
-    repeats = tuple(
-        RepeatInfo(z_start_nm=starts[r.first_layer],
-                   period_nm=sum(stack.layers[r.first_layer + k].thickness_nm
-                                 for k in range(r.layers_per_period)),
-                   count=r.count, first_layer=r.first_layer, layers_per_period=r.layers_per_period)
-        for r in stack.repeats)
-    bands = {}
-    for bname in BAND_NAMES:
-        if bname not in names:
-            continue
-        e_attr, m_attr, sign = _BAND_ATTRS[bname]
-        if not all(f.defined(e_attr) and f.defined(m_attr) for f in funcs):
-            continue
-        nonpar = bool(stack.nonparabolicity) and bname == "conduction"
-        pieces = []
-        for i, f in enumerate(funcs):
-            has_gap = nonpar and f.defined("gap")
-            if f.uniform:
-                c = f.const
-                pieces.append(Piece(z_start_nm=f.z0, z_end_nm=f.z1, layer_index=i,
-                                    kind="flat" if slope == 0 else "linear",
-                                    edge_start_eV=sign * (getattr(c, e_attr) + slope * f.z0),
-                                    edge_slope_eV_per_nm=sign * slope,
-                                    mass_m0=getattr(c, m_attr),
-                                    gap_eV=c.gap if has_gap else None))
-            else:
-                pieces.append(Piece(z_start_nm=f.z0, z_end_nm=f.z1, layer_index=i, kind="smooth",
-                                    potential_fn=_Potential(f, e_attr, sign, slope),
-                                    mass_fn=_Value(f, m_attr),
-                                    gap_fn=_Value(f, "gap") if has_gap else None))
-        bands[bname] = Band(name=bname, pieces=tuple(pieces), carrier_sign=sign,
-                            nonparabolic=nonpar, repeats=repeats, layer_names=labels)
-    return bands
-
-
-class _Value:
-    """One attribute of a graded layer's edge functions, as a function of z [nm]."""
-
-    def __init__(self, f, attr):
-        self.f, self.attr = f, attr
-
-    def __call__(self, z):
-        return self.f.value(self.attr, z)
-
-
-class _Potential:
-    """Carrier potential of a graded layer: ``sign * (edge(z) + slope z)`` [eV]."""
-
-    def __init__(self, f, attr, sign, slope):
-        self.f, self.attr, self.sign, self.slope = f, attr, sign, slope
-
-    def __call__(self, z):
-        return self.sign * (self.f.value(self.attr, z) + self.slope * np.asarray(z, dtype=float))
+    return solver_bands(stack, funcs, starts, slope, names=names)

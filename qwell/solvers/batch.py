@@ -242,6 +242,12 @@ def _mismatch(V, M, G, H, C, J, E):
     wl0, wr0 = wl[:, 0], -wr[:, 0]
     pl, ul = la + lb * wl0, lc + ld * wl0
     pr, ur = ra + rb * wr0, rc + rd * wr0
+    return _match(V, M, G, J, E, pl, ul, pr, ur)
+
+
+def _match(V, M, G, J, E, pl, ul, pr, ur):
+    """The normalised Wronskian of the left and right solutions met at slice ``J``."""
+    ns = V.shape[1]
     rows = np.arange(V.shape[0])
     jw = np.minimum(J, ns - 1)
     vj = V[rows, jw]
@@ -270,13 +276,7 @@ def _mismatch_loop(V, M, G, J, E, a, b, c, wl, wr):
         s = np.maximum(np.abs(p1), np.abs(u1))
         s = np.where(s > 0, s, 1.0)
         pr, ur = np.where(back, p1 / s, pr), np.where(back, u1 / s, ur)
-    rows = np.arange(V.shape[0])
-    jw = np.minimum(J, ns - 1)
-    vj = V[rows, jw]
-    mj = _mass(M[rows, jw], vj, G[rows, jw], E)
-    w = np.sqrt(_C * mj / np.maximum(np.abs(E - vj), 1e-3))
-    ul, ur = w * ul, w * ur
-    return (pl * ur - ul * pr) / (np.hypot(pl, ul) * np.hypot(pr, ur))
+    return _match(V, M, G, J, E, pl, ul, pr, ur)
 
 
 def _split(V) -> np.ndarray:
