@@ -88,6 +88,7 @@ from .constants import E_C, EPS0_F_PER_M, EV_PER_CM1, EV_PER_THZ, HBAR2_2M0_EV_N
 from .errors import ParameterError
 from .fileio import atomic_savefig
 from .solvers import Levels
+from .spectral import axis_label, from_eV, line_unit
 
 __all__ = [
     "Transition",
@@ -686,7 +687,7 @@ _LABEL_GAP = 0.022  # minimum label separation, fraction of the axis width
 
 
 def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str | None = None,
-                  protect=()) -> Path:
+                  protect=(), unit: str | None = None) -> Path:
     """Plot a :class:`Spectrum` to an image file (PNG by suffix), atomically.
 
     Parameters
@@ -695,10 +696,14 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
     path : str or Path
         Output file; its folder must exist.
     axis : {'wavelength', 'energy'}
-        Horizontal axis: wavelength [µm] or photon energy [eV].
+        Horizontal axis: the photon unit of the spectrum's region ('wavelength',
+        the default: nm near-infrared, µm mid-infrared, THz far-infrared, after
+        the peak; see :func:`qwell.spectral.auto_unit`) or photon energy [eV].
     title : str, optional
     protect : iterable of paths
         Input files that must never be overwritten.
+    unit : {'nm', 'um', 'cm-1', 'THz', 'meV'}, optional
+        With ``axis='wavelength'``: this photon unit instead of the region's.
 
     Returns
     -------
@@ -723,9 +728,11 @@ def plot_spectrum(spec: Spectrum, path, *, axis: str = "wavelength", title: str 
     if ax_kind not in ("wavelength", "energy"):
         raise ParameterError(f"unknown axis {axis!r}; use 'wavelength' or 'energy'")
     if ax_kind == "wavelength":
-        x = spec.wavelength_um
-        xlabel = "wavelength (µm)"
-        pos = [HC_EV_UM / t.energy_eV for t in spec.lines]
+        peak_eV = float(spec.energy_eV[int(np.argmax(spec.absorption))])
+        unit = line_unit(peak_eV, unit)
+        x = from_eV(np.asarray(spec.energy_eV, dtype=float), unit)
+        xlabel = axis_label(unit)
+        pos = [float(from_eV(t.energy_eV, unit)) for t in spec.lines]
     else:
         x = spec.energy_eV
         xlabel = "photon energy (eV)"

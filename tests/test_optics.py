@@ -482,3 +482,34 @@ def test_benchmark_matrices_and_spectrum(benchmark):
     # (the remaining box states above 20 hold the rest of the unit sum).
     f1 = sum(t.oscillator_strength for t in ts if t.initial == "e1")
     assert 0.99 < f1 <= 1.0 + 1e-2
+
+
+@pytest.mark.parametrize("width_nm, label, unit", [(8.0, "wavelength (µm)", "um"),
+                                                   (60.0, "frequency (THz)", "THz")])
+def test_plot_spectrum_axis_in_the_unit_of_its_region(tmp_path, monkeypatch, width_nm, label,
+                                                      unit):
+    # a spectrum peaking at 4.7 um is drawn in um, one at 1.1 THz (265 um) in THz (the
+    # region's unit, common practice, no source); the e1-e2 line sits at E/h or hc/E
+    # with h, c from CODATA (scipy.constants)
+    import qwell.optics as optics
+
+    seen = {}
+    real = optics.atomic_savefig
+
+    def spy(fig, path, **kw):
+        ax = fig.axes[0]
+        seen["xlabel"] = ax.get_xlabel()
+        seen["xs"] = [ln.get_xdata()[0] for ln in ax.lines[1:]]
+        return real(fig, path, **kw)
+
+    monkeypatch.setattr(optics, "atomic_savefig", spy)
+    states = box_states(width_nm, 0.067, 3)
+    ts = intersubband_transitions(levels_of(states), box_band(width_nm, 0.067))
+    sp = spectrum(ts, linewidth_meV=1.0)
+    plot_spectrum(sp, tmp_path / "spec.png")
+    assert seen["xlabel"] == label
+    e12 = select_transitions(ts, ["e1-e2"])[0].energy_eV * sc.e
+    want = e12 / sc.h / 1e12 if unit == "THz" else sc.h * sc.c / e12 * 1e6
+    assert min(abs(x - want) for x in seen["xs"]) < 1e-9 * want
+    plot_spectrum(sp, tmp_path / "spec2.png", unit="cm-1")
+    assert seen["xlabel"] == "wavenumber (cm⁻¹)"

@@ -46,7 +46,9 @@ def register(subparsers) -> None:
                     help="spectrum line FWHM in meV, also the gain linewidth of --lifetimes "
                          "(default 10)")
     lv.add_argument("--lineshape", default="lorentzian", choices=["lorentzian", "gaussian"])
-    lv.add_argument("--axis", default="wavelength", choices=["wavelength", "energy"])
+    lv.add_argument("--axis", default="wavelength", choices=["wavelength", "energy"],
+                    help="--png axis: the photon unit of the lines' region (nm, µm or THz; "
+                         "--unit to choose) or photon energy in eV")
     lv.add_argument("--spectrum", choices=["intersubband", "interband"],
                     help="which lines the --png spectrum shows (default: intersubband if any)")
     add_lifetime_options(lv)
@@ -259,7 +261,7 @@ def write_spectrum(stack, sols: dict, chosen: dict, opts: LevelsOptions):
         what += " (depolarisation-shifted)"
     spec = spectrum(lines, linewidth_meV=opts.linewidth_meV, shape=opts.lineshape)
     plot_spectrum(spec, opts.png, axis=opts.axis, title=f"{stack.name}: {what}",
-                  protect=[opts.stack_path])
+                  protect=[opts.stack_path], unit=opts.unit)
     return spec
 
 
